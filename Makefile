@@ -1,0 +1,37 @@
+# The two commands a new user needs are `make run` and `make test`; each sets
+# everything up on first use (a virtual environment in .venv with the project
+# installed into it).
+
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.installed-stamp
+
+.PHONY: run test bench format lint clean
+
+$(STAMP): pyproject.toml
+	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --disable-pip-version-check -e '.[test]'
+	@touch $(STAMP)
+
+## Serve the design sheet on http://127.0.0.1:8000 with a sample design open.
+run: $(STAMP)
+	$(BIN)/ringwise serve
+
+## Style checks, then the whole test suite (browser tests included when Chromium is present).
+test: $(STAMP)
+	$(BIN)/ruff format --check app tests
+	$(BIN)/ruff check app tests
+	$(BIN)/python -m pytest
+
+## Speed figures (medians and ratios to the targets); prints, never fails on time.
+bench: $(STAMP)
+	$(BIN)/python -m app.bench
+
+## Rewrite the code in the project's format and apply safe lint fixes.
+format: $(STAMP)
+	$(BIN)/ruff format app tests
+	$(BIN)/ruff check --fix app tests
+
+clean:
+	rm -rf $(VENV) build *.egg-info .pytest_cache .ruff_cache test-artifacts

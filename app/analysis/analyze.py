@@ -1,0 +1,106 @@
+"""The full analysis of one design: every figure of the result contract."""
+
+from __future__ import annotations
+
+from app.analysis.budget import loop_budget
+from app.analysis.checks import Finding, rule_checks
+from app.analysis.operating import Solved, solve
+from app.analysis.poles import natural_frequencies
+from app.analysis.startup import fixed_bias_drive, gm_ratio, verdict
+from app.analysis.threshold import find_threshold
+from app.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, ideal_gain
+from app.design import Design
+from app.result import (
+    BudgetLineOut,
+    LoopOut,
+    OperatingPointOut,
+    PoleOut,
+    PolesOut,
+    Result,
+    SmallSignalOut,
+    StartupOut,
+    SwingOut,
+    TankOut,
+    WarningOut,
+)
+
+
+def analyze(design: Design) -> Result:
+    """Operating point, loop, poles, budget, threshold, verdict and warnings."""
+    s = solve(design)
+    op, hp = s.op, s.hybrid
+    f_osc = s.f_osc
+    gain = s.gain if f_osc is not None else None
+    budget = loop_budget(s, GAIN_SETTER[design.topology]) if f_osc is not None else []
+    poles = natural_frequencies(s.ss, s.tank.f_ideal, f_osc)
+    setter = GAIN_SETTER[design.topology]
+    threshold = find_threshold(design, setter, start=s)
+    v = verdict(gain, op)
+    V_be, V_ce = _fixed_bias_swing(s, gain)
+    findings = rule_checks(s, budget, poles, V_ce)
+    if threshold.value is None and threshold.reason:
+        findings.append(Finding("no-threshold", threshold.reason))
+    dom = poles.dominant
+    return Result(
+        name=design.name,
+        topology=design.topology.value,
+        operating_point=OperatingPointOut(
+            VB=op.VB,
+            VE=op.VE,
+            VC=op.VC,
+            IC=op.IC,
+            IB=op.IB,
+            VCE=op.VCE,
+            VBE=op.VBE,
+            P_device=op.P_device,
+            I_divider=op.VB / design.bias.RB2,
+            region=op.region.value,
+        ),
+        small_signal=SmallSignalOut(gm=hp.gm, r_pi=hp.r_pi, r_o=hp.r_o, C_pi=hp.C_pi, C_mu=hp.C_mu),
+        tank=TankOut(
+            C_series=s.tank.C_series,
+            f_ideal=s.tank.f_ideal,
+            feedback_ratio=s.tank.feedback_ratio,
+            R_s=s.tank.R_s,
+            output_node=OUTPUT_NODE_LABEL[design.topology],
+        ),
+        loop=LoopOut(
+            f_osc=f_osc,
+            gain=gain,
+            gain_ideal=ideal_gain(design, hp.gm),
+            phase_slope=float(s.loop.phase_slope),
+            Q_loaded=float(s.loop.Q_loaded),
+            Z_out=float(s.loop.Z_out),
+            budget=[BudgetLineOut(**vars(line)) for line in budget],
+        ),
+        poles=PolesOut(
+            sigma=dom.sigma if dom else None,
+            f=dom.f if dom else None,
+            growth_time=poles.growth_time,
+            other_rhp=[PoleOut(sigma=p.sigma, f=p.f) for p in poles.other_rhp],
+        ),
+        startup=StartupOut(
+            verdict=v.verdict,
+            label=v.label,
+            margin=v.margin,
+            margin_dB=v.margin_dB,
+            threshold_param=threshold.param,
+            threshold_value=threshold.value,
+            threshold_RC=threshold.value if setter == "RC" else None,
+        ),
+        swing=SwingOut(V_be=V_be, V_ce=V_ce),
+        warnings=[WarningOut(code=f.code, message=f.message) for f in findings],
+    )
+
+
+def _fixed_bias_swing(s: Solved, gain: float | None) -> tuple[float | None, float | None]:
+    """Fundamental amplitudes at v_be and v_ce with the bias current held fixed."""
+    if gain is None:
+        return None, None
+    x = fixed_bias_drive(gain)
+    if x is None:
+        return None, None
+    V_be = x * s.VT
+    # fundamental collector current G_m·V_be drives Z_out
+    V_ce = s.hybrid.gm * gm_ratio(x) * V_be * float(s.loop.Z_out)
+    return V_be, V_ce

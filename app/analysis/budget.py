@@ -1,0 +1,134 @@
+"""Loop-gain budget: which loss or loading costs how much loop gain.
+
+For each lossy or loading element the loop gain is recomputed with that one
+element made ideal (a resistor opened, a coupling or bypass capacitor made a
+short, the coil made lossless, a transistor parasitic removed) and every
+other element kept.  The operating point is held fixed: the budget is a
+small-signal statement about the loop as biased.  All variants are solved in
+one batched call.
+
+The cost of an element is 20·log10(gain_without / gain) in dB; its share is
+its cost over the sum of the positive costs.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass
+from typing import Final
+
+import numpy as np
+
+from app.analysis.loop import find_oscillation
+from app.analysis.operating import Solved
+from app.circuit.mna import SmallSignal, assemble, small_signal
+from app.circuit.netlist import Capacitor, Inductor, Netlist, Resistor
+from app.circuit.npn import HybridPi
+
+#: A capacitor "made a short" is multiplied by this factor.
+SHORT_FACTOR: Final = 1e4
+
+
+@dataclass(frozen=True)
+class BudgetItem:
+    """How to make one loss ideal: netlist changes and hybrid-π changes."""
+
+    element: str
+    label: str
+    parts: tuple[str, ...] = ()
+    hybrid: dict[str, float] = dataclasses.field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class BudgetLine:
+    element: str
+    label: str
+    gain_without: float | None
+    f_without: float | None
+    cost_dB: float | None
+    share: float | None
+
+
+def budget_items(netlist: Netlist, gain_setter: str) -> list[BudgetItem]:
+    """The losses present in ``netlist``, in a fixed reading order."""
+    items = [
+        BudgetItem("L_loss", "Inductor loss (finite Q_L)", ("L",)),
+        BudgetItem("r_pi", "Transistor input resistance r_π", hybrid={"g_pi": 0.0}),
+        BudgetItem("divider", "Bias divider RB1 ∥ RB2", ("RB1", "RB2")),
+        BudgetItem("r_o", "Output resistance r_o (Early effect)", hybrid={"g_o": 0.0, "g_r": 0.0}),
+    ]
+    if "R_load" in netlist:
+        items.append(BudgetItem("R_load", "Load R_load", ("R_load",)))
+    for name in ("RC", "RE"):
+        if name in netlist:
+            role = "gain-setting resistor" if name == gain_setter else "loading resistor"
+            items.append(BudgetItem(name, f"{name} ({role})", (name,)))
+    for name, label in (("CE", "Emitter bypass CE"), ("CB", "Base bypass CB")):
+        if name in netlist:
+            items.append(BudgetItem(name, label, (name,)))
+    items += [
+        BudgetItem("Cc1", "Coupling Cc1", ("Cc1",)),
+        BudgetItem("Cc2", "Coupling Cc2", ("Cc2",)),
+        BudgetItem(
+            "C_pi_C_mu", "Junction capacitances C_π, C_μ", hybrid={"C_pi": 0.0, "C_mu": 0.0}
+        ),
+    ]
+    return items
+
+
+def _idealise(netlist: Netlist, parts: tuple[str, ...]) -> Netlist:
+    for name in parts:
+        el = netlist[name]
+        if isinstance(el, Resistor):
+            netlist = netlist.replace(name, R=math.inf)
+        elif isinstance(el, Capacitor):
+            netlist = netlist.replace(name, C=el.C * SHORT_FACTOR)
+        elif isinstance(el, Inductor):
+            netlist = netlist.replace(name, R_s=0.0)
+    return netlist
+
+
+def _variant(solved: Solved, item: BudgetItem) -> SmallSignal:
+    system = solved.system if not item.parts else assemble(_idealise(solved.netlist, item.parts))
+    hp: HybridPi = dataclasses.replace(solved.hybrid, **item.hybrid)
+    return small_signal(system, hp)
+
+
+def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
+    """Cost of each loss in loop gain, for a solved design with a loop crossing."""
+    items = budget_items(solved.netlist, gain_setter)
+    variants = [_variant(solved, item) for item in items]
+    batch = SmallSignal(
+        layout=solved.ss.layout,
+        G=np.stack([v.G for v in variants]),
+        C=np.stack([v.C for v in variants]),
+        gm=np.full(len(variants), solved.ss.gm),
+        u=solved.ss.u,
+        w=solved.ss.w,
+        hybrid=solved.hybrid,
+    )
+    f_ref = solved.f_osc or solved.tank.f_ideal
+    figs = find_oscillation(batch, solved.tank.f_ideal, f_ref)
+    gain = solved.gain
+    costs: list[float | None] = []
+    for g in figs.gain:
+        ok = np.isfinite(g) and gain > 0
+        costs.append(20.0 * math.log10(g / gain) if ok else None)
+    positive = sum(c for c in costs if c is not None and c > 0)
+    lines = []
+    for item, g, f, cost in zip(items, figs.gain, figs.f_osc, costs, strict=True):
+        share = None
+        if cost is not None and positive > 0:
+            share = max(cost, 0.0) / positive
+        lines.append(
+            BudgetLine(
+                element=item.element,
+                label=item.label,
+                gain_without=float(g) if np.isfinite(g) else None,
+                f_without=float(f) if np.isfinite(f) else None,
+                cost_dB=cost,
+                share=share,
+            )
+        )
+    return lines

@@ -1,0 +1,176 @@
+"""Rule checks: what a practitioner would circle on the schematic.
+
+Each check returns warnings with a stable code and a plain message naming the
+part, the figure and the limit.  Limits are common practice, no source,
+except where noted.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Final
+
+from app.analysis.budget import BudgetLine
+from app.analysis.dc import Region
+from app.analysis.operating import Solved
+from app.analysis.poles import PoleFigures
+from app.units import format_si
+
+#: The divider current should be at least this multiple of the base current.
+STIFF_DIVIDER: Final = 10.0
+#: Smallest V_CE left at the bottom of the swing, V.
+VCE_MARGIN: Final = 0.3
+#: Dissipation worth a look in a small-signal package, W.
+P_DEVICE_WARN: Final = 0.25
+#: C1/C2 outside this band is unusual.
+RATIO_BAND: Final = (0.1, 10.0)
+#: A coupling or bypass capacitor is "not small" when making it a short
+#: would change the loop gain by more than this (dB) ...
+COUPLING_COST_DB: Final = 0.5
+#: ... or move f_osc by more than this fraction.
+COUPLING_SHIFT: Final = 0.002
+#: Extra RHP poles below f_osc / this are flagged as a squegging risk.
+SQUEGGING_RATIO: Final = 10.0
+
+
+@dataclass(frozen=True)
+class Finding:
+    code: str
+    message: str
+
+
+def rule_checks(
+    solved: Solved,
+    budget: list[BudgetLine],
+    poles: PoleFigures,
+    V_ce_swing: float | None,
+) -> list[Finding]:
+    s, op = solved, solved.op
+    out: list[Finding] = []
+    for part in s.design.unused_parts():
+        out.append(
+            Finding(
+                "unused-part",
+                f"{part} is not part of the {s.design.topology.value} form and is ignored",
+            )
+        )
+    if op.region is Region.CUTOFF:
+        out.append(
+            Finding(
+                "cut-off",
+                f"the transistor is cut off (IC = {format_si(op.IC, 'A')}); "
+                "check the bias divider and RE",
+            )
+        )
+    elif op.region is Region.SATURATION:
+        out.append(
+            Finding(
+                "saturated",
+                f"the transistor is saturated at DC (VCE = {format_si(op.VCE, 'V')}); "
+                "lower RC or RE, or raise the divider ratio toward the supply",
+            )
+        )
+    I_div = op.VB / s.design.bias.RB2
+    if op.region is not Region.CUTOFF and I_div < STIFF_DIVIDER * op.IB:
+        out.append(
+            Finding(
+                "soft-divider",
+                f"divider current {format_si(I_div, 'A')} is only {I_div / op.IB:.1f}× the base "
+                f"current {format_si(op.IB, 'A')} (aim for ≥ {STIFF_DIVIDER:g}×): the operating "
+                "point will follow β and temperature",
+            )
+        )
+    if V_ce_swing is not None and op.region is Region.ACTIVE:
+        floor = op.VCE - V_ce_swing
+        if floor < VCE_MARGIN:
+            out.append(
+                Finding(
+                    "low-headroom",
+                    f"expected V_CE swing {format_si(V_ce_swing, 'V')} (amplitude) on "
+                    f"VCE = {format_si(op.VCE, 'V')} leaves {format_si(floor, 'V')} "
+                    f"(want ≥ {VCE_MARGIN:g} V): the swing will run into saturation",
+                )
+            )
+    if op.P_device > P_DEVICE_WARN:
+        out.append(
+            Finding(
+                "hot-device",
+                f"transistor dissipation {format_si(op.P_device, 'W')} exceeds "
+                f"{P_DEVICE_WARN:g} W: check the part's rating and derating",
+            )
+        )
+    ratio = s.tank.feedback_ratio
+    if not RATIO_BAND[0] <= ratio <= RATIO_BAND[1]:
+        out.append(
+            Finding(
+                "extreme-ratio",
+                f"C1/C2 = {ratio:.3g} is outside {RATIO_BAND[0]:g} … {RATIO_BAND[1]:g}: "
+                "the tank loads one side heavily",
+            )
+        )
+    out += _coupling_checks(s, budget)
+    out += _pole_checks(s, poles)
+    return out
+
+
+def _coupling_checks(s: Solved, budget: list[BudgetLine]) -> list[Finding]:
+    f = s.f_osc
+    if f is None:
+        return []
+    out = []
+    for line in budget:
+        if line.element not in ("Cc1", "Cc2", "CE", "CB"):
+            continue
+        cost = line.cost_dB or 0.0
+        shift = abs(line.f_without / f - 1.0) if line.f_without else 0.0
+        if cost > COUPLING_COST_DB or shift > COUPLING_SHIFT:
+            C = s.netlist[line.element].C  # type: ignore[union-attr]
+            X = 1.0 / (2.0 * math.pi * f * C)
+            out.append(
+                Finding(
+                    "coupling-reactance",
+                    f"{line.element} = {format_si(C, 'F')} has {format_si(X, 'Ω')} of reactance "
+                    f"at f_osc: it costs {cost:.2f} dB of loop gain and moves f_osc "
+                    f"{100 * shift:.2f} %; a larger value makes it negligible",
+                )
+            )
+    return out
+
+
+def _pole_checks(s: Solved, poles: PoleFigures) -> list[Finding]:
+    out = []
+    f = s.f_osc
+    if f is None:
+        out.append(
+            Finding(
+                "no-crossing",
+                "the return ratio has no zero-phase crossing near the tank resonance "
+                f"({format_si(s.tank.f_ideal, 'Hz')}): there is no oscillation frequency",
+            )
+        )
+    for p in poles.other_rhp:
+        near_dc = f is not None and p.f < f / SQUEGGING_RATIO
+        extra = (
+            ": a low-frequency loop through the coupling or bypass capacitors, "
+            "the usual cause of squegging (the envelope collapses and rebuilds)"
+            if near_dc
+            else ""
+        )
+        out.append(
+            Finding(
+                "extra-rhp-pole",
+                f"a second growing natural frequency at {format_si(p.f, 'Hz')} "
+                f"(σ = {p.sigma:.3g} /s){extra}",
+            )
+        )
+    dom = poles.dominant
+    if dom is not None and f is not None and (dom.sigma > 0) != (s.gain > 1.0):
+        out.append(
+            Finding(
+                "pole-gain-mismatch",
+                f"the dominant poles (σ = {dom.sigma:.3g} /s) and the loop gain "
+                f"({s.gain:.4g}) disagree about startup; the design sits at the threshold",
+            )
+        )
+    return out

@@ -1,0 +1,254 @@
+"""Threshold finder and parameter sweeps.
+
+The threshold of a parameter is the value at which the loop gain is exactly
+one, every other part fixed: the computed version of turning a decade box on
+the bench until the oscillator just starts.  The operating point is re-solved
+at each trial value, so a resistor that also moves the bias is treated fully.
+
+The search works on ln(gain) against ln(value), where most parts act nearly
+as a power law: secant steps from the current value, then bracketing with
+Brent's method if the secant cannot settle.  The crossing nearest the
+current value is the one reported.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Final, Literal
+
+import numpy as np
+from pydantic import ValidationError
+from scipy.optimize import brentq
+
+from app.analysis.dc import DCConvergenceError
+from app.analysis.operating import Solved, solve
+from app.design import Design, get_param, with_param
+
+#: The threshold is sought within value / RANGE … value · RANGE.
+SEARCH_RANGE: Final = 1e4
+#: |ln gain| below this counts as exactly at threshold (gain within 1e-9).
+LOG_GAIN_TOL: Final = 1e-9
+SECANT_STEPS: Final = 12
+#: Largest secant step, in ln(value) (one decade).
+MAX_STEP: Final = math.log(10.0)
+#: Times a secant step is halved back when its trial has no loop.
+RETREATS: Final = 6
+#: First trial step of the secant, as a factor on the value.
+FIRST_STEP: Final = 1.2
+#: Points per decade of the fallback bracketing scan.
+SCAN_PER_DECADE: Final = 6
+#: Stand-in for ln(gain) when a trial value gives no loop crossing at all.
+NO_LOOP: Final = -50.0
+#: Maximum sweep length.
+MAX_SWEEP_POINTS: Final = 1000
+
+#: Parameters that act on a linear scale (all others are positive and swept
+#: and searched on a log scale).
+LINEAR_PARAMS: Final = frozenset({"temperature_C"})
+
+
+class ParameterError(ValueError):
+    """A threshold or sweep request names a parameter it cannot use."""
+
+
+@dataclass
+class _Trials:
+    """Caches trial solves and their warm starts during one search."""
+
+    design: Design
+    param: str
+    last: Solved | None = None
+    seen: dict[float, float] = field(default_factory=dict)
+
+    def log_gain(self, log_value: float) -> float:
+        if log_value in self.seen:
+            return self.seen[log_value]
+        value = math.exp(log_value)
+        try:
+            trial = with_param(self.design, self.param, value)
+        except ValidationError:
+            result = math.nan
+        else:
+            x0 = self.last.op.x if self.last is not None else None
+            f0 = self.last.f_osc if self.last is not None else None
+            try:
+                solved = solve(trial, x0, f0)
+            except DCConvergenceError:
+                result = math.nan
+            else:
+                self.last = solved
+                g = solved.gain
+                result = math.log(g) if g > 0 else NO_LOOP
+        self.seen[log_value] = result
+        return result
+
+
+@dataclass(frozen=True)
+class Threshold:
+    """Where the loop gain is one; ``value`` is ``None`` when no crossing was found."""
+
+    param: str
+    value: float | None
+    current: float
+    reason: str | None = None
+
+
+def _check_param(design: Design, param: str) -> float:
+    try:
+        value = get_param(design, param)
+    except ValueError as err:
+        raise ParameterError(str(err)) from err
+    if value is None:
+        raise ParameterError(f"{param} is not part of this design")
+    if param in LINEAR_PARAMS:
+        raise ParameterError(f"{param} has no threshold search; sweep it instead")
+    return value
+
+
+def find_threshold(design: Design, param: str, start: Solved | None = None) -> Threshold:
+    """Value of ``param`` at which the loop gain is exactly 1, the others fixed."""
+    value = _check_param(design, param)
+    trials = _Trials(design, param, last=start)
+    x0 = math.log(value)
+    g0 = math.log(start.gain) if start is not None and start.gain > 0 else trials.log_gain(x0)
+    trials.seen[x0] = g0
+    if abs(g0) <= LOG_GAIN_TOL:
+        return Threshold(param, value, value)
+    root = _secant(trials, x0, g0)
+    if root is None:
+        root = _bracket(trials, x0)
+    if root is None:
+        return Threshold(
+            param,
+            None,
+            value,
+            reason=(
+                f"no value of {param} between {value / SEARCH_RANGE:.3g} and "
+                f"{value * SEARCH_RANGE:.3g} brings the loop gain to 1"
+            ),
+        )
+    return Threshold(param, math.exp(root), value)
+
+
+def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
+    """Damped secant on ln(gain) against ln(value): at most a decade per step,
+    halved back toward the last good point when a trial has no loop."""
+    lo, hi = x0 - math.log(SEARCH_RANGE), x0 + math.log(SEARCH_RANGE)
+    x1 = x0 + math.log(FIRST_STEP)
+    g1 = trials.log_gain(x1)
+    for _ in range(SECANT_STEPS):
+        if not (_usable(g0) and _usable(g1)) or g1 == g0:
+            return None
+        step = -g1 * (x1 - x0) / (g1 - g0)
+        step = max(-MAX_STEP, min(MAX_STEP, step))
+        x2 = x1 + step
+        g2 = trials.log_gain(x2)
+        for _retreat in range(RETREATS):
+            if _usable(g2):
+                break
+            x2 = 0.5 * (x1 + x2)
+            g2 = trials.log_gain(x2)
+        if not lo <= x2 <= hi or not _usable(g2):
+            return None
+        if abs(g2) <= LOG_GAIN_TOL:
+            return x2
+        x0, g0, x1, g1 = x1, g1, x2, g2
+    return None
+
+
+def _usable(g: float) -> bool:
+    return math.isfinite(g) and g != NO_LOOP
+
+
+def _bracket(trials: _Trials, x0: float) -> float | None:
+    """Scan outward from x0, both ways, nearest first, for a sign change of ln(gain);
+    refine it with Brent's method."""
+    step = math.log(10.0) / SCAN_PER_DECADE
+    n = math.ceil(math.log(SEARCH_RANGE) / step)
+    g0 = trials.log_gain(x0)
+    prev = {1.0: (x0, g0), -1.0: (x0, g0)}
+    for k in range(1, n + 1):
+        for direction in (-1.0, 1.0):
+            prev_x, prev_g = prev[direction]
+            x = x0 + direction * k * step
+            g = trials.log_gain(x)
+            if math.isfinite(g) and math.isfinite(prev_g) and (g > 0) != (prev_g > 0):
+                a, b = sorted((prev_x, x))
+                return brentq(_finite(trials), a, b, xtol=1e-12, rtol=1e-12)
+            prev[direction] = (x, g)
+    return None
+
+
+def _finite(trials: _Trials):
+    def f(x: float) -> float:
+        g = trials.log_gain(x)
+        return g if math.isfinite(g) else NO_LOOP
+
+    return f
+
+
+@dataclass(frozen=True)
+class Sweep:
+    """f_osc (Hz) and loop gain along a parameter; None where there is no loop crossing."""
+
+    param: str
+    values: list[float]
+    f_osc: list[float | None]
+    gain: list[float | None]
+    valid: list[bool]
+    threshold: Threshold
+
+
+def sweep_values(
+    start: float, stop: float, points: int, scale: Literal["log", "linear"]
+) -> np.ndarray:
+    if scale == "log":
+        if start <= 0 or stop <= 0:
+            raise ParameterError("a log sweep needs positive start and stop values")
+        return np.geomspace(start, stop, points)
+    return np.linspace(start, stop, points)
+
+
+def sweep(
+    design: Design,
+    param: str,
+    start: float,
+    stop: float,
+    points: int,
+    scale: Literal["log", "linear"] | None = None,
+) -> Sweep:
+    """Loop gain and f_osc at ``points`` values of ``param`` (others fixed)."""
+    try:
+        current = get_param(design, param)
+    except ValueError as err:
+        raise ParameterError(str(err)) from err
+    if current is None:
+        raise ParameterError(f"{param} is not part of this design")
+    if not 2 <= points <= MAX_SWEEP_POINTS:
+        raise ParameterError(f"points must be between 2 and {MAX_SWEEP_POINTS}, got {points}")
+    if scale is None:
+        scale = "linear" if param in LINEAR_PARAMS else "log"
+    values = sweep_values(start, stop, points, scale)
+    f_osc: list[float | None] = []
+    gain: list[float | None] = []
+    valid: list[bool] = []
+    last: Solved | None = None
+    for v in values:
+        try:
+            trial = with_param(design, param, float(v))
+            last = solve(trial, last.op.x if last else None, last.f_osc if last else None)
+        except (ValidationError, DCConvergenceError):
+            f_osc.append(None)
+            gain.append(None)
+            valid.append(False)
+            last = None
+            continue
+        f_osc.append(last.f_osc)
+        gain.append(last.gain if last.f_osc is not None else None)
+        valid.append(True)
+    if param in LINEAR_PARAMS:
+        threshold = Threshold(param, None, current, reason=f"{param} has no threshold search")
+    else:
+        threshold = find_threshold(design, param)
+    return Sweep(param, [float(v) for v in values], f_osc, gain, valid, threshold)

@@ -1,0 +1,241 @@
+r"""Modified nodal analysis: the one assembly of the circuit equations.
+
+Unknowns are the node voltages followed by one branch current per inductor
+and per supply.  The linear elements give
+
+.. math:: (G + sC)\,x = b
+
+with inductor rows :math:`v_a - v_b - (R_s + sL)\,i = 0` and supply rows
+:math:`v_+ = V`.  The transistors add their nonlinear currents
+:math:`i_{dev}(x)` for DC and transient work, or their hybrid-π stamps for
+small-signal work.  Every analysis in :mod:`app.analysis` uses these matrices;
+none writes circuit equations of its own.
+
+A conductance ``G_MIN`` from every node to ground (as in SPICE) keeps nodes
+that are floating at DC — the tank between two DC blocks — defined.
+
+References
+----------
+Ho, Ruehli & Brennan, "The modified nodal approach to network analysis",
+IEEE Trans. Circuits and Systems, 1975 (from memory).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from app.circuit.netlist import (
+    GROUND,
+    NPN,
+    Capacitor,
+    DCSupply,
+    Inductor,
+    Netlist,
+    Resistor,
+)
+from app.circuit.npn import HybridPi, JunctionState, junction_state
+
+#: Conductance from every node to ground, S (SPICE's default GMIN).
+G_MIN = 1e-12
+
+
+@dataclass(frozen=True)
+class Layout:
+    """Where each node voltage and branch current sits in the unknown vector."""
+
+    node: dict[str, int]
+    branch: dict[str, int]
+    size: int
+
+    def v(self, x: np.ndarray, node: str) -> np.ndarray:
+        """Voltage of ``node`` in solution(s) ``x`` (last axis indexes unknowns)."""
+        if node == GROUND:
+            return np.zeros(x.shape[:-1], dtype=x.dtype) if x.ndim > 1 else x.dtype.type(0)
+        return x[..., self.node[node]]
+
+    def unit(self, node: str) -> np.ndarray:
+        """Unit vector selecting ``node`` (zero vector for ground)."""
+        vec = np.zeros(self.size)
+        if node != GROUND:
+            vec[self.node[node]] = 1.0
+        return vec
+
+
+def layout_of(netlist: Netlist) -> Layout:
+    node = {name: i for i, name in enumerate(netlist.nodes)}
+    branch: dict[str, int] = {}
+    for element in netlist:
+        if isinstance(element, Inductor | DCSupply):
+            branch[element.name] = len(node) + len(branch)
+    return Layout(node=node, branch=branch, size=len(node) + len(branch))
+
+
+def _stamp_pair(M: np.ndarray, lay: Layout, a: str, b: str, value: float) -> None:
+    """Stamp a two-terminal admittance ``value`` between nodes a and b."""
+    ia = lay.node.get(a)
+    ib = lay.node.get(b)
+    if ia is not None:
+        M[ia, ia] += value
+    if ib is not None:
+        M[ib, ib] += value
+    if ia is not None and ib is not None:
+        M[ia, ib] -= value
+        M[ib, ia] -= value
+
+
+@dataclass(frozen=True)
+class LinearSystem:
+    """Matrices of the linear elements: (G + sC) x = b."""
+
+    layout: Layout
+    G: np.ndarray
+    C: np.ndarray
+    b: np.ndarray
+    devices: tuple[NPN, ...]
+
+
+def assemble(netlist: Netlist) -> LinearSystem:
+    """Assemble G, C and the source vector b of the linear elements."""
+    lay = layout_of(netlist)
+    n = lay.size
+    G = np.zeros((n, n))
+    C = np.zeros((n, n))
+    b = np.zeros(n)
+    for i in lay.node.values():
+        G[i, i] += G_MIN
+    devices: list[NPN] = []
+    for el in netlist:
+        if isinstance(el, Resistor):
+            if np.isfinite(el.R):
+                _stamp_pair(G, lay, el.a, el.b, 1.0 / el.R)
+        elif isinstance(el, Capacitor):
+            _stamp_pair(C, lay, el.a, el.b, el.C)
+        elif isinstance(el, Inductor):
+            k = lay.branch[el.name]
+            for node, sign in ((el.a, 1.0), (el.b, -1.0)):
+                i = lay.node.get(node)
+                if i is not None:
+                    G[i, k] += sign  # branch current leaves a, enters b
+                    G[k, i] += sign  # v_a - v_b ...
+            G[k, k] -= el.R_s  # ... - R_s i
+            C[k, k] -= el.L  # ... - s L i = 0
+        elif isinstance(el, DCSupply):
+            k = lay.branch[el.name]
+            i = lay.node[el.pos]
+            G[i, k] += 1.0
+            G[k, i] += 1.0
+            b[k] = el.V
+        elif isinstance(el, NPN):
+            devices.append(el)
+        else:  # pragma: no cover - the Element union is closed
+            raise TypeError(f"unknown element {el!r}")
+    return LinearSystem(lay, G, C, b, tuple(devices))
+
+
+def device_voltages(lay: Layout, dev: NPN, x: np.ndarray) -> tuple[float, float]:
+    """(v_BE, v_CE) of a transistor in solution ``x``."""
+    vb = float(lay.v(x, dev.b))
+    ve = float(lay.v(x, dev.e))
+    vc = float(lay.v(x, dev.c))
+    return vb - ve, vc - ve
+
+
+def device_state(lay: Layout, dev: NPN, x: np.ndarray) -> JunctionState:
+    p = dev.params
+    vbe, vce = device_voltages(lay, dev, x)
+    return junction_state(vbe, vce, p.IS, p.beta, p.beta_R, p.VA, p.VT)
+
+
+def nonlinear_residual(
+    system: LinearSystem, x: np.ndarray, source_scale: float = 1.0
+) -> tuple[np.ndarray, np.ndarray]:
+    """F(x) = G x + i_dev(x) − b and its Jacobian, for DC and transient Newton.
+
+    ``source_scale`` multiplies b (used by source stepping).
+    """
+    lay = system.layout
+    F = system.G @ x - source_scale * system.b
+    J = system.G.copy()
+    for dev in system.devices:
+        st = device_state(lay, dev, x)
+        _stamp_device_currents(F, J, lay, dev, st)
+    return F, J
+
+
+def _stamp_device_currents(
+    F: np.ndarray, J: np.ndarray, lay: Layout, dev: NPN, st: JunctionState
+) -> None:
+    """Add the terminal currents (leaving each node into the device) and their Jacobian."""
+    # Terminal currents into the device: IC at c, IB at b, IE = -(IC + IB) at e.
+    # Controls: v_BE = v_b - v_e and v_CE = v_c - v_e.
+    rows = {
+        dev.c: (st.IC, st.dIC_dvbe, st.dIC_dvce),
+        dev.b: (st.IB, st.dIB_dvbe, st.dIB_dvce),
+        dev.e: (
+            -(st.IC + st.IB),
+            -(st.dIC_dvbe + st.dIB_dvbe),
+            -(st.dIC_dvce + st.dIB_dvce),
+        ),
+    }
+    ib, ic, ie = lay.node.get(dev.b), lay.node.get(dev.c), lay.node.get(dev.e)
+    for node, (current, d_vbe, d_vce) in rows.items():
+        r = lay.node.get(node)
+        if r is None:
+            continue
+        F[r] += current
+        if ib is not None:
+            J[r, ib] += d_vbe
+        if ic is not None:
+            J[r, ic] += d_vce
+        if ie is not None:
+            J[r, ie] -= d_vbe + d_vce
+
+
+@dataclass(frozen=True)
+class SmallSignal:
+    r"""The circuit linearised at its operating point, with the loop broken.
+
+    ``G`` and ``C`` hold every element except the transistor's controlled
+    source :math:`g_m v_{be}`.  That source is the rank-one term
+    :math:`g_m\,u\,w^T` with ``u`` = e_c − e_e (where its current leaves and
+    enters) and ``w`` = e_b − e_e (what controls it), so the complete
+    small-signal circuit is :math:`(G + g_m u w^T) + sC`.
+    """
+
+    layout: Layout
+    G: np.ndarray
+    C: np.ndarray
+    gm: float
+    u: np.ndarray
+    w: np.ndarray
+    hybrid: HybridPi
+
+    @property
+    def G_full(self) -> np.ndarray:
+        return self.G + np.asarray(self.gm)[..., None, None] * np.outer(self.u, self.w)
+
+
+def small_signal(system: LinearSystem, hp: HybridPi) -> SmallSignal:
+    """Linearise around an operating point described by the hybrid-π ``hp``.
+
+    The circuit must hold exactly one transistor: the loop studied is the
+    one through its controlled source.
+    """
+    if len(system.devices) != 1:
+        raise ValueError("the return ratio is defined for circuits with one transistor")
+    dev = system.devices[0]
+    lay = system.layout
+    G = system.G.copy()
+    C = system.C.copy()
+    u = lay.unit(dev.c) - lay.unit(dev.e)
+    w = lay.unit(dev.b) - lay.unit(dev.e)
+    vce = lay.unit(dev.c) - lay.unit(dev.e)
+    # i_b = g_pi v_be + g_r v_ce into the base, returning through the emitter.
+    G += np.outer(lay.unit(dev.b) - lay.unit(dev.e), hp.g_pi * w + hp.g_r * vce)
+    # i_c (without g_m v_be) = g_o v_ce into the collector, out of the emitter.
+    G += np.outer(u, hp.g_o * vce)
+    _stamp_pair(C, lay, dev.b, dev.e, hp.C_pi)
+    _stamp_pair(C, lay, dev.b, dev.c, hp.C_mu)
+    return SmallSignal(lay, G, C, hp.gm, u, w, hp)

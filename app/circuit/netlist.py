@@ -1,0 +1,155 @@
+"""The netlist: the one description of a circuit that every analysis reads.
+
+Five element kinds are enough for a discrete Colpitts-family oscillator:
+resistor, capacitor, inductor with series loss, an ideal DC supply and an NPN
+transistor.  Nodes are named by strings; ``GROUND`` is the reference node.
+Elements are immutable; :meth:`Netlist.replace` makes a modified copy, which
+is how analyses ask "what if this part were ideal".
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from typing import Final
+
+GROUND: Final = "0"
+
+
+@dataclass(frozen=True, slots=True)
+class Resistor:
+    """Resistance ``R`` (Ω) between nodes ``a`` and ``b``; ``R = inf`` is an open."""
+
+    name: str
+    a: str
+    b: str
+    R: float
+
+
+@dataclass(frozen=True, slots=True)
+class Capacitor:
+    """Capacitance ``C`` (F) between nodes ``a`` and ``b``."""
+
+    name: str
+    a: str
+    b: str
+    C: float
+
+
+@dataclass(frozen=True, slots=True)
+class Inductor:
+    """Inductance ``L`` (H) in series with its loss resistance ``R_s`` (Ω), ``a`` to ``b``.
+
+    The branch current (from ``a`` to ``b``) is an unknown of the nodal
+    equations, so the inductor is a short (through ``R_s``) at DC.
+    """
+
+    name: str
+    a: str
+    b: str
+    L: float
+    R_s: float = 0.0
+
+
+@dataclass(frozen=True, slots=True)
+class DCSupply:
+    """Ideal voltage source of ``V`` (V) from ``GROUND`` to ``pos``; a short for signals."""
+
+    name: str
+    pos: str
+    V: float
+
+
+@dataclass(frozen=True, slots=True)
+class NPNParams:
+    """Parameters of the NPN transport model at the operating temperature.
+
+    Attributes
+    ----------
+    IS : saturation current at the operating temperature, A
+    beta : forward current gain β_F
+    beta_R : reverse current gain β_R
+    VA : forward Early voltage, V
+    VT : thermal voltage k·T/q, V
+    fT : transition frequency, Hz
+    C_mu : base-collector capacitance, F
+    """
+
+    IS: float
+    beta: float
+    beta_R: float
+    VA: float
+    VT: float
+    fT: float
+    C_mu: float
+
+
+@dataclass(frozen=True, slots=True)
+class NPN:
+    """NPN transistor with collector ``c``, base ``b`` and emitter ``e``."""
+
+    name: str
+    c: str
+    b: str
+    e: str
+    params: NPNParams
+
+
+Element = Resistor | Capacitor | Inductor | DCSupply | NPN
+
+
+@dataclass(frozen=True)
+class Netlist:
+    """An ordered, immutable collection of uniquely named elements."""
+
+    elements: tuple[Element, ...]
+    _by_name: dict[str, Element] = field(init=False, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        by_name: dict[str, Element] = {}
+        for element in self.elements:
+            if element.name in by_name:
+                raise ValueError(f"two elements are named {element.name!r}")
+            by_name[element.name] = element
+        object.__setattr__(self, "_by_name", by_name)
+
+    def __iter__(self) -> Iterator[Element]:
+        return iter(self.elements)
+
+    def __getitem__(self, name: str) -> Element:
+        return self._by_name[name]
+
+    def __contains__(self, name: object) -> bool:
+        return name in self._by_name
+
+    @property
+    def nodes(self) -> list[str]:
+        """Non-ground node names in order of first appearance."""
+        seen: dict[str, None] = {}
+        for element in self.elements:
+            for node in terminals(element):
+                if node != GROUND:
+                    seen.setdefault(node)
+        return list(seen)
+
+    def replace(self, name: str, **changes: float) -> Netlist:
+        """A copy with element ``name`` given new field values."""
+        return Netlist(
+            tuple(
+                dataclasses.replace(el, **changes) if el.name == name else el
+                for el in self.elements
+            )
+        )
+
+    def of_kind(self, kind: type) -> list:
+        return [el for el in self.elements if isinstance(el, kind)]
+
+
+def terminals(element: Element) -> tuple[str, ...]:
+    """The nodes an element touches."""
+    if isinstance(element, NPN):
+        return (element.c, element.b, element.e)
+    if isinstance(element, DCSupply):
+        return (element.pos, GROUND)
+    return (element.a, element.b)

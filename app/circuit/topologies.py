@@ -1,0 +1,171 @@
+r"""Topologies are netlist builders: a design in, one netlist out.
+
+All three Colpitts forms share one resonator, a triangle of three reactances
+whose corners face the transistor's terminals: C1 across collector-emitter,
+C2 across base-emitter, and L (with the Clapp capacitor C3 in series, when
+present) across collector-base.  The forms differ only in which terminal sits
+at signal ground, and so in which tank corner is tied to ground:
+
+================  =====================  ==========================
+form              grounded corner        gain-setting resistor
+================  =====================  ==========================
+common-emitter    emitter (C1, C2 down)  RC (across C1)
+common-base       base    (L, C2 down)   RC (across L)
+common-collector  collector (L, C1 down) RE (across C1)
+================  =====================  ==========================
+
+The tank is DC-isolated from the transistor by Cc1 (at the output terminal:
+the collector, or the emitter in the common-collector form) and Cc2 (at the
+input terminal: the base, or the emitter in the common-base form).  The tank
+node nearest the output terminal is ``t1``; the optional load sits there.
+
+Inductor loss convention: the coil's unloaded Q, ``Q_L``, is taken at the
+tank's ideal resonance :math:`\omega_0 = 1/\sqrt{L C_s}` and represented by a
+series resistance :math:`R_s = \omega_0 L / Q_L`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Final
+
+from app.circuit.netlist import (
+    GROUND,
+    NPN,
+    Capacitor,
+    DCSupply,
+    Element,
+    Inductor,
+    Netlist,
+    NPNParams,
+    Resistor,
+)
+from app.circuit.npn import BETA_REVERSE, saturation_current, thermal_voltage
+from app.design import Design, Topology
+
+#: Node names shared by all forms.
+VCC, COLLECTOR, BASE, EMITTER = "vcc", "c", "b", "e"
+#: Tank corners: t1 faces the output terminal, t2 the other; tl sits between L and C3.
+T1, T2, TL = "t1", "t2", "tl"
+
+#: Which resistor sets the loop gain in each form (the threshold finder's default).
+GAIN_SETTER: Final = {Topology.CE: "RC", Topology.CB: "RC", Topology.CC: "RE"}
+
+#: Which node each form's output is taken at, in words.
+OUTPUT_NODE_LABEL: Final = {
+    Topology.CE: "collector-side tank end (t1)",
+    Topology.CB: "collector-side tank end (t1)",
+    Topology.CC: "emitter-side tank end (t1)",
+}
+
+
+def series(*capacitors: float | None) -> float:
+    """Series combination of the capacitors given (``None`` entries are absent)."""
+    return 1.0 / sum(1.0 / c for c in capacitors if c is not None)
+
+
+@dataclass(frozen=True)
+class TankFigures:
+    """The resonator's hand figures: C_s (F), f_ideal (Hz), R_s (Ω), feedback ratio C1/C2."""
+
+    C_series: float
+    f_ideal: float
+    R_s: float
+    feedback_ratio: float
+
+
+def tank_figures(design: Design) -> TankFigures:
+    t = design.tank
+    C_s = series(t.C1, t.C2, t.C3)
+    w0 = 1.0 / math.sqrt(t.L * C_s)
+    return TankFigures(
+        C_series=C_s,
+        f_ideal=w0 / (2.0 * math.pi),
+        R_s=w0 * t.L / t.Q_L,
+        feedback_ratio=t.C1 / t.C2,
+    )
+
+
+def device_params(design: Design) -> NPNParams:
+    """Transistor parameters at the design's temperature."""
+    d = design.device
+    T = design.temperature_C + 273.15
+    return NPNParams(
+        IS=saturation_current(d.IS, T),
+        beta=d.beta,
+        beta_R=BETA_REVERSE,
+        VA=d.VA,
+        VT=thermal_voltage(T),
+        fT=d.fT,
+        C_mu=d.C_mu,
+    )
+
+
+def ideal_gain(design: Design, gm: float) -> float:
+    r"""Return ratio of the lossless circuit with only the gain-setting resistor.
+
+    Common-emitter :math:`g_m R_C C_1/C_2`; common-base
+    :math:`g_m R_C C_1 C_2/(C_1+C_2)^2` (R_C sits across L, whose voltage is
+    :math:`(C_1+C_2)/C_2` times the collector-emitter voltage); common-collector
+    :math:`g_m R_E C_1/C_2`.  These are the hand-method figures the full
+    model is compared with.
+    """
+    t, b = design.tank, design.bias
+    if design.topology is Topology.CE:
+        assert b.RC is not None
+        return gm * b.RC * t.C1 / t.C2
+    if design.topology is Topology.CB:
+        assert b.RC is not None
+        return gm * b.RC * t.C1 * t.C2 / (t.C1 + t.C2) ** 2
+    return gm * b.RE * t.C1 / t.C2
+
+
+def build(design: Design) -> Netlist:
+    """The netlist of a design in its chosen form."""
+    b, t, k = design.bias, design.tank, design.coupling
+    R_s = tank_figures(design).R_s
+    # In the common-collector form the collector goes straight to the supply.
+    collector = VCC if design.topology is Topology.CC else COLLECTOR
+    q1 = NPN("Q1", collector, BASE, EMITTER, device_params(design))
+    common: list[Element] = [
+        DCSupply("Vcc", VCC, design.supply.Vcc),
+        Resistor("RB1", VCC, BASE, b.RB1),
+        Resistor("RB2", BASE, GROUND, b.RB2),
+        Resistor("RE", EMITTER, GROUND, b.RE),
+        q1,
+    ]
+    # Corners of the triangle: (C1 ends), (C2 ends), (L ends), coupling ends.
+    if design.topology is Topology.CE:
+        c1, c2, lc = (T1, GROUND), (T2, GROUND), (T1, T2)
+        cc1, cc2 = (COLLECTOR, T1), (T2, BASE)
+        assert b.RC is not None and b.CE is not None
+        form: list[Element] = [
+            Resistor("RC", VCC, COLLECTOR, b.RC),
+            Capacitor("CE", EMITTER, GROUND, b.CE),
+        ]
+    elif design.topology is Topology.CB:
+        c1, c2, lc = (T1, T2), (T2, GROUND), (T1, GROUND)
+        cc1, cc2 = (COLLECTOR, T1), (T2, EMITTER)
+        assert b.RC is not None and b.CB is not None
+        form = [
+            Resistor("RC", VCC, COLLECTOR, b.RC),
+            Capacitor("CB", BASE, GROUND, b.CB),
+        ]
+    else:
+        c1, c2, lc = (T1, GROUND), (T2, T1), (T2, GROUND)
+        cc1, cc2 = (EMITTER, T1), (T2, BASE)
+        form = []
+    tank: list[Element] = [
+        Capacitor("C1", *c1, t.C1),
+        Capacitor("C2", *c2, t.C2),
+        Capacitor("Cc1", *cc1, k.Cc1),
+        Capacitor("Cc2", *cc2, k.Cc2),
+    ]
+    if t.C3 is None:
+        tank.append(Inductor("L", *lc, t.L, R_s))
+    else:
+        tank += [Inductor("L", lc[0], TL, t.L, R_s), Capacitor("C3", TL, lc[1], t.C3)]
+    if design.load.R_load is not None:
+        tank.append(Resistor("R_load", T1, GROUND, design.load.R_load))
+    return Netlist(tuple(common + form + tank))

@@ -1,0 +1,152 @@
+"""``ringwise`` command line: analyze, threshold, sweep, serve.
+
+Every command reads a design file and prints JSON in the same contract as the
+web API.  Bad input exits with status 2 and a message naming the field.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+from typing import Any
+
+from pydantic import ValidationError
+
+from app.analysis.analyze import analyze
+from app.analysis.threshold import ParameterError, find_threshold, sweep
+from app.circuit.topologies import GAIN_SETTER
+from app.design import Design
+from app.errors import describe_validation_error
+from app.units import UnitError, parse_quantity
+
+EXIT_BAD_INPUT = 2
+
+
+class BadInputError(Exception):
+    """Input the user must fix; the message says what and where."""
+
+
+def _load(path: str) -> Design:
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except OSError as err:
+        raise BadInputError(f"cannot read {path}: {err.strerror}") from err
+    try:
+        data = json.loads(text)
+    except json.JSONDecodeError as err:
+        raise BadInputError(f"{path} is not JSON: {err.msg} at line {err.lineno}") from err
+    try:
+        return Design.model_validate(data)
+    except ValidationError as err:
+        lines = [f"{item['field']}: {item['message']}" for item in describe_validation_error(err)]
+        raise BadInputError(f"{path} is not a valid design:\n  " + "\n  ".join(lines)) from err
+
+
+def _value(text: str, what: str) -> float:
+    try:
+        return parse_quantity(text)
+    except UnitError as err:
+        raise BadInputError(f"{what}: {err}") from err
+
+
+def _print(data: Any) -> None:
+    json.dump(data, sys.stdout, indent=2, ensure_ascii=False, allow_nan=False)
+    sys.stdout.write("\n")
+
+
+def cmd_analyze(args: argparse.Namespace) -> None:
+    _print(analyze(_load(args.design)).model_dump(mode="json"))
+
+
+def cmd_threshold(args: argparse.Namespace) -> None:
+    design = _load(args.design)
+    param = args.param or GAIN_SETTER[design.topology]
+    try:
+        result = find_threshold(design, param)
+    except ParameterError as err:
+        raise BadInputError(f"--param: {err}") from err
+    _print(
+        {
+            "param": result.param,
+            "value": result.value,
+            "current": result.current,
+            "reason": result.reason,
+        }
+    )
+
+
+def cmd_sweep(args: argparse.Namespace) -> None:
+    design = _load(args.design)
+    start = _value(args.start, "--from")
+    stop = _value(args.stop, "--to")
+    try:
+        result = sweep(design, args.param, start, stop, args.points, args.scale)
+    except ParameterError as err:
+        raise BadInputError(str(err)) from err
+    _print(
+        {
+            "param": result.param,
+            "values": result.values,
+            "f_osc": result.f_osc,
+            "gain": result.gain,
+            "threshold": {
+                "param": result.threshold.param,
+                "value": result.threshold.value,
+                "reason": result.threshold.reason,
+            },
+        }
+    )
+
+
+def cmd_serve(args: argparse.Namespace) -> None:
+    from app.web.server import serve  # imported here: the core needs no web stack
+
+    serve(host=args.host, port=args.port, design=args.design)
+
+
+def parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="ringwise", description="Design sheet for Colpitts-family LC oscillators."
+    )
+    sub = p.add_subparsers(dest="command", required=True)
+
+    a = sub.add_parser("analyze", help="print the full analysis of a design as JSON")
+    a.add_argument("design", help="design JSON file")
+    a.set_defaults(run=cmd_analyze)
+
+    t = sub.add_parser("threshold", help="value of one part at which the loop gain is 1")
+    t.add_argument("design")
+    t.add_argument("--param", help="part to vary (default: the gain-setting resistor)")
+    t.set_defaults(run=cmd_threshold)
+
+    s = sub.add_parser("sweep", help="f_osc and loop gain along one part's value")
+    s.add_argument("design")
+    s.add_argument("--param", required=True)
+    s.add_argument("--from", dest="start", required=True, help="e.g. 100, 2k2, 1n")
+    s.add_argument("--to", dest="stop", required=True)
+    s.add_argument("--points", type=int, default=50)
+    s.add_argument("--scale", choices=["log", "linear"], default=None)
+    s.set_defaults(run=cmd_sweep)
+
+    v = sub.add_parser("serve", help="serve the design sheet on this computer")
+    v.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
+    v.add_argument("--port", type=int, default=8000)
+    v.add_argument("--design", default=None, help="sample design to open with")
+    v.set_defaults(run=cmd_serve)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = parser().parse_args(argv)
+    try:
+        args.run(args)
+    except BadInputError as err:
+        print(f"ringwise: {err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,224 @@
+"""The design model: what a user writes down about one oscillator.
+
+A design file is JSON (``"format": "ringwise.design"``, ``"version": 1``).
+Every value is stored in SI base units; on input a value may also be text with
+an SI prefix or an RKM code (``"2n2"``, ``"39k"``, ``"2.2 nF"``), parsed in
+:mod:`app.units`.  Physical bounds live on the fields, so a bad value is
+refused with a message that names the field, the value and the limit.
+"""
+
+from __future__ import annotations
+
+from enum import Enum
+from typing import Annotated, Any, Final, Literal
+
+from pydantic import (
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    model_validator,
+)
+
+from app.presets import DEVICE_PRESETS
+from app.units import parse_quantity
+
+FORMAT: Final = "ringwise.design"
+VERSION: Final = 1
+
+
+class Topology(str, Enum):
+    """Which transistor terminal is at signal ground."""
+
+    CE = "common-emitter"
+    CB = "common-base"
+    CC = "common-collector"
+
+
+def _si(unit: str) -> BeforeValidator:
+    def parse(value: Any) -> Any:
+        if value is None or isinstance(value, bool):
+            return value
+        if isinstance(value, int | float | str):
+            return parse_quantity(value, unit)
+        return value
+
+    return BeforeValidator(parse)
+
+
+# Bounds are generous on purpose: wide enough for 1 kHz - 1 GHz designs and for
+# the "ideal limit" checks (huge coupling capacitors, huge beta and VA).
+Volts = Annotated[float, _si("V"), Field(gt=0, le=1000, description="volt")]
+Ohms = Annotated[float, _si("Ω"), Field(gt=0, le=1e12, description="ohm")]
+Farads = Annotated[float, _si("F"), Field(gt=0, le=1e3, description="farad")]
+Henries = Annotated[float, _si("H"), Field(gt=0, le=1e3, description="henry")]
+
+
+class _Part(BaseModel):
+    model_config = ConfigDict(extra="forbid", validate_assignment=True)
+
+
+class Supply(_Part):
+    Vcc: Volts = Field(description="Supply voltage, V")
+
+
+class Bias(_Part):
+    RB1: Ohms = Field(description="Base divider, supply side, Ω")
+    RB2: Ohms = Field(description="Base divider, ground side, Ω")
+    RC: Ohms | None = Field(
+        default=None,
+        description="Collector resistor from the supply, Ω (common-emitter and common-base)",
+    )
+    RE: Ohms = Field(description="Emitter resistor to ground, Ω")
+    CE: Farads | None = Field(
+        default=None, description="Emitter bypass capacitor, F (common-emitter form)"
+    )
+    CB: Farads | None = Field(
+        default=None, description="Base bypass capacitor, F (common-base form)"
+    )
+
+
+class Tank(_Part):
+    L: Henries = Field(description="Tank inductance, H")
+    Q_L: Annotated[float, _si(""), Field(gt=0, le=1e6)] = Field(
+        description="Unloaded Q of the inductor at the tank's ideal resonance"
+    )
+    C1: Farads = Field(description="Tank capacitor, collector side (across C-E), F")
+    C2: Farads = Field(description="Tank capacitor, base side (across B-E), F")
+    C3: Farads | None = Field(default=None, description="Clapp capacitor in series with L, F")
+
+
+class Coupling(_Part):
+    Cc1: Farads = Field(description="DC block from the transistor's output terminal to the tank, F")
+    Cc2: Farads = Field(description="DC block from the tank to the transistor's input terminal, F")
+
+
+class Load(_Part):
+    R_load: Ohms | None = Field(default=None, description="Load on the output tank node, Ω")
+
+
+class Device(_Part):
+    preset: str | None = Field(
+        default=None, description="Transistor class the values were taken from (informative)"
+    )
+    beta: Annotated[float, _si(""), Field(ge=1, le=1e9)] = Field(
+        description="Forward current gain β"
+    )
+    IS: Annotated[float, _si("A"), Field(gt=0, le=1e-6)] = Field(
+        description="Transport saturation current at 25 °C, A"
+    )
+    VA: Annotated[float, _si("V"), Field(ge=1, le=1e12)] = Field(description="Early voltage, V")
+    fT: Annotated[float, _si("Hz"), Field(gt=0, le=1e12)] = Field(
+        description="Transition frequency, Hz"
+    )
+    C_mu: Annotated[float, _si("F"), Field(ge=0, le=1e-6)] = Field(
+        description="Base-collector capacitance, F"
+    )
+
+    @model_validator(mode="before")
+    @classmethod
+    def _fill_from_preset(cls, data: Any) -> Any:
+        if isinstance(data, dict) and data.get("preset") is not None:
+            name = data["preset"]
+            if name not in DEVICE_PRESETS:
+                known = ", ".join(sorted(DEVICE_PRESETS))
+                raise ValueError(f"unknown transistor preset {name!r}; known: {known}")
+            return {**DEVICE_PRESETS[name], **data}
+        return data
+
+
+class Design(_Part):
+    """One oscillator design, all values in SI base units."""
+
+    format: Literal["ringwise.design"] = FORMAT
+    version: Literal[1] = VERSION
+    name: str = Field(default="untitled", max_length=200)
+    topology: Topology = Topology.CE
+    supply: Supply
+    bias: Bias
+    tank: Tank
+    coupling: Coupling
+    load: Load = Field(default_factory=Load)
+    device: Device
+    temperature_C: Annotated[float, _si(""), Field(ge=-60, le=200)] = Field(
+        default=25.0, description="Operating temperature, °C"
+    )
+
+    @model_validator(mode="after")
+    def _parts_for_topology(self) -> Design:
+        needs = {
+            Topology.CE: ("RC", "CE"),
+            Topology.CB: ("RC", "CB"),
+            Topology.CC: (),
+        }[self.topology]
+        for part in needs:
+            if getattr(self.bias, part) is None:
+                raise ValueError(f"bias.{part} is required by the {self.topology.value} form")
+        return self
+
+    def unused_parts(self) -> list[str]:
+        """Parts given in the design that the chosen form does not use."""
+        unused = {
+            Topology.CE: ("CB",),
+            Topology.CB: ("CE",),
+            Topology.CC: ("RC", "CE", "CB"),
+        }[self.topology]
+        return [p for p in unused if getattr(self.bias, p) is not None]
+
+
+#: Parameter names usable by the threshold finder and sweeps, mapped to the
+#: section of the design that holds them.
+PARAMETERS: Final[dict[str, str]] = {
+    "Vcc": "supply",
+    "RB1": "bias",
+    "RB2": "bias",
+    "RC": "bias",
+    "RE": "bias",
+    "CE": "bias",
+    "CB": "bias",
+    "L": "tank",
+    "Q_L": "tank",
+    "C1": "tank",
+    "C2": "tank",
+    "C3": "tank",
+    "Cc1": "coupling",
+    "Cc2": "coupling",
+    "R_load": "load",
+    "beta": "device",
+    "IS": "device",
+    "VA": "device",
+    "fT": "device",
+    "C_mu": "device",
+}
+
+
+def get_param(design: Design, name: str) -> float | None:
+    """Value of a named parameter in SI units (``None`` when the part is absent)."""
+    if name == "temperature_C":
+        return design.temperature_C
+    section = _section_of(name)
+    return getattr(getattr(design, section), name)
+
+
+def with_param(design: Design, name: str, value: float) -> Design:
+    """A copy of ``design`` with one parameter changed (validated like any input)."""
+    if name == "temperature_C":
+        return design.model_copy(update={"temperature_C": value})
+    section = _section_of(name)
+    part = getattr(design, section)
+    # model_copy skips validation; construct to keep the bounds in force.
+    new_part = type(part).model_validate({**part.model_dump(), name: value})
+    return design.model_copy(update={section: new_part})
+
+
+def _section_of(name: str) -> str:
+    try:
+        return PARAMETERS[name]
+    except KeyError:
+        known = ", ".join([*PARAMETERS, "temperature_C"])
+        raise ValueError(f"unknown parameter {name!r}; known: {known}") from None
+
+
+def load_design(data: dict[str, Any]) -> Design:
+    """Validate a design document (any supported version) into a :class:`Design`."""
+    return Design.model_validate(data)

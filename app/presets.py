@@ -1,0 +1,42 @@
+"""Generic transistor classes for the device fields.
+
+These are classes of part, not products: the values are typical of the class,
+from memory, and meant as starting points to be replaced by the data of the
+part actually fitted.
+"""
+
+from __future__ import annotations
+
+from typing import Final
+
+#: Typical values, from memory.  Units: beta (1), IS (A at 25 °C), VA (V),
+#: fT (Hz), C_mu (F).
+DEVICE_PRESETS: Final[dict[str, dict[str, float]]] = {
+    "general-purpose": {
+        "beta": 200.0,
+        "IS": 1.0e-14,
+        "VA": 100.0,
+        "fT": 300e6,
+        "C_mu": 3.5e-12,
+    },
+    "rf": {
+        "beta": 100.0,
+        "IS": 2.0e-16,
+        "VA": 40.0,
+        "fT": 5e9,
+        "C_mu": 0.5e-12,
+    },
+    "high-beta-low-noise": {
+        "beta": 450.0,
+        "IS": 2.0e-14,
+        "VA": 80.0,
+        "fT": 150e6,
+        "C_mu": 4.5e-12,
+    },
+}
+
+DEVICE_PRESET_LABELS: Final[dict[str, str]] = {
+    "general-purpose": "General-purpose small-signal NPN",
+    "rf": "RF NPN (multi-GHz fT)",
+    "high-beta-low-noise": "High-beta low-noise NPN",
+}

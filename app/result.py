@@ -1,0 +1,125 @@
+"""The result contract: what ``ringwise analyze`` prints and ``POST /api/analyze`` returns.
+
+SI base units throughout.  Every number is finite or ``null``: a quantity that
+does not exist (no oscillation frequency, an infinite r_o) is ``null`` and the
+warnings say why.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+
+
+def _finite_or_none(value: Any) -> Any:
+    if value is None:
+        return None
+    number = float(value)
+    return number if math.isfinite(number) else None
+
+
+#: A float that is ``null`` in JSON whenever it is not finite.
+Num = Annotated[float | None, BeforeValidator(_finite_or_none)]
+
+
+class _Out(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class OperatingPointOut(_Out):
+    VB: Num = Field(description="Base voltage, V")
+    VE: Num = Field(description="Emitter voltage, V")
+    VC: Num = Field(description="Collector voltage, V")
+    IC: Num = Field(description="Collector current, A")
+    IB: Num = Field(description="Base current, A")
+    VCE: Num = Field(description="Collector-emitter voltage, V")
+    VBE: Num = Field(description="Base-emitter voltage, V (computed, never assumed)")
+    P_device: Num = Field(description="Transistor dissipation, W")
+    I_divider: Num = Field(description="Current in the lower divider resistor RB2, A")
+    region: Literal["active", "saturation", "cut-off"]
+
+
+class SmallSignalOut(_Out):
+    gm: Num = Field(description="Transconductance, S")
+    r_pi: Num = Field(description="Base input resistance, Ω")
+    r_o: Num = Field(description="Output resistance, Ω (null when infinite)")
+    C_pi: Num = Field(description="Base-emitter capacitance, F")
+    C_mu: Num = Field(description="Base-collector capacitance, F")
+
+
+class TankOut(_Out):
+    C_series: Num = Field(description="Series combination of C1, C2 (and C3), F")
+    f_ideal: Num = Field(description="1/(2π√(L·C_series)), Hz")
+    feedback_ratio: Num = Field(description="C1/C2 = |v_be / v_ce| of the ideal tank")
+    R_s: Num = Field(description="Inductor series loss ω0·L/Q_L, Ω")
+    output_node: str = Field(description="Where the output and the load are taken")
+
+
+class BudgetLineOut(_Out):
+    element: str
+    label: str
+    gain_without: Num = Field(description="Loop gain with this element made ideal")
+    f_without: Num = Field(description="Oscillation frequency with this element made ideal, Hz")
+    cost_dB: Num = Field(description="20·log10(gain_without / gain), dB")
+    share: Num = Field(description="Fraction of the total positive cost")
+
+
+class LoopOut(_Out):
+    f_osc: Num = Field(description="Zero-phase frequency of the return ratio, Hz")
+    gain: Num = Field(description="|T(f_osc)|: loop gain with all loading")
+    gain_ideal: Num = Field(description="Hand-method loop gain (lossless, gain resistor only)")
+    phase_slope: Num = Field(description="dφ/dω of T at f_osc, s")
+    Q_loaded: Num = Field(description="(ω/2)·|dφ/dω|")
+    Z_out: Num = Field(description="|v_ce/i_t| at f_osc: load seen by the controlled source, Ω")
+    budget: list[BudgetLineOut]
+
+
+class PoleOut(_Out):
+    sigma: Num = Field(description="Real part, 1/s (positive grows)")
+    f: Num = Field(description="Imaginary part / 2π, Hz")
+
+
+class PolesOut(_Out):
+    sigma: Num = Field(description="Real part of the dominant pair, 1/s")
+    f: Num = Field(description="Frequency of the dominant pair, Hz")
+    growth_time: Num = Field(description="1/σ when σ > 0: envelope time constant, s")
+    other_rhp: list[PoleOut]
+
+
+class StartupOut(_Out):
+    verdict: Literal["will-start", "marginal", "will-not-start", "overdriven"]
+    label: str
+    margin: Num = Field(description="Loop gain over the threshold of 1 (a factor)")
+    margin_dB: Num = Field(description="20·log10(margin), dB")
+    threshold_param: str = Field(description="Part the threshold was searched on")
+    threshold_value: Num = Field(description="Its value at loop gain 1")
+    threshold_RC: Num = Field(description="Collector resistor at loop gain 1 (null without RC)")
+
+
+class WarningOut(_Out):
+    code: str
+    message: str
+
+
+class SwingOut(_Out):
+    V_be: Num = Field(description="Base-emitter fundamental amplitude, V (fixed-bias estimate)")
+    V_ce: Num = Field(
+        description="Collector-emitter fundamental amplitude, V (fixed-bias estimate)"
+    )
+
+
+class Result(_Out):
+    format: Literal["ringwise.result"] = "ringwise.result"
+    version: Literal[1] = 1
+    name: str
+    topology: str
+    operating_point: OperatingPointOut
+    small_signal: SmallSignalOut
+    tank: TankOut
+    loop: LoopOut
+    poles: PolesOut
+    startup: StartupOut
+    swing: SwingOut
+    warnings: list[WarningOut]
