@@ -20,7 +20,7 @@ __all__ = ["UnitError", "format_si", "parse_quantity"]
 #: An RKM code: digits, one multiplier letter standing for the decimal point,
 #: digits, then an optional unit.  ``e``/``E`` are deliberately not multipliers
 #: here, so that ``1e3`` stays scientific notation.
-_RKM = re.compile(r"^\d+[pnuµmRrkKMGT]\d+[A-Za-zΩ]*$")
+_RKM = re.compile(r"^(\d*)[pnuµmRrkKMGT]\d+[A-Za-zΩ]*$")
 
 #: Spellings of the ohm that users type and quantiphy does not know.
 _OHM_WORDS = re.compile(r"\s*(ohms?|Ohms?|OHMS?)$")
@@ -64,13 +64,15 @@ def _parse_text(text: str, unit: str) -> float:
     stripped = _OHM_WORDS.sub("Ω", text.strip())
     if not stripped:
         raise UnitError("empty text is not a number")
-    if _RKM.match(stripped):
-        quantity = from_rkm(stripped)
+    sign = -1.0 if stripped[0] == "-" else 1.0
+    body = stripped[1:].strip() if stripped[0] in "+-" else stripped
+    if _RKM.match(body):
+        quantity = from_rkm(body if body[0].isdigit() else "0" + body)
         if quantity is None:  # pragma: no cover - the regex admits only codes it reads
             raise UnitError(f"{text!r} is not a valid RKM code")
-        trailing = re.sub(r"^\d+[pnuµmRrkKMGT]\d+", "", stripped)
+        trailing = re.sub(r"^\d*[pnuµmRrkKMGT]\d+", "", body)
         _check_unit(text, trailing, unit)
-        return float(quantity)
+        return sign * float(quantity)
     try:
         quantity = Quantity(stripped)
     except InvalidNumber as err:

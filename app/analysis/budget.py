@@ -22,7 +22,7 @@ import numpy as np
 
 from app.analysis.loop import find_oscillation
 from app.analysis.operating import Solved
-from app.circuit.mna import SmallSignal, assemble, small_signal
+from app.circuit.mna import SmallSignal, restamp, small_signal
 from app.circuit.netlist import Capacitor, Inductor, Netlist, Resistor
 from app.circuit.npn import HybridPi
 
@@ -77,20 +77,24 @@ def budget_items(netlist: Netlist, gain_setter: str) -> list[BudgetItem]:
     return items
 
 
-def _idealise(netlist: Netlist, parts: tuple[str, ...]) -> Netlist:
+def _ideal_values(netlist: Netlist, parts: tuple[str, ...]) -> dict[str, dict[str, float]]:
+    """New field values that make each named part ideal."""
+    changes: dict[str, dict[str, float]] = {}
     for name in parts:
         el = netlist[name]
         if isinstance(el, Resistor):
-            netlist = netlist.replace(name, R=math.inf)
+            changes[name] = {"R": math.inf}
         elif isinstance(el, Capacitor):
-            netlist = netlist.replace(name, C=el.C * SHORT_FACTOR)
+            changes[name] = {"C": el.C * SHORT_FACTOR}
         elif isinstance(el, Inductor):
-            netlist = netlist.replace(name, R_s=0.0)
-    return netlist
+            changes[name] = {"R_s": 0.0}
+    return changes
 
 
 def _variant(solved: Solved, item: BudgetItem) -> SmallSignal:
-    system = solved.system if not item.parts else assemble(_idealise(solved.netlist, item.parts))
+    system = solved.system
+    if item.parts:
+        system = restamp(system, solved.netlist, _ideal_values(solved.netlist, item.parts))
     hp: HybridPi = dataclasses.replace(solved.hybrid, **item.hybrid)
     return small_signal(system, hp)
 

@@ -110,8 +110,10 @@ def refine_crossing(
     alive = np.ones(f.shape, dtype=bool)
     done = np.zeros(f.shape, dtype=bool)
     prev_step = np.full(f.shape, np.inf)
+    last = None
     for _ in range(NEWTON_STEPS):
-        T, dT_ds, _x = return_ratio_slope(ss, TWO_PI * 1j * f)
+        T, dT_ds, x = return_ratio_slope(ss, TWO_PI * 1j * f)
+        last = (f, T, dT_ds, x)
         slope = dT_ds.real  # d(Im T)/dω = Im(j dT/ds) = Re(dT/ds)
         bad = (slope >= 0) | (T.real <= 0)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -129,12 +131,23 @@ def refine_crossing(
         if np.all(done | ~alive):
             break
     ok = done & alive
-    return _figures(ss, np.where(ok, f, np.nan))
+    assert last is not None
+    f_last, T, dT_ds, x = last
+    # The figures of the last evaluation: its frequency is within the tolerance
+    # of the converged one, so no further solve is needed.
+    return _figures_from(ss, np.where(ok, f_last, np.nan), T, dT_ds, x)
 
 
 def _figures(ss: SmallSignal, f_osc: np.ndarray) -> LoopFigures:
     w = TWO_PI * np.nan_to_num(f_osc, nan=1.0)
     T, dT_ds, x = return_ratio_slope(ss, 1j * w)
+    return _figures_from(ss, f_osc, T, dT_ds, x)
+
+
+def _figures_from(
+    ss: SmallSignal, f_osc: np.ndarray, T: np.ndarray, dT_ds: np.ndarray, x: np.ndarray
+) -> LoopFigures:
+    w = TWO_PI * np.nan_to_num(f_osc, nan=1.0)
     slope = (dT_ds / T).real  # dφ/dω = Im((dT/dω)/T), dT/dω = j dT/ds
     nan = ~np.isfinite(f_osc)
 

@@ -7,8 +7,16 @@ at each trial value, so a resistor that also moves the bias is treated fully.
 
 The search works on ln(gain) against ln(value), where most parts act nearly
 as a power law: secant steps from the current value, then bracketing with
-Brent's method if the secant cannot settle.  The crossing nearest the
-current value is the one reported.
+Brent's method if the secant cannot settle.
+
+Which crossing is reported: for parts whose increase raises the loop gain
+(the collector resistor, the coil's Q, the load resistor, β ...) the
+threshold is the *lowest* value at which the loop gain reaches one — the
+value at which the oscillator first starts as the part is turned up, even
+when the current value sits beyond a gain maximum (a collector resistor so
+large that the transistor nears saturation).  For any other part it is the
+crossing reached by following the local trend of the loop gain from the
+current value.
 """
 
 from __future__ import annotations
@@ -27,8 +35,8 @@ from app.design import Design, get_param, with_param
 
 #: The threshold is sought within value / RANGE … value · RANGE.
 SEARCH_RANGE: Final = 1e4
-#: |ln gain| below this counts as exactly at threshold (gain within 1e-9).
-LOG_GAIN_TOL: Final = 1e-9
+#: |ln gain| below this counts as exactly at threshold (gain within 1e-8).
+LOG_GAIN_TOL: Final = 1e-8
 SECANT_STEPS: Final = 12
 #: Largest secant step, in ln(value) (one decade).
 MAX_STEP: Final = math.log(10.0)
@@ -46,6 +54,11 @@ MAX_SWEEP_POINTS: Final = 1000
 #: Parameters that act on a linear scale (all others are positive and swept
 #: and searched on a log scale).
 LINEAR_PARAMS: Final = frozenset({"temperature_C"})
+#: Parameters whose increase raises the loop gain on the branch that matters:
+#: their threshold is the lowest value at which the loop gain reaches one.
+RISING_PARAMS: Final = frozenset({"RC", "Q_L", "R_load", "beta", "VA", "fT"})
+#: Step used to read the local slope of ln(gain), in ln(value).
+SLOPE_STEP: Final = math.log(1.05)
 
 
 class ParameterError(ValueError):
@@ -115,9 +128,12 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
     trials.seen[x0] = g0
     if abs(g0) <= LOG_GAIN_TOL:
         return Threshold(param, value, value)
-    root = _secant(trials, x0, g0)
-    if root is None:
-        root = _bracket(trials, x0)
+    if param in RISING_PARAMS:
+        root = _rising_root(trials, x0, g0)
+    else:
+        root = _secant(trials, x0, g0)
+        if root is None:
+            root = _bracket(trials, x0)
     if root is None:
         return Threshold(
             param,
@@ -135,7 +151,11 @@ def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
     """Damped secant on ln(gain) against ln(value): at most a decade per step,
     halved back toward the last good point when a trial has no loop."""
     lo, hi = x0 - math.log(SEARCH_RANGE), x0 + math.log(SEARCH_RANGE)
-    x1 = x0 + math.log(FIRST_STEP)
+    # First trial: where the root would be if gain were proportional to the value
+    # (exact for the gain-setting resistor of a lossless circuit).
+    x1 = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
+    if abs(x1 - x0) < math.log(FIRST_STEP):
+        x1 = x0 + math.log(FIRST_STEP)
     g1 = trials.log_gain(x1)
     for _ in range(SECANT_STEPS):
         if not (_usable(g0) and _usable(g1)) or g1 == g0:
@@ -154,6 +174,42 @@ def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
         if abs(g2) <= LOG_GAIN_TOL:
             return x2
         x0, g0, x1, g1 = x1, g1, x2, g2
+    return None
+
+
+def _rising_root(trials: _Trials, x0: float, g0: float) -> float | None:
+    """Lowest crossing on the branch where ln(gain) rises with ln(value)."""
+    floor = x0 - math.log(SEARCH_RANGE)
+    x, g = x0, g0
+    # Walk down by halving the value until the loop gain rises with the value.
+    while True:
+        g_up = trials.log_gain(x + SLOPE_STEP)
+        if _usable(g) and _usable(g_up) and g_up > g:
+            break
+        x -= math.log(2.0)
+        if x < floor:
+            return None
+        g = trials.log_gain(x)
+    root = _secant(trials, x, g)
+    if root is not None:
+        if g > 0 and root <= x + SLOPE_STEP:
+            return root  # it starts here: the crossing below is on this branch
+        if g < 0 and root > x and trials.log_gain(root + SLOPE_STEP) > 0:
+            return root  # it does not start here: the crossing above, still rising
+    # Bracket along the rising branch: downward when it starts here, upward if not.
+    step = math.log(2.0) if g < 0 else -math.log(2.0)
+    prev_x, prev_g = x, g
+    for _ in range(int(math.log(SEARCH_RANGE) / math.log(2.0)) + 1):
+        nx = prev_x + step
+        ng = trials.log_gain(nx)
+        if not _usable(ng):
+            return None
+        if (ng > 0) != (prev_g > 0):
+            a, b = sorted((prev_x, nx))
+            return brentq(_finite(trials), a, b, xtol=1e-12, rtol=1e-12)
+        if step > 0 and ng < prev_g:
+            return None  # passed the gain maximum without reaching one
+        prev_x, prev_g = nx, ng
     return None
 
 

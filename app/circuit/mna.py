@@ -22,6 +22,7 @@ IEEE Trans. Circuits and Systems, 1975 (from memory).
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -132,6 +133,37 @@ def assemble(netlist: Netlist) -> LinearSystem:
         else:  # pragma: no cover - the Element union is closed
             raise TypeError(f"unknown element {el!r}")
     return LinearSystem(lay, G, C, b, tuple(devices))
+
+
+def _stamp_linear(G: np.ndarray, C: np.ndarray, lay: Layout, el, sign: float) -> None:
+    """Add (sign = +1) or remove (sign = -1) the stamp of one linear element's values."""
+    if isinstance(el, Resistor):
+        if np.isfinite(el.R):
+            _stamp_pair(G, lay, el.a, el.b, sign / el.R)
+    elif isinstance(el, Capacitor):
+        _stamp_pair(C, lay, el.a, el.b, sign * el.C)
+    elif isinstance(el, Inductor):
+        k = lay.branch[el.name]
+        G[k, k] -= sign * el.R_s
+        C[k, k] -= sign * el.L
+    else:
+        raise TypeError(f"{el.name} is not a linear two-terminal element")
+
+
+def restamp(
+    system: LinearSystem, old: Netlist, changes: dict[str, dict[str, float]]
+) -> LinearSystem:
+    """The system of ``old`` with some R, C or L values changed, without re-assembly.
+
+    ``changes`` maps element names to new field values, e.g.
+    ``{"RB1": {"R": inf}, "L": {"R_s": 0.0}}``; node connections stay the same.
+    """
+    G, C = system.G.copy(), system.C.copy()
+    for name, fields in changes.items():
+        el = old[name]
+        _stamp_linear(G, C, system.layout, el, -1.0)
+        _stamp_linear(G, C, system.layout, dataclasses.replace(el, **fields), +1.0)
+    return LinearSystem(system.layout, G, C, system.b, system.devices)
 
 
 def device_voltages(lay: Layout, dev: NPN, x: np.ndarray) -> tuple[float, float]:

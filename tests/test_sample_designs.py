@@ -1,0 +1,41 @@
+"""Every sample design is a buildable design that starts with a sensible margin."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import pytest
+
+from app.analysis.analyze import analyze
+from tests.conftest import load_sample, sample_paths
+
+
+def _finite_or_null(value) -> bool:
+    if isinstance(value, dict):
+        return all(_finite_or_null(v) for v in value.values())
+    if isinstance(value, list):
+        return all(_finite_or_null(v) for v in value)
+    if isinstance(value, float):
+        return math.isfinite(value)
+    return True
+
+
+def test_there_are_samples_of_every_form() -> None:
+    forms = {load_sample(p).topology.value for p in sample_paths()}
+    assert forms == {"common-emitter", "common-base", "common-collector"}
+    assert any(load_sample(p).tank.C3 is not None for p in sample_paths())
+
+
+@pytest.mark.parametrize("path", sample_paths(), ids=lambda p: p.name)
+def test_sample_starts_with_margin(path) -> None:
+    r = analyze(load_sample(path))
+    assert r.operating_point.region == "active"
+    # Margin: loop gain 3-8 (target 3 is common practice, no source).
+    assert 3.0 <= r.loop.gain <= 8.0
+    assert r.startup.verdict == "will-start"
+    assert r.poles.sigma > 0
+    assert abs(r.loop.f_osc / r.tank.f_ideal - 1) < 0.02
+    assert r.warnings == []
+    data = json.loads(r.model_dump_json())
+    assert _finite_or_null(data)
