@@ -1,0 +1,132 @@
+"""Plot data for the sheet, computed on the server so the browser only draws.
+
+Nothing here writes a circuit equation: the loop curve evaluates the core's
+return ratio :func:`app.analysis.loop.return_ratio` over the core's solved
+small-signal circuit, the what-if curve is the core's sweep, and the
+reactance chart is the defining relation of an ideal part,
+:math:`X_L = \\omega L` and :math:`X_C = 1/(\\omega C)`.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Final
+
+import numpy as np
+
+from app.analysis.loop import return_ratio
+from app.analysis.operating import Solved
+from app.analysis.threshold import LINEAR_PARAMS, sweep
+from app.design import PARAMETERS, Design, get_param
+from app.web.fields import BY_NAME
+
+TWO_PI: Final = 2.0 * math.pi
+#: The loop curve spans f_ideal / LOOP_SPAN ... f_ideal · LOOP_SPAN.
+LOOP_SPAN: Final = 4.0
+LOOP_POINTS: Final = 161
+#: Extra points packed around f_osc, over ± LOOP_DENSE_WIDTHS resonance widths f/Q.
+LOOP_DENSE_POINTS: Final = 120
+LOOP_DENSE_WIDTHS: Final = 4.0
+#: The reactance chart spans f_ideal / REACTANCE_SPAN ... f_ideal · REACTANCE_SPAN.
+REACTANCE_SPAN: Final = 10.0
+REACTANCE_POINTS: Final = 61
+#: What-if sweep: points, and the span around the current value and the threshold.
+SWEEP_POINTS: Final = 25
+SWEEP_MARGIN: Final = 3.0
+SWEEP_DEFAULT_SPAN: Final = 10.0
+#: Widest what-if sweep, as a ratio stop/start (the threshold search's own range).
+SWEEP_MAX_RATIO: Final = 1e4
+
+
+def _finite(values: np.ndarray) -> list[float | None]:
+    return [float(v) if math.isfinite(v) else None for v in values]
+
+
+def loop_curve(solved: Solved) -> dict[str, Any]:
+    """|T(j2πf)| and its phase (degrees, unwrapped) around the tank's resonance."""
+    f0 = solved.tank.f_ideal
+    f = np.geomspace(f0 / LOOP_SPAN, f0 * LOOP_SPAN, LOOP_POINTS)
+    f_osc = solved.f_osc
+    q = float(solved.loop.Q_loaded)
+    if f_osc is not None and math.isfinite(q) and q > 0:
+        width = min(LOOP_DENSE_WIDTHS / q, 0.5)
+        dense = np.linspace(f_osc * (1 - width), f_osc * (1 + width), LOOP_DENSE_POINTS)
+        f = np.unique(np.concatenate([f, dense[dense > 0], [f_osc]]))
+    T = return_ratio(solved.ss, TWO_PI * 1j * f)
+    phase = np.degrees(np.unwrap(np.angle(T)))
+    # keep 0° at the oscillation frequency (unwrapping may shift by whole turns)
+    if f_osc is not None:
+        k = int(np.argmin(np.abs(f - f_osc)))
+        phase -= 360.0 * round(phase[k] / 360.0)
+    return {
+        "f": _finite(f),
+        "magnitude": _finite(np.abs(T)),
+        "phase_deg": _finite(phase),
+        "f_osc": f_osc,
+        "f_ideal": f0,
+        "gain": solved.gain if f_osc is not None else None,
+    }
+
+
+def reactance_curves(design: Design, C_series: float, f_ideal: float) -> dict[str, Any]:
+    """X_L = ωL and X_C = 1/(ωC) of the tank's parts, Ω, against frequency."""
+    f = np.geomspace(f_ideal / REACTANCE_SPAN, f_ideal * REACTANCE_SPAN, REACTANCE_POINTS)
+    w = TWO_PI * f
+    t = design.tank
+    lines = [{"part": "L", "label": "L", "X": _finite(w * t.L)}]
+    for part in ("C1", "C2", "C3"):
+        C = getattr(t, part)
+        if C is not None:
+            lines.append({"part": part, "label": part, "X": _finite(1.0 / (w * C))})
+    series = "C1, C2" + (", C3" if t.C3 is not None else "") + " in series"
+    lines.append({"part": "C_series", "label": series, "X": _finite(1.0 / (w * C_series))})
+    return {"f": _finite(f), "lines": lines, "f_ideal": f_ideal}
+
+
+def sweepable(design: Design) -> list[str]:
+    """Parameters of this design a what-if sweep can run over (present, log-scaled)."""
+    return [p for p in PARAMETERS if p not in LINEAR_PARAMS and (get_param(design, p) or 0) > 0]
+
+
+def sweep_range(current: float, threshold: float | None) -> tuple[float, float]:
+    """A span showing the current value and, when known, the threshold, with room either side."""
+    if threshold is None or not math.isfinite(threshold) or threshold <= 0:
+        return current / SWEEP_DEFAULT_SPAN, current * SWEEP_DEFAULT_SPAN
+    lo = min(current, threshold) / SWEEP_MARGIN
+    hi = max(current, threshold) * SWEEP_MARGIN
+    if hi / lo > SWEEP_MAX_RATIO:
+        # keep the current value in view; the threshold may fall outside
+        lo = max(lo, current / math.sqrt(SWEEP_MAX_RATIO))
+        hi = min(hi, current * math.sqrt(SWEEP_MAX_RATIO))
+    return lo, hi
+
+
+def what_if(design: Design, param: str, threshold_hint: float | None) -> dict[str, Any]:
+    """Loop gain and f_osc along ``param`` (the core's sweep), with its threshold."""
+    current = get_param(design, param)
+    assert current is not None  # callers pass a sweepable parameter
+    lo, hi = sweep_range(current, threshold_hint)
+    s = sweep(design, param, lo, hi, SWEEP_POINTS, "log")
+    return {
+        "param": param,
+        "unit": BY_NAME[param].unit,
+        "values": s.values,
+        "gain": s.gain,
+        "f_osc": s.f_osc,
+        "current": current,
+        "threshold": s.threshold.value,
+        "threshold_reason": s.threshold.reason,
+    }
+
+
+def budget_bars(budget: list[dict[str, Any]]) -> dict[str, Any]:
+    """The loop-gain budget sorted by cost, largest first, for a horizontal bar chart."""
+    lines = sorted(
+        (b for b in budget if b["cost_dB"] is not None), key=lambda b: b["cost_dB"], reverse=True
+    )
+    return {
+        "labels": [b["label"] for b in lines],
+        "elements": [b["element"] for b in lines],
+        "cost_dB": [b["cost_dB"] for b in lines],
+        "share": [b["share"] for b in lines],
+    }

@@ -1,0 +1,144 @@
+"""One error shape for every API error, and the handlers that produce it.
+
+Every error answer of the API, whatever its cause, has exactly this body::
+
+    {"status": 422, "error": "invalid-input",
+     "message": "tank.C2: must be greater than 0, got '-1'",
+     "problems": [{"field": "tank.C2", "message": "must be ...", "type": "greater_than"}]}
+
+``problems`` uses :func:`app.errors.describe_validation_error`'s shape, so a
+field is named by its dotted path in the request body.  Domain errors of the
+core (``ValueError`` and ``ArithmeticError`` subclasses such as ``UnitError``,
+``ParameterError`` or a DC solve that does not converge) are input the user
+can change, so they answer 422, never 500.
+"""
+
+from __future__ import annotations
+
+import logging
+from http import HTTPStatus
+from typing import Any
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import JSONResponse
+from pydantic import ValidationError
+from starlette.exceptions import HTTPException as StarletteHTTPException
+
+from app.errors import describe_validation_error
+
+log = logging.getLogger("ringwise.web")
+
+#: Machine-readable names of the HTTP statuses the API answers with.
+ERROR_NAMES = {
+    400: "bad-request",
+    404: "not-found",
+    405: "method-not-allowed",
+    413: "too-large",
+    422: "invalid-input",
+    500: "internal-error",
+}
+
+
+class ApiError(Exception):
+    """An error answer: status, summary message and field-named problems."""
+
+    def __init__(self, status: int, message: str, problems: list[dict] | None = None) -> None:
+        super().__init__(message)
+        self.status = status
+        self.message = message
+        self.problems = problems or []
+
+
+def invalid(field: str, message: str, kind: str = "value_error") -> ApiError:
+    """A 422 naming one field."""
+    return ApiError(422, f"{field}: {message}", [problem(field, message, kind)])
+
+
+def problem(field: str, message: str, kind: str) -> dict[str, str]:
+    return {"field": field, "message": message, "type": kind}
+
+
+def from_validation(err: ValidationError, prefix: tuple[str, ...] = ()) -> ApiError:
+    """A 422 from a pydantic ``ValidationError`` raised while validating a request part."""
+    return _from_problems(describe_validation_error(err, prefix))
+
+
+def _from_problems(problems: list[dict]) -> ApiError:
+    first = problems[0] if problems else problem("request", "is not valid", "value_error")
+    more = f" (and {len(problems) - 1} more)" if len(problems) > 1 else ""
+    return ApiError(422, f"{first['field']}: {first['message']}{more}", problems)
+
+
+def error_body(status: int, message: str, problems: list[dict]) -> dict[str, Any]:
+    return {
+        "status": status,
+        "error": ERROR_NAMES.get(status, HTTPStatus(status).phrase.lower().replace(" ", "-")),
+        "message": message,
+        "problems": problems,
+    }
+
+
+def _respond(err: ApiError) -> JSONResponse:
+    return JSONResponse(error_body(err.status, err.message, err.problems), status_code=err.status)
+
+
+class _RequestErrors:
+    """Lets :func:`describe_validation_error` read FastAPI's request errors."""
+
+    def __init__(self, errors: list[dict]) -> None:
+        self._errors = errors
+
+    def errors(self, include_url: bool = False) -> list[dict]:
+        out = []
+        for e in self._errors:
+            loc = tuple(e.get("loc", ()))
+            if loc and loc[0] in ("body", "query", "path"):
+                loc = loc[1:]
+            out.append({**e, "loc": loc})
+        return out
+
+
+def _request_problems(exc: RequestValidationError) -> list[dict]:
+    problems = describe_validation_error(_RequestErrors(list(exc.errors())))  # type: ignore[arg-type]
+    for p in problems:
+        if p["type"] == "json_invalid":
+            p["field"] = "body"
+            p["message"] = "is not valid JSON"
+        elif p["field"] in ("design", "req") and p["type"] in ("missing", "model_attributes_type"):
+            p["field"] = "body"
+            p["message"] = "must be a JSON object sent as application/json"
+    return problems
+
+
+def install(app: FastAPI) -> None:
+    """Register the handlers that give every error the one shape."""
+
+    @app.exception_handler(ApiError)
+    async def _api_error(request: Request, exc: ApiError) -> JSONResponse:
+        return _respond(exc)
+
+    @app.exception_handler(RequestValidationError)
+    async def _request_invalid(request: Request, exc: RequestValidationError) -> JSONResponse:
+        return _respond(_from_problems(_request_problems(exc)))
+
+    @app.exception_handler(ValidationError)
+    async def _model_invalid(request: Request, exc: ValidationError) -> JSONResponse:
+        return _respond(from_validation(exc))
+
+    @app.exception_handler(ValueError)
+    @app.exception_handler(ArithmeticError)
+    async def _domain(request: Request, exc: Exception) -> JSONResponse:
+        return _respond(invalid("design", str(exc) or type(exc).__name__, "domain_error"))
+
+    @app.exception_handler(StarletteHTTPException)
+    async def _http(request: Request, exc: StarletteHTTPException) -> JSONResponse:
+        detail = exc.detail if isinstance(exc.detail, str) else HTTPStatus(exc.status_code).phrase
+        if exc.status_code == 404 and detail == "Not Found":
+            detail = f"nothing here: {request.url.path}"
+        return _respond(ApiError(exc.status_code, detail))
+
+    @app.exception_handler(Exception)
+    async def _bug(request: Request, exc: Exception) -> JSONResponse:  # pragma: no cover
+        log.exception("unexpected error answering %s", request.url.path)
+        return _respond(ApiError(500, "unexpected server error; please report it"))

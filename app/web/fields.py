@@ -1,0 +1,369 @@
+"""The sheet's form: one text field per design field, and its conversions.
+
+The form is flat (``L``, ``C1``, ``RB2``, ``topology``, ...), the design
+document is nested by section (``tank.L``).  This module maps between the
+two, between the form and the share-link query string, and checks each
+field on its own with the core's own validators (so a bad value is flagged
+beside its field even while another field is also wrong).  Which section a
+parameter lives in comes from :data:`app.design.PARAMETERS`; bounds, units
+of parsing and which parts are optional come from the core's models.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
+from typing import Annotated, Any, Final
+
+from pydantic import TypeAdapter, ValidationError
+
+from app.design import FORMAT, PARAMETERS, VERSION, Design, Topology
+from app.errors import describe_validation_error
+from app.presets import DEVICE_PRESET_LABELS, DEVICE_PRESETS
+from app.units import format_si
+
+
+@dataclass(frozen=True)
+class FormField:
+    """One input of the sheet.
+
+    ``unit`` is the display unit (parsing is the core's), ``slider`` whether
+    a log-scale slider sits beside it.
+    """
+
+    name: str
+    group: str
+    label: str
+    unit: str = ""
+    slider: bool = False
+    kind: str = "quantity"  # "quantity", "text" or "choice"
+
+    @property
+    def section(self) -> str | None:
+        """The design section holding the field (``None`` for top-level fields)."""
+        if self.name == "preset":
+            return "device"
+        return PARAMETERS.get(self.name)
+
+    @property
+    def path(self) -> str:
+        return f"{self.section}.{self.name}" if self.section else self.name
+
+    @property
+    def optional(self) -> bool:
+        return not _field_info(self).is_required()
+
+
+#: Input groups in page order: key, heading.
+GROUPS: Final = (
+    ("identity", "Design"),
+    ("tank", "Tank"),
+    ("bias", "Bias"),
+    ("transistor", "Transistor"),
+    ("load", "Coupling and load"),
+    ("conditions", "Conditions"),
+)
+
+#: Every input, in page order (the share link lists them in this order too).
+FIELDS: Final[tuple[FormField, ...]] = (
+    FormField("name", "identity", "Name", kind="text"),
+    FormField("topology", "identity", "Form (grounded terminal)", kind="choice"),
+    FormField("L", "tank", "L, inductance", "H", slider=True),
+    FormField("C1", "tank", "C1, across collector–emitter", "F", slider=True),
+    FormField("C2", "tank", "C2, across base–emitter", "F", slider=True),
+    FormField("C3", "tank", "C3, Clapp, in series with L (blank: none)", "F"),
+    FormField("Q_L", "tank", "Q_L, coil's unloaded Q", "", slider=True),
+    FormField("RB1", "bias", "RB1, divider to supply", "Ω", slider=True),
+    FormField("RB2", "bias", "RB2, divider to ground", "Ω", slider=True),
+    FormField("RC", "bias", "RC, collector resistor", "Ω", slider=True),
+    FormField("RE", "bias", "RE, emitter resistor", "Ω", slider=True),
+    FormField("CE", "bias", "CE, emitter bypass", "F"),
+    FormField("CB", "bias", "CB, base bypass", "F"),
+    FormField("preset", "transistor", "Class (fills the values below)", kind="choice"),
+    FormField("beta", "transistor", "β, current gain", ""),
+    FormField("IS", "transistor", "I_S, saturation current at 25 °C", "A"),
+    FormField("VA", "transistor", "V_A, Early voltage", "V"),
+    FormField("fT", "transistor", "f_T, transition frequency", "Hz"),
+    FormField("C_mu", "transistor", "C_μ, base–collector capacitance", "F"),
+    FormField("Cc1", "load", "Cc1, DC block at the output terminal", "F"),
+    FormField("Cc2", "load", "Cc2, DC block at the input terminal", "F"),
+    FormField("R_load", "load", "R_load, load on the output (blank: none)", "Ω"),
+    FormField("Vcc", "conditions", "Vcc, supply", "V"),
+    FormField("temperature_C", "conditions", "Temperature", "°C"),
+)
+
+BY_NAME: Final = {f.name: f for f in FIELDS}
+#: Query parameter that opens a sample design (fields given beside it override it).
+SAMPLE_PARAM: Final = "design"
+
+TOPOLOGY_LABELS: Final = {
+    Topology.CE.value: "common-emitter (emitter at signal ground)",
+    Topology.CB.value: "common-base (base at signal ground)",
+    Topology.CC.value: "common-collector (collector at signal ground)",
+}
+
+
+def _field_info(field: FormField):
+    if field.section is None:
+        return Design.model_fields[field.name]
+    section_model = Design.model_fields[field.section].annotation
+    return section_model.model_fields[field.name]
+
+
+def _adapter(field: FormField) -> TypeAdapter:
+    info = _field_info(field)
+    if not info.metadata:
+        return TypeAdapter(info.annotation)
+    return TypeAdapter(Annotated[info.annotation, *info.metadata])
+
+
+_ADAPTERS: Final = {f.name: _adapter(f) for f in FIELDS if f.name != "preset"}
+
+
+def choices(field: FormField) -> list[tuple[str, str]]:
+    """(value, label) of a choice field."""
+    if field.name == "topology":
+        return [(t.value, TOPOLOGY_LABELS[t.value]) for t in Topology]
+    if field.name == "preset":
+        return [("", "custom values"), *DEVICE_PRESET_LABELS.items()]
+    raise KeyError(field.name)
+
+
+def preset_texts() -> dict[str, dict[str, str]]:
+    """The transistor presets as form texts (what choosing one writes into the fields)."""
+    return {
+        name: {key: format_si(value, "", digits=4) for key, value in values.items()}
+        for name, values in DEVICE_PRESETS.items()
+    }
+
+
+@dataclass(frozen=True)
+class FieldState:
+    """One field as the sheet shows it: the text kept as typed, its value and any problem."""
+
+    text: str
+    value: float | str | None
+    display: str
+    error: str | None
+
+
+def check_field(field: FormField, text: str) -> FieldState:
+    """Validate one field's text with the core's own validator for it."""
+    if field.name == "preset":
+        if text and text not in DEVICE_PRESETS:
+            known = ", ".join(sorted(DEVICE_PRESETS))
+            return FieldState(text, None, "", f"unknown transistor preset {text!r}; known: {known}")
+        return FieldState(text, text or None, DEVICE_PRESET_LABELS.get(text, ""), None)
+    if text.strip() == "" and field.kind == "quantity":
+        shown = "none" if field.optional else ""
+        return FieldState(text, None, shown, None)
+    try:
+        value = _ADAPTERS[field.name].validate_python(text)
+    except ValidationError as err:
+        return FieldState(text, None, "", describe_validation_error(err)[0]["message"])
+    if field.kind == "quantity":
+        return FieldState(text, value, display(value, field.unit), None)
+    value = value.value if isinstance(value, Topology) else value
+    return FieldState(text, value, str(value), None)
+
+
+def display(value: float | None, unit: str) -> str:
+    """Engineering text for a value: SI prefixes for quantities, 4 digits for plain ratios."""
+    if value is None:
+        return "—"
+    if unit in ("", "dB"):
+        text = f"{value:.4g}"
+        return f"{text} dB" if unit == "dB" else text
+    return format_si(value, unit)
+
+
+def check_fields(texts: Mapping[str, str]) -> dict[str, FieldState]:
+    return {f.name: check_field(f, texts.get(f.name, "")) for f in FIELDS}
+
+
+def _json_value(text: str) -> Any:
+    """A form text as it goes into a design file: a JSON number when the text is
+    exactly one (so ``"200"`` stays ``200``), otherwise the text itself."""
+    try:
+        number = json.loads(text)
+    except ValueError:
+        return text
+    is_number = isinstance(number, int | float) and not isinstance(number, bool)
+    return number if is_number and json.dumps(number) == text else text
+
+
+def document(texts: Mapping[str, str], *, for_file: bool = False) -> dict[str, Any]:
+    """The nested design document for the form's texts.
+
+    Blank optional parts become ``null``; blank required fields are left out
+    (so the core reports them as required).  With ``for_file`` numbers that
+    are plain JSON numbers are written as numbers, as in ``sample_designs/``.
+    """
+    doc: dict[str, Any] = {"format": FORMAT, "version": VERSION}
+    sections: dict[str, dict[str, Any]] = {}
+    for f in FIELDS:
+        text = texts.get(f.name, "")
+        if f.section is not None:
+            sections.setdefault(f.section, {})
+        if text.strip() == "":
+            if f.name == "preset" or (f.optional and f.section is not None):
+                sections[f.section][f.name] = None  # type: ignore[index]
+            continue
+        value: Any = _json_value(text) if for_file and f.kind == "quantity" else text
+        if f.section is None:
+            doc[f.name] = value
+        else:
+            sections[f.section][f.name] = value
+    order = ["format", "version", "name", "topology"]
+    out = {k: doc[k] for k in order if k in doc}
+    for section in ("supply", "bias", "tank", "coupling", "load", "device"):
+        out[section] = sections.get(section, {})
+    if "temperature_C" in doc:
+        out["temperature_C"] = doc["temperature_C"]
+    return out
+
+
+class DocumentError(ValueError):
+    """A design document that cannot be read into the form at all."""
+
+    def __init__(self, problems: list[dict]) -> None:
+        super().__init__("; ".join(f"{p['field']}: {p['message']}" for p in problems))
+        self.problems = problems
+
+
+_SECTIONS: Final = ("supply", "bias", "tank", "coupling", "load", "device")
+
+
+def texts_from_document(doc: Any) -> dict[str, str]:
+    """Form texts for a design document (a design file or a sample).
+
+    Raises :class:`DocumentError` naming every key that is not part of the
+    design format, and values that are neither text, a number nor null.
+    Values themselves are checked later, beside their fields.
+    """
+    if not isinstance(doc, dict):
+        raise DocumentError([_p("design", "must be a JSON object (a design file)", "dict_type")])
+    problems: list[dict] = []
+    if doc.get("format") != FORMAT:
+        problems.append(
+            _p("format", f"must be {FORMAT!r}, got {doc.get('format')!r}", "literal_error")
+        )
+    if doc.get("version") != VERSION:
+        problems.append(
+            _p("version", f"must be {VERSION}, got {doc.get('version')!r}", "literal_error")
+        )
+    texts = {f.name: "" for f in FIELDS}
+    for key, value in doc.items():
+        if key in ("format", "version"):
+            continue
+        if key in _SECTIONS:
+            if not isinstance(value, dict):
+                problems.append(_p(key, "must be an object", "dict_type"))
+                continue
+            for name, inner in value.items():
+                field = BY_NAME.get(name)
+                if field is None or field.section != key:
+                    problems.append(
+                        _p(
+                            f"{key}.{name}",
+                            "is not a field of the design format",
+                            "extra_forbidden",
+                        )
+                    )
+                    continue
+                _put(texts, field, inner, problems)
+        elif key in BY_NAME and BY_NAME[key].section is None:
+            _put(texts, BY_NAME[key], value, problems)
+        else:
+            problems.append(_p(key, "is not a field of the design format", "extra_forbidden"))
+    if problems:
+        raise DocumentError(problems)
+    return texts
+
+
+def _put(texts: dict[str, str], field: FormField, value: Any, problems: list[dict]) -> None:
+    if value is None:
+        texts[field.name] = ""
+    elif isinstance(value, str):
+        texts[field.name] = value
+    elif isinstance(value, int | float) and not isinstance(value, bool):
+        texts[field.name] = json.dumps(value)
+    else:
+        problems.append(_p(field.path, "must be text, a number or null", "value_type"))
+
+
+def _p(field: str, message: str, kind: str) -> dict[str, str]:
+    return {"field": field, "message": message, "type": kind}
+
+
+def to_query(texts: Mapping[str, str]) -> list[tuple[str, str]]:
+    """The share link's query: every non-blank field as typed, in page order."""
+    return [(f.name, texts[f.name]) for f in FIELDS if texts.get(f.name, "") != ""]
+
+
+def from_query(
+    items: Iterable[tuple[str, str]], samples: Mapping[str, Mapping[str, str]], default: str
+) -> tuple[dict[str, str], list[dict]]:
+    """Form texts and link problems for a share link's query.
+
+    A link that names any design field carries the whole design: fields it
+    leaves out are blank.  ``design=<sample>`` starts from a sample and the
+    fields given beside it override it; a query with neither opens the
+    default sample.  Unknown, repeated and malformed parameters are reported,
+    never dropped in silence.
+    """
+    seen: dict[str, list[str]] = {}
+    for key, value in items:
+        seen.setdefault(key, []).append(value)
+    problems: list[dict] = []
+    for key, values in seen.items():
+        if len(values) > 1:
+            problems.append(
+                _p(
+                    key,
+                    f"appears {len(values)} times in the link; the first value is used",
+                    "duplicate_parameter",
+                )
+            )
+        if key not in BY_NAME and key != SAMPLE_PARAM:
+            problems.append(
+                _p(
+                    key,
+                    "is not a design field; this link parameter was ignored",
+                    "unknown_parameter",
+                )
+            )
+    given = {k: v[0] for k, v in seen.items() if k in BY_NAME}
+    sample = seen.get(SAMPLE_PARAM, [None])[0]
+    if sample is not None and sample not in samples:
+        known = ", ".join(samples)
+        problems.append(
+            _p(SAMPLE_PARAM, f"no sample design named {sample!r}; known: {known}", "unknown_sample")
+        )
+        sample = None
+    if sample is not None:
+        texts = dict(samples[sample])
+    elif given:
+        texts = {f.name: "" for f in FIELDS}
+    else:
+        texts = dict(samples[default])
+    texts.update(given)
+    return texts, problems
+
+
+#: A whole-design message that begins with a field path ("bias.RC is required ...").
+_LEADING_PATH: Final = re.compile(r"^(\w+)\.(\w+)\b")
+
+
+def field_of_problem(problem: Mapping[str, str]) -> str | None:
+    """The form field a design problem belongs to, when it can be told."""
+    path = problem["field"]
+    if path == "design":
+        m = _LEADING_PATH.match(problem["message"])
+        if m and m.group(2) in BY_NAME:
+            return m.group(2)
+        return None
+    name = path.rsplit(".", 1)[-1]
+    return name if name in BY_NAME else None

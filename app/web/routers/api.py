@@ -1,0 +1,177 @@
+"""The JSON API: thin routes that validate, call the core and return its answer."""
+
+from __future__ import annotations
+
+import re
+from typing import Annotated, Any
+
+from fastapi import APIRouter, Body, Request
+from fastapi.responses import JSONResponse
+from pydantic import ValidationError
+
+from app.analysis.analyze import analyze
+from app.analysis.threshold import ParameterError, find_threshold, sweep
+from app.circuit.topologies import GAIN_SETTER
+from app.design import Design
+from app.result import Result
+from app.web.dependencies import texts_for
+from app.web.errors import ApiError, from_validation, invalid
+from app.web.fields import (
+    BY_NAME,
+    FIELDS,
+    DocumentError,
+    check_field,
+    document,
+    texts_from_document,
+)
+from app.web.samples import samples
+from app.web.schemas import (
+    ImportOut,
+    SampleOut,
+    SheetRequest,
+    SheetSweepRequest,
+    SweepOut,
+    SweepRequest,
+    ThresholdOut,
+    ThresholdRequest,
+)
+from app.web.view import build_view, query_string, sweep_view
+
+router = APIRouter(prefix="/api", tags=["api"])
+
+ERRORS: dict[int | str, dict[str, Any]] = {
+    422: {"description": "Invalid input: every problem names its field"},
+}
+
+
+@router.post("/analyze", response_model=Result, responses=ERRORS)
+def post_analyze(design: Design) -> Result:
+    """The full analysis of a design (the core's result contract)."""
+    return analyze(design)
+
+
+def _bound(param: str, key: str, value: float | str) -> float:
+    field = BY_NAME.get(param)
+    if field is None or field.kind != "quantity":
+        raise invalid("param", f"unknown parameter {param!r}", "value_error")
+    state = check_field(field, str(value))
+    if state.error or not isinstance(state.value, float):
+        raise invalid(key, state.error or "is required", "value_error")
+    return state.value
+
+
+@router.post("/sweep", response_model=SweepOut, responses=ERRORS)
+def post_sweep(req: SweepRequest) -> SweepOut:
+    """f_osc and loop gain along one part's values, the others fixed, with its threshold."""
+    start = _bound(req.param, "start", req.start)
+    stop = _bound(req.param, "stop", req.stop)
+    try:
+        s = sweep(req.design, req.param, start, stop, req.points, req.scale)
+    except ParameterError as err:
+        raise invalid("param", str(err)) from err
+    t = s.threshold
+    return SweepOut(
+        param=s.param,
+        values=s.values,
+        f_osc=s.f_osc,
+        gain=s.gain,
+        valid=s.valid,
+        threshold=ThresholdOut(param=t.param, value=t.value, current=t.current, reason=t.reason),
+    )
+
+
+@router.post("/threshold", response_model=ThresholdOut, responses=ERRORS)
+def post_threshold(req: ThresholdRequest) -> ThresholdOut:
+    """Value of one part at which the loop gain is exactly 1 (default: the gain setter)."""
+    param = req.param or GAIN_SETTER[req.design.topology]
+    try:
+        t = find_threshold(req.design, param)
+    except ParameterError as err:
+        raise invalid("param", str(err)) from err
+    return ThresholdOut(param=t.param, value=t.value, current=t.current, reason=t.reason)
+
+
+@router.get("/designs", response_model=list[SampleOut])
+def list_designs() -> list[SampleOut]:
+    """The sample designs."""
+    return [
+        SampleOut(name=s.key, title=s.title, topology=s.topology, url=f"/?design={s.key}")
+        for s in samples().values()
+    ]
+
+
+@router.get("/designs/{name}", responses={404: {"description": "No sample of that name"}})
+def get_design(name: str) -> dict[str, Any]:
+    """One sample design file, by its key from ``GET /api/designs`` (never a path)."""
+    found = samples().get(name)
+    if found is None:
+        known = ", ".join(samples())
+        raise ApiError(404, f"no sample design named {name!r}; known: {known}")
+    return found.document
+
+
+def _texts(fields: dict[str, str]) -> dict[str, str]:
+    unknown = [k for k in fields if k not in BY_NAME]
+    if unknown:
+        raise ApiError(
+            422,
+            f"fields.{unknown[0]}: is not a design field",
+            [
+                {
+                    "field": f"fields.{k}",
+                    "message": "is not a design field",
+                    "type": "extra_forbidden",
+                }
+                for k in unknown
+            ],
+        )
+    return {f.name: fields.get(f.name, "") for f in FIELDS}
+
+
+@router.post("/sheet", responses=ERRORS)
+def post_sheet(req: SheetRequest) -> dict[str, Any]:
+    """What the sheet shows for these form texts (the page's JSON twin), without the sweep.
+
+    An invalid design is not an error here: the answer lists its problems,
+    beside their fields, as the page does.
+    """
+    return build_view(_texts(req.fields), req.sweep_param, with_sweep=False)
+
+
+@router.post("/sheet/sweep", responses=ERRORS)
+def post_sheet_sweep(req: SheetSweepRequest) -> dict[str, Any]:
+    """The sheet's what-if sweep for these form texts."""
+    return sweep_view(_texts(req.fields), req.param, req.threshold_hint)
+
+
+@router.post("/import", response_model=ImportOut, responses=ERRORS)
+def post_import(
+    doc: Annotated[Any, Body(description="A design file (ringwise.design)")],
+) -> ImportOut:
+    """Form texts for a design file; the file's keys are checked, its values are shown as typed."""
+    try:
+        texts = texts_from_document(doc)
+    except DocumentError as err:
+        raise ApiError(422, f"not a design file: {err}", err.problems) from err
+    return ImportOut(fields=texts, query=query_string(texts))
+
+
+_SLUG = re.compile(r"[^a-z0-9]+")
+
+
+@router.get("/export", responses=ERRORS)
+def get_export(request: Request) -> JSONResponse:
+    """The design of a share link's query as a design file to save (JSON attachment)."""
+    texts, link_problems = texts_for(request)
+    if link_problems:
+        raise ApiError(422, "the link has problems; fix them to export", link_problems)
+    doc = document(texts, for_file=True)
+    try:
+        Design.model_validate(doc)
+    except ValidationError as err:
+        raise from_validation(err) from err
+    slug = _SLUG.sub("-", texts.get("name", "").lower()).strip("-") or "design"
+    return JSONResponse(
+        doc,
+        headers={"Content-Disposition": f'attachment; filename="ringwise-{slug[:60]}.json"'},
+    )

@@ -1,0 +1,81 @@
+"""Request and response models of the API (they make the OpenAPI docs)."""
+
+from __future__ import annotations
+
+from typing import Literal
+
+from pydantic import BaseModel, ConfigDict, Field
+
+from app.analysis.threshold import MAX_SWEEP_POINTS
+from app.design import Design
+
+#: Points of a sweep when the request does not say.
+DEFAULT_SWEEP_POINTS = 50
+
+
+class _In(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class SweepRequest(_In):
+    design: Design
+    param: str = Field(description="Part to vary, e.g. RC, RB2, C2 (see app.design.PARAMETERS)")
+    start: float | str = Field(description="First value, SI units or text such as 100, 2k2, 1n")
+    stop: float | str = Field(description="Last value")
+    points: int = Field(
+        DEFAULT_SWEEP_POINTS,
+        ge=2,
+        le=MAX_SWEEP_POINTS,
+        description=f"Number of values, 2 to {MAX_SWEEP_POINTS}",
+    )
+    scale: Literal["log", "linear"] | None = Field(
+        None, description="Spacing of the values (default: log, linear for temperature_C)"
+    )
+
+
+class ThresholdOut(BaseModel):
+    param: str
+    value: float | None = Field(description="Value of the part at loop gain 1 (null: none found)")
+    current: float = Field(description="Its value in the design")
+    reason: str | None = Field(description="Why no value was found, when none was")
+
+
+class SweepOut(BaseModel):
+    param: str
+    values: list[float]
+    f_osc: list[float | None] = Field(description="Oscillation frequency at each value, Hz")
+    gain: list[float | None] = Field(description="Loop gain at each value")
+    valid: list[bool] = Field(description="False where the design is not valid or has no DC point")
+    threshold: ThresholdOut
+
+
+class ThresholdRequest(_In):
+    design: Design
+    param: str | None = Field(None, description="Part to vary (default: the gain-setting resistor)")
+
+
+class SheetRequest(_In):
+    fields: dict[str, str] = Field(
+        description="Form texts by field name, as typed (L, C1, RB2, topology, name, ...)"
+    )
+    sweep_param: str | None = Field(None, description="Part of the what-if plot")
+
+
+class SheetSweepRequest(_In):
+    fields: dict[str, str]
+    param: str | None = None
+    threshold_hint: float | None = Field(
+        None, description="Threshold already known, used to choose the span"
+    )
+
+
+class SampleOut(BaseModel):
+    name: str = Field(description="Key of the sample: GET /api/designs/{name}")
+    title: str
+    topology: str
+    url: str = Field(description="The sheet opened on this sample")
+
+
+class ImportOut(BaseModel):
+    fields: dict[str, str]
+    query: str

@@ -1,0 +1,68 @@
+"""Jinja2 templates (autoescape on) and the context every page gets."""
+
+from __future__ import annotations
+
+from functools import cache
+from typing import Any
+
+from fastapi import Request
+from fastapi.templating import Jinja2Templates
+
+from app.web.assets import plotly_js, static_url
+from app.web.fields import FIELDS, GROUPS, choices, preset_texts
+from app.web.ladders import SPANS, ladder
+from app.web.paths import TEMPLATES_DIR
+from app.web.samples import samples
+from app.web.view import PANELS, SHOWN, idle_by_topology
+
+# Starlette's Jinja2Templates turns autoescaping on for .html templates; it stays on.
+templates = Jinja2Templates(directory=str(TEMPLATES_DIR))
+templates.env.globals["static_url"] = static_url
+templates.env.globals["plotly_url"] = lambda: plotly_js().url
+
+#: Schematic arrangement per form: (series element, shunt at t1, shunt at t2) of the
+#: resonator triangle drawn as a π (see app/circuit/topologies.py).
+PI_ARRANGEMENT = {
+    "common-emitter": ("L", "C1", "C2"),
+    "common-base": ("C1", "L", "C2"),
+    "common-collector": ("C2", "C1", "L"),
+}
+#: Which transistor terminal each tank corner faces, per form: (t1, t2, grounded).
+CORNERS = {
+    "common-emitter": ("C", "B", "E"),
+    "common-base": ("C", "E", "B"),
+    "common-collector": ("E", "B", "C"),
+}
+
+
+@cache
+def _static_context() -> dict[str, Any]:
+    return {
+        "groups": GROUPS,
+        "form_fields": FIELDS,
+        "choices": {f.name: choices(f) for f in FIELDS if f.kind == "choice"},
+        "shown_list": SHOWN,
+        "panels": PANELS,
+        "samples": list(samples().values()),
+        "ladders": {name: ladder(name)[1] for name in SPANS},
+        "pi": PI_ARRANGEMENT,
+        "corners": CORNERS,
+        "plotly_version": plotly_js().version,
+        "config": {
+            "presets": preset_texts(),
+            "idle": idle_by_topology(),
+            "ladders": {name: ladder(name)[1] for name in SPANS},
+        },
+    }
+
+
+def page_context(request: Request, view: dict[str, Any]) -> dict[str, Any]:
+    query = view["query"]
+    base = str(request.base_url).rstrip("/")
+    return {
+        **_static_context(),
+        "view": view,
+        "share_url": f"{base}/?{query}" if query else f"{base}/",
+        "summary_url": f"/summary?{query}",
+        "export_url": f"/api/export?{query}",
+    }

@@ -1,0 +1,415 @@
+// ringwise design sheet: sends the form to the API and renders what comes back.
+// It computes nothing of its own: every number, text and curve is the server's.
+// One map of selectors, one of events; no framework, no build step.
+
+const SEL = {
+  form: "#design-form",
+  outcome: ".outcome",
+  figures: ".outcome [data-field]:not([data-field='warnings'])",
+  verdict: ".verdict",
+  verdictLabel: "[data-role='verdict-label']",
+  glyph: ".verdict .glyph use",
+  warnings: "[data-field='warnings']",
+  problems: "[data-role='problems']",
+  importProblems: "[data-role='import-problems']",
+  schematics: ".schematic-wrap",
+  labels: ".schematic [data-label]",
+  switched: ".schematic [data-on]",
+  sweepParam: "#sweep-param",
+  share: "#share-url",
+  copy: "#copy-link",
+  exportLink: "#export-link",
+  summaryLink: "#summary-link",
+  importFile: "#import-file",
+  status: "#tool-status",
+  config: "#ringwise-config",
+  initial: "#ringwise-view",
+  plots: { loop: "#plot-loop", sweep: "#plot-sweep", reactance: "#plot-reactance", budget: "#plot-budget" },
+};
+
+const EVENTS = {
+  rendered: "ringwise:rendered", // results, indicator, schematic and plots a, c, d drawn
+  swept: "ringwise:swept", // the what-if plot drawn
+};
+
+const API = { sheet: "/api/sheet", sweep: "/api/sheet/sweep", importFile: "/api/import" };
+const DEBOUNCE_MS = 60;
+const PRESET_FIELDS = ["beta", "IS", "VA", "fT", "C_mu"];
+
+const $ = (sel, root = document) => root.querySelector(sel);
+const $$ = (sel, root = document) => Array.from(root.querySelectorAll(sel));
+const form = $(SEL.form);
+const config = JSON.parse($(SEL.config).textContent);
+
+const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, timer: 0, inputAt: 0, view: null };
+
+// ---- the form and the link -------------------------------------------------
+
+function formTexts() {
+  const texts = {};
+  for (const el of form.elements) if (el.name) texts[el.name] = el.value;
+  return texts;
+}
+
+function query(texts) {
+  const q = new URLSearchParams();
+  for (const [name, text] of Object.entries(texts)) if (text !== "") q.append(name, text);
+  return q.toString();
+}
+
+function updateLinks(texts) {
+  const q = query(texts);
+  history.replaceState(null, "", q ? `/?${q}` : "/");
+  $(SEL.share).value = `${location.origin}/?${q}`;
+  $(SEL.exportLink).href = `/api/export?${q}`;
+  $(SEL.summaryLink).href = `/summary?${q}`;
+}
+
+function setField(name, text) {
+  const el = form.elements.namedItem(name);
+  if (!el) return;
+  if (el.tagName === "SELECT" && !Array.from(el.options).some((o) => o.value === text)) {
+    el.add(new Option(`${text} (not known)`, text));
+  }
+  el.value = text;
+}
+
+// ---- talking to the server -------------------------------------------------
+
+async function post(url, body, signal) {
+  const response = await fetch(url, {
+    method: "POST",
+    headers: { "Content-Type": "application/json" },
+    body: JSON.stringify(body),
+    signal,
+  });
+  const data = await response.json();
+  if (!response.ok) throw Object.assign(new Error(data.message), { body: data });
+  return data;
+}
+
+function schedule() {
+  state.inputAt = performance.now();
+  const texts = formTexts();
+  updateLinks(texts);
+  clearTimeout(state.timer);
+  state.timer = setTimeout(recompute, DEBOUNCE_MS);
+}
+
+async function recompute() {
+  const seq = ++state.mainSeq;
+  const inputAt = state.inputAt;
+  state.main?.abort();
+  state.main = new AbortController();
+  const texts = formTexts();
+  $(SEL.outcome).dataset.state = "busy";
+  try {
+    const view = await post(API.sheet, { fields: texts, sweep_param: $(SEL.sweepParam).value || null }, state.main.signal);
+    if (seq !== state.mainSeq) return; // a newer answer is on its way
+    render(view);
+    document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq, inputAt, at: performance.now() } }));
+    if (view.ok) requestSweep(texts, view, inputAt);
+  } catch (err) {
+    if (err.name !== "AbortError" && seq === state.mainSeq) status(`Not computed: ${err.message}`);
+  }
+}
+
+async function requestSweep(texts, view, inputAt) {
+  const seq = ++state.sweepSeq;
+  state.sweep?.abort();
+  state.sweep = new AbortController();
+  const startup = view.result.startup;
+  const param = view.sweep_param;
+  const hint = param === startup.threshold_param ? startup.threshold_value : null;
+  try {
+    const data = await post(API.sweep, { fields: texts, param, threshold_hint: hint }, state.sweep.signal);
+    if (seq !== state.sweepSeq || !data.ok) return;
+    plotSweep(data.sweep, view);
+    document.dispatchEvent(new CustomEvent(EVENTS.swept, { detail: { seq, inputAt, at: performance.now() } }));
+  } catch (err) {
+    if (err.name !== "AbortError") status(`What-if plot not computed: ${err.message}`);
+  }
+}
+
+function status(text) {
+  $(SEL.status).textContent = text;
+}
+
+// ---- rendering -------------------------------------------------------------
+
+function render(view) {
+  state.view = view;
+  for (const [name, f] of Object.entries(view.fields)) {
+    const shown = $(`[data-shown="${name}"]`);
+    if (shown) shown.textContent = f.display;
+    const error = $(`[data-error="${name}"]`);
+    error.textContent = f.error || "";
+    error.hidden = !f.error;
+    const input = form.elements.namedItem(name);
+    if (f.error) input.setAttribute("aria-invalid", "true");
+    else input.removeAttribute("aria-invalid");
+    const ladder = $(`[data-ladder="${name}"]`);
+    if (ladder && f.step !== null && ladder !== document.activeElement) ladder.value = f.step;
+  }
+  const idle = config.idle[view.topology] || [];
+  for (const field of $$("[data-input]")) field.classList.toggle("idle", idle.includes(field.dataset.input));
+  renderProblems(view.problems.filter((p) => !p.input));
+  renderSchematic(view);
+  $(SEL.outcome).dataset.state = view.ok ? "fresh" : "stale";
+  const exportLink = $(SEL.exportLink);
+  exportLink.setAttribute("aria-disabled", view.ok ? "false" : "true");
+  exportLink.title = view.ok ? "" : "Fix the marked fields to export";
+  if (!view.ok) return;
+  for (const el of $$(SEL.figures)) {
+    const figure = view.shown[el.dataset.field];
+    if (!figure) continue;
+    el.dataset.value = figure.raw;
+    if (!el.classList.contains("verdict")) el.textContent = figure.text;
+  }
+  const verdict = view.shown["startup.verdict"];
+  $(SEL.verdictLabel).textContent = verdict.text;
+  $(SEL.glyph).setAttribute("href", `#glyph-${verdict.value}`);
+  const list = $(SEL.warnings);
+  list.replaceChildren(...(view.result.warnings.length ? view.result.warnings.map(warningItem) : [noneItem()]));
+  renderSweepOptions(view);
+  plotLoop(view.curves.loop, view);
+  plotReactance(view.curves.reactance);
+  plotBudget(view.curves.budget);
+}
+
+function warningItem(w) {
+  const li = document.createElement("li");
+  li.dataset.code = w.code;
+  li.textContent = w.message;
+  return li;
+}
+
+function noneItem() {
+  const li = document.createElement("li");
+  li.className = "none";
+  li.textContent = "none";
+  return li;
+}
+
+function problemItem(p) {
+  const li = document.createElement("li");
+  const code = document.createElement("code");
+  code.textContent = p.field;
+  li.append(code, `: ${p.message}`);
+  return li;
+}
+
+function renderProblems(problems, sel = SEL.problems) {
+  const box = $(sel);
+  $("ul", box).replaceChildren(...problems.map(problemItem));
+  box.hidden = problems.length === 0;
+}
+
+function renderSchematic(view) {
+  const shownTopology = config.idle[view.topology] ? view.topology : "common-emitter";
+  for (const wrap of $$(SEL.schematics)) wrap.hidden = wrap.dataset.topology !== shownTopology;
+  for (const label of $$(SEL.labels)) {
+    const f = view.fields[label.dataset.label];
+    label.textContent = (label.dataset.prefix || "") + (f.display && !f.error ? f.display : f.text);
+  }
+  for (const part of $$(SEL.switched)) {
+    part.dataset.on = view.fields[part.dataset.part].value !== null ? "1" : "0";
+  }
+}
+
+function renderSweepOptions(view) {
+  const select = $(SEL.sweepParam);
+  const current = Array.from(select.options).map((o) => o.value).join();
+  if (current !== view.sweep_options.join()) select.replaceChildren(...view.sweep_options.map((p) => new Option(p, p)));
+  select.value = view.sweep_param;
+}
+
+// ---- plots (Plotly.react redraws in place) ---------------------------------
+
+const INK = "#1f2a30";
+const ACCENT = "#a2521f";
+const PLOT_CONFIG = { displayModeBar: false, responsive: true };
+
+function layout(extra) {
+  return {
+    margin: { l: 52, r: 52, t: 8, b: 40 },
+    paper_bgcolor: "#fffdf8",
+    plot_bgcolor: "#fffdf8",
+    font: { family: "system-ui, sans-serif", size: 11, color: INK },
+    showlegend: true,
+    legend: { orientation: "h", x: 0, y: 1.02, yanchor: "bottom", font: { size: 10 } },
+    ...extra,
+  };
+}
+
+const vline = (x, dash, color = INK) => ({ type: "line", xref: "x", yref: "paper", x0: x, x1: x, y0: 0, y1: 1, line: { color, width: 1, dash } });
+const hline = (y, dash, yref = "y") => ({ type: "line", xref: "paper", yref, x0: 0, x1: 1, y0: y, y1: y, line: { color: "#5d6a70", width: 1, dash } });
+
+function plotLoop(c, view) {
+  const shapes = [hline(1, "dot")];
+  if (c.f_osc) shapes.push(vline(c.f_osc, "dash", ACCENT));
+  Plotly.react(
+    $(SEL.plots.loop),
+    [
+      { x: c.f, y: c.magnitude, name: "|T|", line: { color: INK, width: 2 }, hovertemplate: "%{x:.4s}Hz  |T| %{y:.3f}<extra></extra>" },
+      { x: c.f, y: c.phase_deg, name: "phase (°)", yaxis: "y2", line: { color: ACCENT, width: 1.5, dash: "dot" }, hovertemplate: "%{x:.4s}Hz  %{y:.1f}°<extra></extra>" },
+    ],
+    layout({
+      xaxis: { type: "log", title: { text: "frequency (Hz)" }, exponentformat: "SI" },
+      yaxis: { type: "log", title: { text: "|T|" }, exponentformat: "SI" },
+      yaxis2: { overlaying: "y", side: "right", title: { text: "phase (°)" }, zeroline: false },
+      shapes,
+      annotations: c.f_osc ? [{ x: Math.log10(c.f_osc), y: 1, yref: "paper", text: `f_osc ${view.shown["loop.f_osc"].text}`, showarrow: false, xanchor: "left", yanchor: "top", font: { color: ACCENT, size: 10 } }] : [],
+    }),
+    PLOT_CONFIG,
+  );
+}
+
+function plotSweep(s, view) {
+  const shapes = [hline(1, "dot"), vline(s.current, "dot")];
+  const annotations = [{ x: Math.log10(s.current), y: 0, yref: "paper", text: "now", showarrow: false, xanchor: "left", yanchor: "bottom", font: { size: 10 } }];
+  if (s.threshold) {
+    shapes.push(vline(s.threshold, "dash", "#a3322a"));
+    annotations.push({ x: Math.log10(s.threshold), y: 1, yref: "paper", text: "loop gain 1", showarrow: false, xanchor: "left", yanchor: "top", font: { color: "#a3322a", size: 10 } });
+  }
+  Plotly.react(
+    $(SEL.plots.sweep),
+    [
+      { x: s.values, y: s.gain, name: "loop gain", line: { color: INK, width: 2 }, hovertemplate: `${s.param} %{x:.3s}${s.unit}  gain %{y:.3f}<extra></extra>` },
+      { x: s.values, y: s.f_osc, name: "f_osc (Hz)", yaxis: "y2", line: { color: ACCENT, width: 1.5, dash: "dot" }, hovertemplate: `${s.param} %{x:.3s}${s.unit}  %{y:.4s}Hz<extra></extra>` },
+    ],
+    layout({
+      xaxis: { type: "log", title: { text: `${s.param} (${s.unit || "ratio"})` }, exponentformat: "SI" },
+      yaxis: { type: "log", title: { text: "loop gain" }, exponentformat: "SI" },
+      yaxis2: { overlaying: "y", side: "right", title: { text: "f_osc (Hz)" }, exponentformat: "SI" },
+      shapes,
+      annotations,
+    }),
+    PLOT_CONFIG,
+  );
+}
+
+const REACTANCE_COLOURS = { L: ACCENT, C1: "#1d6b57", C2: "#3b6ea5", C3: "#5b3f8c", C_series: INK };
+
+function plotReactance(r) {
+  Plotly.react(
+    $(SEL.plots.reactance),
+    r.lines.map((line) => ({
+      x: r.f,
+      y: line.X,
+      name: line.label,
+      line: { color: REACTANCE_COLOURS[line.part], width: line.part === "C_series" ? 2 : 1.5, dash: line.part === "C_series" ? "dash" : "solid" },
+      hovertemplate: `${line.label} %{x:.4s}Hz  %{y:.3s}Ω<extra></extra>`,
+    })),
+    layout({
+      xaxis: { type: "log", title: { text: "frequency (Hz)" }, exponentformat: "SI" },
+      yaxis: { type: "log", title: { text: "reactance (Ω)" }, exponentformat: "SI" },
+      shapes: [vline(r.f_ideal, "dot")],
+    }),
+    PLOT_CONFIG,
+  );
+}
+
+function plotBudget(b) {
+  Plotly.react(
+    $(SEL.plots.budget),
+    [
+      {
+        type: "bar",
+        orientation: "h",
+        x: b.cost_dB,
+        y: b.labels,
+        marker: { color: b.cost_dB.map((v) => (v >= 0 ? ACCENT : "#1d6b57")) },
+        customdata: b.share,
+        hovertemplate: "%{y}: %{x:.2f} dB (%{customdata:.0%} of the loss)<extra></extra>",
+      },
+    ],
+    layout({
+      showlegend: false,
+      margin: { l: 190, r: 16, t: 8, b: 40 },
+      xaxis: { title: { text: "loop gain lost to it (dB)" }, zeroline: true },
+      yaxis: { autorange: "reversed", automargin: true },
+    }),
+    PLOT_CONFIG,
+  );
+}
+
+// ---- import, export, copy --------------------------------------------------
+
+async function importText(text) {
+  let doc;
+  try {
+    doc = JSON.parse(text);
+  } catch (err) {
+    renderProblems([{ field: "file", message: `is not JSON (${err.message})` }], SEL.importProblems);
+    return;
+  }
+  try {
+    const answer = await post(API.importFile, doc);
+    renderProblems([], SEL.importProblems);
+    for (const [name, value] of Object.entries(answer.fields)) setField(name, value);
+    updateLinks(formTexts());
+    state.inputAt = performance.now();
+    recompute();
+    status("Design imported");
+  } catch (err) {
+    renderProblems(err.body ? err.body.problems : [{ field: "file", message: err.message }], SEL.importProblems);
+  }
+}
+
+async function copyLink() {
+  const share = $(SEL.share);
+  try {
+    await navigator.clipboard.writeText(share.value);
+    status("Link copied");
+  } catch {
+    share.select();
+    status("Press Ctrl+C to copy the selected link");
+  }
+}
+
+// ---- wiring ----------------------------------------------------------------
+
+function onInput(event) {
+  const el = event.target;
+  if (el.dataset.ladder) setField(el.dataset.ladder, config.ladders[el.dataset.ladder][Number(el.value)]);
+  if (el.name === "preset" && config.presets[el.value]) {
+    for (const name of PRESET_FIELDS) setField(name, config.presets[el.value][name]);
+  }
+  schedule();
+}
+
+function start() {
+  document.documentElement.classList.add("js");
+  form.addEventListener("input", onInput);
+  form.addEventListener("change", (e) => e.target.tagName === "SELECT" && onInput(e));
+  form.addEventListener("submit", (e) => {
+    e.preventDefault();
+    recompute();
+  });
+  $(SEL.sweepParam).addEventListener("change", () => state.view?.ok && requestSweep(formTexts(), { ...state.view, sweep_param: $(SEL.sweepParam).value }, performance.now()));
+  $(SEL.copy).addEventListener("click", copyLink);
+  $(SEL.importFile).addEventListener("change", async (e) => {
+    const file = e.target.files[0];
+    if (file) await importText(await file.text());
+    e.target.value = "";
+  });
+  document.addEventListener("dragover", (e) => {
+    e.preventDefault();
+    document.body.classList.add("dropping");
+  });
+  document.addEventListener("dragleave", (e) => e.relatedTarget === null && document.body.classList.remove("dropping"));
+  document.addEventListener("drop", async (e) => {
+    e.preventDefault();
+    document.body.classList.remove("dropping");
+    const file = e.dataTransfer.files[0];
+    if (file) await importText(await file.text());
+  });
+  const initial = JSON.parse($(SEL.initial).textContent);
+  render(initial);
+  if (initial.ok) plotSweep(initial.curves.sweep, initial);
+  document.documentElement.dataset.ready = "1";
+  document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq: 0, inputAt: 0, at: performance.now() } }));
+}
+
+start();

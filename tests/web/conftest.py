@@ -1,0 +1,116 @@
+"""Fixtures of the web tests: an in-process client, and a real server with Chromium.
+
+The browser tests drive Debian's Chromium through Playwright against the app
+served by uvicorn on a free port.  Without Chromium they skip, saying how to
+enable them, unless RINGWISE_REQUIRE_BROWSER=1 (as in CI), where they fail.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import socket
+import threading
+import time
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import pytest
+from fastapi.testclient import TestClient
+
+from app.web.paths import ROOT, SAMPLES_DIR
+from app.web.server import create_app
+
+ARTIFACTS = ROOT / "test-artifacts"
+CHROMIUM_ARGS = [
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--no-first-run",
+]
+ENABLE_HINT = (
+    "browser tests need Debian's Chromium and poppler-utils: apt-get install chromium poppler-utils"
+)
+
+
+@pytest.fixture(scope="session")
+def client() -> Iterator[TestClient]:
+    with TestClient(create_app(), raise_server_exceptions=False) as c:
+        yield c
+
+
+@pytest.fixture
+def sample() -> dict[str, Any]:
+    """A fresh copy of the 1 MHz Clapp sample design file."""
+    return json.loads((SAMPLES_DIR / "clapp-clock-1M.json").read_text(encoding="utf-8"))
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture(scope="session")
+def live_server() -> Iterator[str]:
+    """The real app under uvicorn on a free port, in a background thread."""
+    import uvicorn
+
+    port = _free_port()
+    server = uvicorn.Server(
+        uvicorn.Config(create_app(), host="127.0.0.1", port=port, log_level="warning")
+    )
+    thread = threading.Thread(target=server.run, daemon=True)
+    thread.start()
+    deadline = time.monotonic() + 10
+    while not server.started:
+        if time.monotonic() > deadline:  # pragma: no cover - a broken start
+            raise RuntimeError("the test server did not start")
+        time.sleep(0.02)
+    yield f"http://127.0.0.1:{port}"
+    server.should_exit = True
+    thread.join(timeout=5)
+
+
+def _need(tool: str) -> str | None:
+    path = shutil.which(tool)
+    if path is None:
+        message = f"{tool} not found; {ENABLE_HINT}"
+        if os.environ.get("RINGWISE_REQUIRE_BROWSER") == "1":
+            pytest.fail(message + " (RINGWISE_REQUIRE_BROWSER=1 makes this a failure)")
+        pytest.skip(message)
+    return path
+
+
+@pytest.fixture(scope="session")
+def browser() -> Iterator[Any]:
+    executable = _need("chromium")
+    from playwright.sync_api import sync_playwright
+
+    # Playwright gives each launch a fresh temporary profile; each test gets a fresh context.
+    with sync_playwright() as p:
+        b = p.chromium.launch(executable_path=executable, headless=True, args=CHROMIUM_ARGS)
+        yield b
+        b.close()
+
+
+@pytest.fixture
+def pdfinfo() -> str:
+    return _need("pdfinfo")
+
+
+@pytest.fixture
+def context(browser: Any) -> Iterator[Any]:
+    """A fresh browser context (its own storage, no state from other tests)."""
+    ctx = browser.new_context(viewport={"width": 1440, "height": 1000}, accept_downloads=True)
+    yield ctx
+    ctx.close()
+
+
+@pytest.fixture(scope="session")
+def artifacts() -> Path:
+    ARTIFACTS.mkdir(exist_ok=True)
+    return ARTIFACTS

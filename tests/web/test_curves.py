@@ -1,0 +1,89 @@
+"""Plot data (app/web/curves.py) and the summary's plot geometry (app/web/plotsvg.py)."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from app.analysis.analyze import analyze
+from app.analysis.operating import solve
+from app.design import Design
+from app.web import curves
+from app.web.ladders import E24, ladder, nearest_step
+from app.web.plotsvg import loop_plot
+from app.web.samples import samples
+
+
+@pytest.fixture(params=sorted(samples()))
+def design(request) -> Design:
+    return Design.model_validate(samples()[request.param].document)
+
+
+def test_loop_curve_passes_through_the_result(design):
+    solved = solve(design)
+    c = curves.loop_curve(solved)
+    result = analyze(design)
+    k = c["f"].index(c["f_osc"])
+    assert c["magnitude"][k] == pytest.approx(result.loop.gain, rel=1e-9)
+    assert c["phase_deg"][k] == pytest.approx(0.0, abs=1e-6)
+    assert c["f"] == sorted(c["f"])
+
+
+def test_reactances_cross_at_the_ideal_resonance(design):
+    result = analyze(design)
+    r = curves.reactance_curves(design, result.tank.C_series, result.tank.f_ideal)
+    lines = {line["part"]: line["X"] for line in r["lines"]}
+    k = min(range(len(r["f"])), key=lambda i: abs(math.log(r["f"][i] / result.tank.f_ideal)))
+    assert r["f"][k] == pytest.approx(result.tank.f_ideal)
+    # X_L = ωL and X_C = 1/(ωC) are equal at ω0 = 1/√(L·C) (textbook, from memory)
+    assert lines["L"][k] == pytest.approx(lines["C_series"][k], rel=1e-9)
+
+
+def test_reactance_values():
+    d = Design.model_validate(samples()["clapp-clock-1M"].document)
+    r = curves.reactance_curves(d, 1e-9, 1e6)
+    k = min(range(len(r["f"])), key=lambda i: abs(r["f"][i] - 1e6))
+    X_L = next(line["X"] for line in r["lines"] if line["part"] == "L")
+    # 100 µH at 1 MHz: 2π·1e6·1e-4 = 628.3 Ω (hand calculation, common practice, no source)
+    assert X_L[k] == pytest.approx(628.3185, rel=1e-6)
+
+
+def test_sweep_range_shows_the_threshold():
+    assert curves.sweep_range(330.0, 50.0) == pytest.approx((50.0 / 3, 990.0))
+    assert curves.sweep_range(330.0, None) == pytest.approx((33.0, 3300.0))
+    lo, hi = curves.sweep_range(1.0, 1e9)  # a far threshold: the current value stays in view
+    assert hi / lo <= curves.SWEEP_MAX_RATIO
+    assert lo < 1.0 < hi
+
+
+def test_what_if_and_budget(design):
+    result = analyze(design).model_dump(mode="json")
+    param = result["startup"]["threshold_param"]
+    s = curves.what_if(design, param, result["startup"]["threshold_value"])
+    assert len(s["values"]) == curves.SWEEP_POINTS
+    assert s["values"][0] < s["current"] < s["values"][-1]
+    if s["threshold"] is not None:
+        assert s["values"][0] < s["threshold"] < s["values"][-1]
+    bars = curves.budget_bars(result["loop"]["budget"])
+    assert bars["cost_dB"] == sorted(bars["cost_dB"], reverse=True)
+
+
+def test_e24_ladder():
+    # E24 series, IEC 60063
+    assert E24[:6] == (1.0, 1.1, 1.2, 1.3, 1.5, 1.6)
+    assert len(E24) == 24
+    values, texts = ladder("RC")
+    assert texts[values.index(330.0)] == "330"
+    assert ladder("C2")[1][nearest_step("C2", 4.7e-9)] == "4.7n"
+    assert nearest_step("C3", 1e-9) is None
+
+
+def test_summary_plot_geometry(design):
+    p = loop_plot(curves.loop_curve(solve(design)))
+    b = p["box"]
+    for pair in p["magnitude"].split():
+        x, y = map(float, pair.split(","))
+        assert b["x0"] - 0.1 <= x <= b["x1"] + 0.1
+        assert b["y0"] - 0.1 <= y <= b["y1"] + 0.1
+    assert p["f_osc_x"] is not None
