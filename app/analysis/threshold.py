@@ -35,8 +35,8 @@ from app.design import Design, get_param, with_param
 
 #: The threshold is sought within value / RANGE … value · RANGE.
 SEARCH_RANGE: Final = 1e4
-#: |ln gain| below this counts as exactly at threshold (gain within 1e-8).
-LOG_GAIN_TOL: Final = 1e-8
+#: |ln gain| below this counts as exactly at threshold (gain within 1e-6).
+LOG_GAIN_TOL: Final = 1e-6
 SECANT_STEPS: Final = 12
 #: Largest secant step, in ln(value) (one decade).
 MAX_STEP: Final = math.log(10.0)
@@ -46,6 +46,8 @@ RETREATS: Final = 6
 FIRST_STEP: Final = 1.2
 #: Points per decade of the fallback bracketing scan.
 SCAN_PER_DECADE: Final = 6
+#: A bracketed root whose |ln gain| exceeds this is a discontinuity, not a crossing.
+ROOT_CHECK: Final = 1e-4
 #: Stand-in for ln(gain) when a trial value gives no loop crossing at all.
 NO_LOOP: Final = -50.0
 #: Maximum sweep length.
@@ -134,6 +136,17 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
         root = _secant(trials, x0, g0)
         if root is None:
             root = _bracket(trials, x0)
+    if root is not None and abs(trials.log_gain(root)) > ROOT_CHECK:
+        # The sign change was the loop losing its zero-phase crossing, not gain 1.
+        return Threshold(
+            param,
+            None,
+            value,
+            reason=(
+                f"the loop loses its zero-phase crossing near {param} = {math.exp(root):.4g} "
+                "before the loop gain reaches 1"
+            ),
+        )
     if root is None:
         return Threshold(
             param,
@@ -148,8 +161,17 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
 
 
 def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
+    """Root of ln(gain) by damped secant steps from x0; see :func:`_secant_slope`."""
+    found = _secant_slope(trials, x0, g0)
+    return None if found is None else found[0]
+
+
+def _secant_slope(trials: _Trials, x0: float, g0: float) -> tuple[float, float] | None:
     """Damped secant on ln(gain) against ln(value): at most a decade per step,
-    halved back toward the last good point when a trial has no loop."""
+    halved back toward the last good point when a trial has no loop.
+
+    Returns the root and the slope d ln(gain)/d ln(value) of the last secant.
+    """
     lo, hi = x0 - math.log(SEARCH_RANGE), x0 + math.log(SEARCH_RANGE)
     # First trial: where the root would be if gain were proportional to the value
     # (exact for the gain-setting resistor of a lossless circuit).
@@ -160,8 +182,8 @@ def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
     for _ in range(SECANT_STEPS):
         if not (_usable(g0) and _usable(g1)) or g1 == g0:
             return None
-        step = -g1 * (x1 - x0) / (g1 - g0)
-        step = max(-MAX_STEP, min(MAX_STEP, step))
+        slope = (g1 - g0) / (x1 - x0)
+        step = max(-MAX_STEP, min(MAX_STEP, -g1 / slope))
         x2 = x1 + step
         g2 = trials.log_gain(x2)
         for _retreat in range(RETREATS):
@@ -172,13 +194,21 @@ def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
         if not lo <= x2 <= hi or not _usable(g2):
             return None
         if abs(g2) <= LOG_GAIN_TOL:
-            return x2
+            return x2, (g2 - g1) / (x2 - x1)
         x0, g0, x1, g1 = x1, g1, x2, g2
     return None
 
 
 def _rising_root(trials: _Trials, x0: float, g0: float) -> float | None:
     """Lowest crossing on the branch where ln(gain) rises with ln(value)."""
+    # Usually the secant from the current value lands on it directly: accept the
+    # root when the gain rises through it on the side the current value implies.
+    if _usable(g0):
+        found = _secant_slope(trials, x0, g0)
+        if found is not None:
+            root, slope = found
+            if slope > 0 and ((g0 > 0 and root < x0) or (g0 < 0 and root > x0)):
+                return root
     floor = x0 - math.log(SEARCH_RANGE)
     x, g = x0, g0
     # Walk down by halving the value until the loop gain rises with the value.
@@ -202,7 +232,7 @@ def _rising_root(trials: _Trials, x0: float, g0: float) -> float | None:
     for _ in range(int(math.log(SEARCH_RANGE) / math.log(2.0)) + 1):
         nx = prev_x + step
         ng = trials.log_gain(nx)
-        if not _usable(ng):
+        if not math.isfinite(ng):
             return None
         if (ng > 0) != (prev_g > 0):
             a, b = sorted((prev_x, nx))
