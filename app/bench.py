@@ -44,7 +44,10 @@ def median_time(fn: Callable[[], object], repeat: int, warmup: int = 2) -> float
 def _line(label: str, seconds: float, target: float) -> str:
     ratio = seconds / target
     mark = "meets" if ratio <= 1.0 else "misses"
-    return f"  {label:<44} {seconds * 1e3:8.2f} ms   target {target * 1e3:6.1f} ms   x{ratio:4.2f} {mark}"
+    return (
+        f"  {label:<44} {seconds * 1e3:8.2f} ms   target {target * 1e3:6.1f} ms"
+        f"   x{ratio:4.2f} {mark}"
+    )
 
 
 def bench_core() -> list[str]:
