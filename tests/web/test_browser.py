@@ -1,0 +1,260 @@
+"""The sheet in a real Chromium against the real server (static/sheet.js and the pages).
+
+Expected figures come from the same server's API (the sheet must show exactly
+what the API computes), never from numbers typed into the test.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import subprocess
+from pathlib import Path
+from typing import Any
+from urllib.parse import urlparse
+
+import pytest
+
+pytestmark = pytest.mark.browser
+
+READY = "html[data-ready='1']"
+VERDICT = "[data-field='startup.verdict']"
+F_OSC = "[data-field='loop.f_osc']"
+#: How long a finished page is watched for a late, stale answer, ms.
+SETTLE_MS = 600
+
+
+class Sheet:
+    """A page of the sheet, with what it logged and every URL it requested."""
+
+    def __init__(self, context: Any, url: str) -> None:
+        self.page = context.new_page()
+        self.errors: list[str] = []
+        self.requests: list[str] = []
+        self.page.on(
+            "console", lambda m: m.type == "error" and self.errors.append(f"console: {m.text}")
+        )
+        self.page.on("pageerror", lambda e: self.errors.append(f"page: {e}"))
+        self.page.on("request", lambda r: self.requests.append(r.url))
+        self.page.goto(url)
+        self.page.wait_for_selector(READY)
+
+    def inputs(self) -> dict[str, str]:
+        return self.page.eval_on_selector_all(
+            "#design-form [name]", "els => Object.fromEntries(els.map(e => [e.name, e.value]))"
+        )
+
+    def figures(self) -> list[list[str]]:
+        return self.page.eval_on_selector_all(
+            ".outcome [data-field]",
+            "els => els.map(e => [e.dataset.field, e.dataset.value || '', e.textContent.trim()])",
+        )
+
+    def attr(self, selector: str, name: str = "data-value") -> str:
+        return self.page.get_attribute(selector, name) or ""
+
+
+def expected(client, texts: dict[str, str]) -> dict[str, Any]:
+    """What the sheet must show for these texts, from the API."""
+    return client.post("/api/sheet", json={"fields": texts}).json()
+
+
+def wait_for(sheet: Sheet, selector: str, value: str) -> None:
+    sheet.page.wait_for_function(
+        "([sel, v]) => document.querySelector(sel)?.dataset.value === v", arg=[selector, value]
+    )
+
+
+def test_page_loads_offline_without_errors(context, live_server, artifacts):
+    sheet = Sheet(context, f"{live_server}/")
+    sheet.page.wait_for_selector("#plot-sweep .main-svg")
+    assert sheet.errors == []
+    for url in sheet.requests:
+        parsed = urlparse(url)
+        assert parsed.scheme in ("data", "blob") or parsed.hostname == "127.0.0.1", url
+    assert sheet.page.locator("#plot-loop .main-svg").count() > 0
+    sheet.page.screenshot(path=str(artifacts / "sheet.png"), full_page=True)
+
+
+def test_typing_c2_updates_f_osc_and_indicator(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    before = sheet.attr(F_OSC)
+    sheet.page.fill("[name='C2']", "1n")
+    want = expected(client, sheet.inputs())
+    wait_for(sheet, F_OSC, want["shown"]["loop.f_osc"]["raw"])
+    assert sheet.attr(F_OSC) != before
+    assert sheet.attr(VERDICT) == want["result"]["startup"]["verdict"]
+    assert (
+        sheet.page.text_content("[data-role='verdict-label']")
+        == want["shown"]["startup.verdict"]["text"]
+    )
+    assert sheet.page.text_content("[data-shown='C2']") == "1 nF"
+    assert "C2=1n" in sheet.page.url
+    assert sheet.errors == []
+
+
+def test_dragging_rc_below_threshold_stops_it(context, live_server):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    assert sheet.attr(VERDICT) == "will-start"
+    threshold = float(sheet.attr("[data-field='startup.threshold_value']"))
+    slider = sheet.page.locator("[data-ladder='RC']")
+    box = slider.bounding_box()
+    fraction = int(slider.input_value()) / int(slider.get_attribute("max"))
+    y = box["y"] + box["height"] / 2
+    sheet.page.mouse.move(box["x"] + fraction * box["width"], y)
+    sheet.page.mouse.down()
+    sheet.page.mouse.move(box["x"] + 2, y, steps=8)
+    sheet.page.mouse.up()
+    wait_for(sheet, VERDICT, "will-not-start")
+    assert float(sheet.attr(F_OSC) or 0) >= 0
+    assert "will not start" in sheet.page.text_content("[data-role='verdict-label']").lower()
+    # dragged to the slider's left end: its first E24 step, 1 Ω, far below the threshold
+    assert sheet.page.input_value("[name='RC']") == "1"
+    assert threshold > 1.0
+    assert sheet.page.text_content("[data-shown='RC']") == "1 Ω"
+    assert sheet.errors == []
+
+
+def test_copied_link_restores_the_design(context, live_server):
+    context.grant_permissions(["clipboard-read", "clipboard-write"], origin=live_server)
+    sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")
+    sheet.page.fill("[name='name']", "Bench unit #2 · 10 MHz <test> & µ")
+    sheet.page.fill("[name='C2']", "1.2 nF")
+    sheet.page.fill("[name='R_load']", "")
+    sheet.page.wait_for_function(
+        "() => document.querySelector(\"[data-shown='C2']\").textContent === '1.2 nF'"
+    )
+    sheet.page.wait_for_timeout(SETTLE_MS)
+    sheet.page.click("#copy-link")
+    sheet.page.wait_for_function("() => document.querySelector('#tool-status').textContent !== ''")
+    link = sheet.page.evaluate("navigator.clipboard.readText()")
+    assert link == sheet.page.input_value("#share-url")
+    first_inputs, first_figures = sheet.inputs(), sheet.figures()
+    sheet.page.close()
+    again = Sheet(context, link)  # a fresh page, opened on the copied link alone
+    assert again.inputs() == first_inputs
+    assert again.figures() == first_figures
+    assert again.errors == []
+
+
+def test_stale_answers_never_overwrite_newer_ones(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    for text in ("1n", "1n5", "2n2", "3n3", "6n8", "10n"):
+        sheet.page.fill("[name='C2']", text)
+        sheet.page.wait_for_timeout(70)  # past the debounce: requests overlap in flight
+    want = expected(client, sheet.inputs())["shown"]["loop.f_osc"]["raw"]
+    wait_for(sheet, F_OSC, want)
+    sheet.page.wait_for_timeout(SETTLE_MS)
+    assert sheet.attr(F_OSC) == want
+
+
+def test_bad_input_keeps_the_text_and_says_why(context, live_server):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.fill("[name='L']", "47uF")
+    error = sheet.page.locator("[data-error='L']")
+    error.wait_for(state="visible")
+    assert "takes 'H'" in error.text_content()
+    assert sheet.page.input_value("[name='L']") == "47uF"
+    assert sheet.page.get_attribute(".outcome", "data-state") == "stale"
+    assert sheet.errors == []
+
+
+def test_bad_link_parameters_are_reported(context, live_server):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M&colour=red&C2=1n&C2=2n")
+    notice = sheet.page.locator("[data-role='link-problems']")
+    assert notice.is_visible()
+    assert "colour" in notice.text_content()
+    assert "appears 2 times" in notice.text_content()
+    assert sheet.errors == []
+
+
+def _export(sheet: Sheet) -> bytes:
+    with sheet.page.expect_download() as download:
+        sheet.page.click("#export-link")
+    return Path(download.value.path()).read_bytes()
+
+
+def test_export_import_round_trip(context, live_server, tmp_path):
+    source = Sheet(context, f"{live_server}/?design=follower-test-source-4M")
+    source.page.fill("[name='C1']", "1.5n")
+    source.page.fill("[name='name']", "Round trip")
+    source.page.wait_for_timeout(SETTLE_MS)
+    exported = _export(source)
+    doc = json.loads(exported)
+    assert doc["format"] == "ringwise.design" and doc["version"] == 1
+    assert doc["tank"]["C1"] == "1.5n"
+    file = tmp_path / "design.json"
+    file.write_bytes(exported)
+
+    target = Sheet(context, f"{live_server}/?design=proximity-exciter-150k")
+    target.page.set_input_files("#import-file", str(file))
+    target.page.wait_for_function(
+        "() => document.querySelector(\"[name='name']\").value === 'Round trip'"
+    )
+    target.page.wait_for_timeout(SETTLE_MS)
+    assert target.inputs() == source.inputs()
+    assert target.figures() == source.figures()
+    assert _export(target) == exported
+
+    dropped = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    dropped.page.evaluate(
+        """text => {
+            const dt = new DataTransfer();
+            dt.items.add(new File([text], "design.json", {type: "application/json"}));
+            const init = {dataTransfer: dt, bubbles: true, cancelable: true};
+            document.dispatchEvent(new DragEvent("drop", init));
+        }""",
+        exported.decode(),
+    )
+    dropped.page.wait_for_function(
+        "() => document.querySelector(\"[name='name']\").value === 'Round trip'"
+    )
+    assert dropped.inputs() == source.inputs()
+    assert source.errors == target.errors == dropped.errors == []
+
+
+def test_import_of_a_bad_file_says_why_and_changes_nothing(context, live_server, tmp_path):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    before = sheet.inputs()
+    bad = tmp_path / "bad.json"
+    bad.write_text(json.dumps({"format": "ringwise.design", "version": 1, "tank": {"Lx": 1}}))
+    sheet.page.set_input_files("#import-file", str(bad))
+    notice = sheet.page.locator("[data-role='import-problems']")
+    notice.wait_for(state="visible")
+    assert "tank.Lx" in notice.text_content()
+    not_json = tmp_path / "not.json"
+    not_json.write_text("{nope")
+    sheet.page.set_input_files("#import-file", str(not_json))
+    notice.filter(has_text="not JSON").wait_for(state="visible")
+    assert sheet.inputs() == before
+
+
+def _pages(pdfinfo: str, pdf: bytes, tmp_path, name: str) -> int:
+    path = tmp_path / name
+    path.write_bytes(pdf)
+    out = subprocess.run([pdfinfo, str(path)], capture_output=True, text=True, check=True).stdout
+    return int(re.search(r"^Pages:\s+(\d+)", out, re.M).group(1))
+
+
+@pytest.mark.parametrize(
+    "query",
+    [
+        "design=clapp-clock-1M",
+        "design=common-base-carrier-10M",
+        "design=follower-test-source-4M",
+        "design=proximity-exciter-150k",
+        "design=clapp-clock-1M&RC=10&name=" + "A long design name " * 8,  # will not start
+    ],
+)
+def test_summary_prints_on_one_page(context, live_server, pdfinfo, tmp_path, artifacts, query):
+    page = context.new_page()
+    errors: list[str] = []
+    page.on("console", lambda m: m.type == "error" and errors.append(m.text))
+    page.goto(f"{live_server}/summary?{query}")
+    for paper in ("A4", "Letter"):
+        pdf = page.pdf(format=paper, print_background=True)
+        assert _pages(pdfinfo, pdf, tmp_path, f"summary-{paper}.pdf") == 1, paper
+    if query == "design=clapp-clock-1M":
+        page.screenshot(path=str(artifacts / "summary.png"), full_page=True)
+        (artifacts / "summary-A4.pdf").write_bytes(page.pdf(format="A4", print_background=True))
+    assert errors == []
