@@ -97,10 +97,14 @@ class JunctionState:
     dIB_dvce: float
 
 
-def junction_state(
+def junction_currents(
     vbe: float, vce: float, IS: float, beta: float, beta_R: float, VA: float, VT: float
-) -> JunctionState:
-    """Evaluate the transport model at junction voltages ``vbe``, ``vce`` (V)."""
+) -> tuple[float, float, float, float, float, float, float, float]:
+    """(IC, IB, I_F, I_R, dIC/dv_BE, dIC/dv_CE, dIB/dv_BE, dIB/dv_CE) at (v_BE, v_CE).
+
+    The transport model itself, as a plain tuple: the transient calls this in
+    its inner loop.  :func:`junction_state` wraps it.
+    """
     vbc = vbe - vce
     ef, def_ = _exp_and_slope(vbe / VT)
     er, der = _exp_and_slope(vbc / VT)
@@ -110,14 +114,24 @@ def junction_state(
     gR = IS * der / VT  # dI_R/dv_BC
     early = 1.0 + vce / VA
     transport = I_F - I_R
-    IC = transport * early - I_R / beta_R
-    IB = I_F / beta + I_R / beta_R
     # v_BC = v_BE - v_CE, so d/dv_BE|v_CE picks up +dI_R/dv_BC and d/dv_CE picks up -.
-    dIC_dvbe = (gF - gR) * early - gR / beta_R
-    dIC_dvce = gR * early + transport / VA + gR / beta_R
-    dIB_dvbe = gF / beta + gR / beta_R
-    dIB_dvce = -gR / beta_R
-    return JunctionState(IC, IB, I_F, I_R, dIC_dvbe, dIC_dvce, dIB_dvbe, dIB_dvce)
+    return (
+        transport * early - I_R / beta_R,
+        I_F / beta + I_R / beta_R,
+        I_F,
+        I_R,
+        (gF - gR) * early - gR / beta_R,
+        gR * early + transport / VA + gR / beta_R,
+        gF / beta + gR / beta_R,
+        -gR / beta_R,
+    )
+
+
+def junction_state(
+    vbe: float, vce: float, IS: float, beta: float, beta_R: float, VA: float, VT: float
+) -> JunctionState:
+    """Evaluate the transport model at junction voltages ``vbe``, ``vce`` (V)."""
+    return JunctionState(*junction_currents(vbe, vce, IS, beta, beta_R, VA, VT))
 
 
 @dataclass(frozen=True, slots=True)

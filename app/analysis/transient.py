@@ -1,0 +1,428 @@
+r"""Nonlinear transient of the whole circuit, from the DC point with a small kick.
+
+The equations are the MNA ones of :mod:`app.circuit.mna` — every capacitor
+(bypass and coupling included), the inductor with its loss, the transistor's
+transport model with both junctions (so saturation and cut-off are real) —
+plus the junction capacitances C_π and C_μ taken as linear at their
+operating-point values:
+
+.. math:: C\,\dot x + G\,x + P\,\varphi(W^T x) = b
+
+where :math:`\varphi = (I_C, I_B)` is the transistor's current pair as a
+function of its two controlling voltages :math:`W^T x = (v_{BE}, v_{CE})`, and
+:math:`P` puts I_C into the collector row, I_B into the base row and their
+sum out of the emitter row.
+
+Integration is by the trapezoidal rule, which conserves the energy of a
+lossless LC exactly and so adds no numerical damping to the resonator.  With
+:math:`A = 2C/h + G`, one step is
+
+.. math:: x_{n+1} = \underbrace{A^{-1}(2C/h - G)}_{B}\,x_n + 2A^{-1}b
+          - A^{-1}P\,(\varphi_n + \varphi_{n+1}),
+
+so with :math:`A^{-1}` factorised once per step size the Newton iteration
+runs on the two controlling voltages only (a 2×2 system; the Woodbury
+identity in effect).  A local-error estimate from third differences of the
+tank voltage halves the step where the waveform turns sharply (saturation,
+current pulses) and lets it grow back afterwards.
+
+References
+----------
+Hairer, Nørsett & Wanner, *Solving Ordinary Differential Equations I*
+(trapezoidal rule: A-stable, order 2, symplectic on linear oscillators);
+Nagel, *SPICE2*, 1975 (trapezoidal LTE from divided differences); both from memory.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass, field
+from typing import Final
+
+import numpy as np
+
+from app.analysis.operating import Solved, solve
+from app.circuit.mna import LinearSystem, _stamp_pair
+from app.circuit.npn import junction_currents
+from app.circuit.topologies import T1
+from app.design import Design, Topology
+
+#: Steps per oscillation period at the nominal step size.
+STEPS_PER_CYCLE: Final = 128
+#: Largest number of step halvings below the nominal step.
+MAX_HALVINGS: Final = 6
+#: Relative local-error bound on the tank voltage per step (relative to the
+#: larger of the swing seen so far and KICK_VOLTS).
+LTE_TOL: Final = 2e-4
+#: Initial kick: a current in the coil that puts about this voltage on the tank, V.
+KICK_VOLTS: Final = 1e-3
+#: Newton on the two controlling voltages.
+NEWTON_TOL: Final = 1e-10
+NEWTON_MAX: Final = 50
+#: Largest change of a controlling voltage per Newton iteration, V.
+NEWTON_CLAMP: Final = 0.1
+#: Bounds on the work one request may ask for.
+MAX_CYCLES: Final = 20000
+MIN_CYCLES: Final = 20
+MAX_POINTS: Final = 20000
+#: Fraction of the run (at the end) used for the steady-state figures, and its
+#: minimum length in cycles.
+STEADY_FRACTION: Final = 0.2
+STEADY_MIN_CYCLES: Final = 10
+#: Harmonics reported (2nd ... HARMONICS-th).
+HARMONICS: Final = 7
+SAMPLES_PER_CYCLE_FFT: Final = 64
+#: Squegging: the envelope, after first reaching SQUEG_HIGH of its maximum,
+#: falls below SQUEG_LOW of it and recovers again (common practice, no source).
+SQUEG_HIGH: Final = 0.8
+SQUEG_LOW: Final = 0.3
+#: Run shorter than this many bias time constants: say squegging is not excluded.
+BIAS_TAU_COVER: Final = 3.0
+
+
+class SimulationError(ValueError):
+    """A transient request that cannot be run as asked."""
+
+
+@dataclass(frozen=True)
+class Transient:
+    """What the transient found.  Amplitudes in V, times in s, frequencies in Hz."""
+
+    f_meas: float | None
+    amp_out_peak: float | None
+    amp_out_pp: float | None
+    amp_out_fund: float | None
+    amp_be_fund: float | None
+    thd: float | None
+    harmonics_dBc: list[float | None]
+    t_startup_90: float | None
+    VE_shift: float | None
+    squegging: bool
+    settled: bool
+    cycles_run: float
+    steps: int
+    rejected_steps: int
+    bias_time_constant: float
+    notes: list[str]
+    t: list[float] = field(repr=False)
+    v_out: list[float] = field(repr=False)
+    v_base: list[float] = field(repr=False)
+    envelope_t: list[float] = field(repr=False)
+    envelope: list[float] = field(repr=False)
+    spectrum_f: list[float] = field(repr=False)
+    spectrum_dBc: list[float] = field(repr=False)
+
+
+def transient_system(solved: Solved) -> tuple[LinearSystem, np.ndarray]:
+    """The circuit's matrices with C_π and C_μ added, and the kicked initial state."""
+    system = solved.system
+    dev = system.devices[0]
+    C = system.C.copy()
+    _stamp_pair(C, system.layout, dev.b, dev.e, solved.hybrid.C_pi)
+    _stamp_pair(C, system.layout, dev.b, dev.c, solved.hybrid.C_mu)
+    x0 = solved.op.x.copy()
+    f = solved.f_osc or solved.tank.f_ideal
+    # A coil current i gives a tank voltage of about i·ω·L.
+    x0[system.layout.branch["L"]] += KICK_VOLTS / (2.0 * math.pi * f * solved.design.tank.L)
+    return LinearSystem(system.layout, system.G, C, system.b, system.devices), x0
+
+
+def bias_time_constant(design: Design) -> float:
+    """Longest time constant of the bias network that follows the amplitude, s.
+
+    The emitter bypass against RE (common-emitter), the base bypass against
+    the divider (common-base) and the base coupling capacitor against the
+    divider (every form).
+    """
+    b = design.bias
+    R_div = b.RB1 * b.RB2 / (b.RB1 + b.RB2)
+    taus = [design.coupling.Cc2 * R_div]
+    if design.topology is Topology.CE and b.CE is not None:
+        taus.append(b.RE * b.CE)
+    if design.topology is Topology.CB and b.CB is not None:
+        taus.append(R_div * b.CB)
+    return max(taus)
+
+
+class _Stepper:
+    """Trapezoidal steps with the factorisation kept per step size."""
+
+    def __init__(self, system: LinearSystem) -> None:
+        lay = system.layout
+        dev = system.devices[0]
+        self.system = system
+        p = dev.params
+        self.dev_args = (p.IS, p.beta, p.beta_R, p.VA, p.VT)
+        missing = {dev.c, dev.b, dev.e} - set(lay.node)
+        if missing:
+            raise ValueError(f"transistor terminals at ground are not supported: {missing}")
+        self.ic, self.ib, self.ie = lay.node[dev.c], lay.node[dev.b], lay.node[dev.e]
+        n = lay.size
+        self.P = np.zeros((n, 2))
+        self.P[self.ic, 0] += 1.0  # I_C into the collector
+        self.P[self.ie, 0] -= 1.0
+        self.P[self.ib, 1] += 1.0  # I_B into the base
+        self.P[self.ie, 1] -= 1.0
+        self._cache: dict[float, tuple] = {}
+
+    def controls(self, x: np.ndarray) -> tuple[float, float]:
+        """(v_BE, v_CE) of state x."""
+        return float(x[self.ib] - x[self.ie]), float(x[self.ic] - x[self.ie])
+
+    def matrices(self, h: float) -> tuple:
+        if h not in self._cache:
+            s = self.system
+            A = 2.0 * s.C / h + s.G
+            Ainv = np.linalg.inv(A)
+            B = Ainv @ (2.0 * s.C / h - s.G)
+            c = 2.0 * (Ainv @ s.b)
+            K = Ainv @ self.P
+            # M = W^T K: the controls' response to the device currents.
+            Kl = K.tolist()
+            ib, ic, ie = self.ib, self.ic, self.ie
+            m = (
+                Kl[ib][0] - Kl[ie][0],
+                Kl[ib][1] - Kl[ie][1],
+                Kl[ic][0] - Kl[ie][0],
+                Kl[ic][1] - Kl[ie][1],
+            )
+            self._cache[h] = (B, c, K[:, 0].copy(), K[:, 1].copy(), *m)
+        return self._cache[h]
+
+    def phi(self, vbe: float, vce: float) -> tuple:
+        return junction_currents(vbe, vce, *self.dev_args)
+
+    def step(self, h: float, x: np.ndarray, v: tuple, v_prev: tuple, ph: tuple):
+        """One step from state x (controls v, previous controls v_prev, device state ph)."""
+        B, c, K0, K1, m00, m01, m10, m11 = self.matrices(h)
+        y = B @ x + c
+        yl = y.tolist()
+        ye = yl[self.ie]
+        ic_n, ib_n = ph[0], ph[1]
+        a0 = yl[self.ib] - ye - (m00 * ic_n + m01 * ib_n)
+        a1 = yl[self.ic] - ye - (m10 * ic_n + m11 * ib_n)
+        # Start Newton from the linear extrapolation of the controls, and from
+        # the last controls if that does not converge.
+        for vbe, vce in ((2.0 * v[0] - v_prev[0], 2.0 * v[1] - v_prev[1]), v):
+            found = self._newton(vbe, vce, a0, a1, m00, m01, m10, m11)
+            if found is not None:
+                break
+        else:
+            return None
+        vbe, vce = found
+        q = self.phi(vbe, vce)
+        x_new = y - K0 * (ic_n + q[0]) - K1 * (ib_n + q[1])
+        return x_new, (vbe, vce), q
+
+    def _newton(self, vbe, vce, a0, a1, m00, m01, m10, m11) -> tuple[float, float] | None:
+        """Solve v + M·φ(v) = a for the two controls; ``None`` if it does not converge."""
+        phi, clamp, tol = self.phi, NEWTON_CLAMP, NEWTON_TOL
+        for _ in range(NEWTON_MAX):
+            q = phi(vbe, vce)
+            g0 = vbe + m00 * q[0] + m01 * q[1] - a0
+            g1 = vce + m10 * q[0] + m11 * q[1] - a1
+            # Jacobian I + M·Jφ with Jφ = [[dIC/dvbe, dIC/dvce], [dIB/dvbe, dIB/dvce]]
+            j00 = 1.0 + m00 * q[4] + m01 * q[6]
+            j01 = m00 * q[5] + m01 * q[7]
+            j10 = m10 * q[4] + m11 * q[6]
+            j11 = 1.0 + m10 * q[5] + m11 * q[7]
+            det = j00 * j11 - j01 * j10
+            d0 = (g0 * j11 - g1 * j01) / det
+            d1 = (j00 * g1 - j10 * g0) / det
+            if d0 > clamp or d0 < -clamp or d1 > clamp or d1 < -clamp:
+                d0 = max(-clamp, min(clamp, d0))
+                d1 = max(-clamp, min(clamp, d1))
+            vbe -= d0
+            vce -= d1
+            if -tol < d0 < tol and -tol < d1 < tol:
+                return vbe, vce
+        return None
+
+
+def run(design: Design, cycles: float = 300.0, points: int = 4000) -> Transient:
+    """Simulate ``cycles`` periods (of the small-signal f_osc) and measure the result."""
+    if not MIN_CYCLES <= cycles <= MAX_CYCLES:
+        raise SimulationError(f"cycles must be between {MIN_CYCLES} and {MAX_CYCLES}, got {cycles}")
+    if not 100 <= points <= MAX_POINTS:
+        raise SimulationError(f"points must be between 100 and {MAX_POINTS}, got {points}")
+    solved = solve(design)
+    system, x = transient_system(solved)
+    lay = system.layout
+    f_ref = solved.f_osc or solved.tank.f_ideal
+    h0 = 1.0 / (f_ref * STEPS_PER_CYCLE)
+    t_end = cycles / f_ref
+    stepper = _Stepper(system)
+    i_out, i_e = lay.node[T1], stepper.ie
+    v = stepper.controls(x)
+    v_prev = v
+    ph = stepper.phi(*v)
+    t = 0.0
+    ts, vo, vbe_t, ve = [0.0], [float(x[i_out])], [v[0]], [float(x[i_e])]
+    level, h, since_change, rejected, quiet = 0, h0, 0, 0, 0
+    scale = KICK_VOLTS
+    vo_mean = float(x[i_out])
+    while t < t_end:
+        stepped = stepper.step(h, x, v, v_prev, ph)
+        if stepped is None:
+            if level >= MAX_HALVINGS:
+                raise SimulationError(f"Newton's method failed at t = {t:.4g} s")
+            level += 1
+            h = h0 / 2**level
+            since_change = 0
+            rejected += 1
+            continue
+        x_new, v_new, ph_new = stepped
+        out = float(x_new[i_out])
+        # LTE of the trapezoidal rule ~ h^3 x'''/12, from third differences
+        # (the spacing is uniform since the last change of step).
+        if since_change >= 3:
+            err = abs(out - 3.0 * vo[-1] + 3.0 * vo[-2] - vo[-3]) / 12.0
+            if err > LTE_TOL * scale and level < MAX_HALVINGS:
+                level += 1
+                h = h0 / 2**level
+                since_change = 0
+                rejected += 1
+                continue  # redo the step from the accepted state with h halved
+            quiet = quiet + 1 if err < LTE_TOL * scale / 16.0 else 0
+        x, v_prev, v, ph = x_new, v, v_new, ph_new
+        t += h
+        ts.append(t)
+        vo.append(out)
+        vbe_t.append(v[0])
+        ve.append(float(x[i_e]))
+        dev_out = abs(out - vo_mean)
+        if dev_out > scale:
+            scale = dev_out
+        since_change += 1
+        if level > 0 and quiet >= 8:
+            level -= 1
+            h = h0 / 2**level
+            since_change, quiet = 0, 0
+    return _measure(
+        solved, np.array(ts), np.array(vo), np.array(vbe_t), np.array(ve), f_ref, points,
+        len(ts) - 1, rejected,
+    )  # fmt: skip
+
+
+def _crossings(t: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Times of rising zero crossings of v (linear interpolation)."""
+    k = np.nonzero((v[:-1] < 0) & (v[1:] >= 0))[0]
+    frac = -v[k] / (v[k + 1] - v[k])
+    return t[k] + frac * (t[k + 1] - t[k])
+
+
+def _measure(
+    solved: Solved,
+    t: np.ndarray,
+    vo: np.ndarray,
+    vb: np.ndarray,  # base-emitter voltage
+    ve: np.ndarray,
+    f_ref: float,
+    points: int,
+    steps: int,
+    rejected: int,
+) -> Transient:
+    t_end = float(t[-1])
+    cycles_run = t_end * f_ref
+    tail_cycles = max(STEADY_MIN_CYCLES, STEADY_FRACTION * cycles_run)
+    tail = t >= t_end - tail_cycles / f_ref
+    notes: list[str] = []
+    # Envelope: half the peak-to-peak swing of each period (periods from the
+    # crossings of the tank voltage about its running mean).
+    centre = vo - np.mean(vo[tail])
+    cross = _crossings(t, centre)
+    env_t, env = [], []
+    idx = np.searchsorted(t, cross)
+    for a, b in itertools.pairwise(idx):
+        if b > a + 1:
+            seg = vo[a:b]
+            env_t.append(float(t[(a + b) // 2]))
+            env.append(float(0.5 * (seg.max() - seg.min())))
+    env_arr = np.array(env)
+    tau = bias_time_constant(solved.design)
+    amp_peak = float(0.5 * (vo[tail].max() - vo[tail].min()))
+    grew = amp_peak > 10.0 * KICK_VOLTS
+    f_meas = amp_fund = be_fund = thd = None
+    harmonics: list[float | None] = [None] * (HARMONICS - 1)
+    spec_f: list[float] = []
+    spec_dB: list[float] = []
+    tail_cross = cross[cross >= t_end - tail_cycles / f_ref]
+    if grew and tail_cross.size >= 3:
+        n = tail_cross.size - 1
+        f_meas = float(n / (tail_cross[-1] - tail_cross[0]))
+        # FFT over a whole number of periods, resampled uniformly.
+        grid = np.linspace(tail_cross[0], tail_cross[-1], n * SAMPLES_PER_CYCLE_FFT, endpoint=False)
+        spec_o = np.fft.rfft(np.interp(grid, t, vo)) / len(grid) * 2.0
+        spec_b = np.fft.rfft(np.interp(grid, t, vb)) / len(grid) * 2.0
+        fund = abs(spec_o[n])
+        amp_fund = float(fund)
+        be_fund = float(abs(spec_b[n]))
+        levels = [abs(spec_o[k * n]) for k in range(2, HARMONICS + 1)]
+        harmonics = [20.0 * math.log10(h / fund) if h > 0 else None for h in levels]
+        thd = float(math.sqrt(sum(h * h for h in levels)) / fund)
+        bins = np.arange(0, min(len(spec_o), (HARMONICS + 1) * n + 1))
+        spec_f = [float(k * f_meas / n) for k in bins[1:]]
+        spec_dB = [float(20.0 * math.log10(max(abs(spec_o[k]), 1e-30) / fund)) for k in bins[1:]]
+    elif not grew:
+        notes.append("the oscillation did not build up: the kick decayed or stayed at noise level")
+    t90 = None
+    settled = False
+    squeg = False
+    if grew and env_arr.size:
+        reached = np.nonzero(env_arr >= 0.9 * amp_peak)[0]
+        t90 = float(env_t[reached[0]]) if reached.size else None
+        peak = env_arr.max()
+        high = np.nonzero(env_arr >= SQUEG_HIGH * peak)[0]
+        if high.size:
+            after = env_arr[high[0] :]
+            dips = np.nonzero(after < SQUEG_LOW * peak)[0]
+            if dips.size and np.any(after[dips[0] :] >= SQUEG_HIGH * peak):
+                squeg = True
+        last = env_arr[np.array(env_t) >= t_end - tail_cycles / f_ref]
+        settled = bool(last.size and (last.max() - last.min()) <= 0.02 * last.mean())
+        if squeg:
+            notes.append(
+                "squegging: the envelope collapses and rebuilds — the bias network "
+                f"(time constant {tau:.3g} s) relaxes slower than the amplitude settles"
+            )
+        elif not settled:
+            notes.append("the envelope has not settled by the end of the run")
+    if t_end < BIAS_TAU_COVER * tau and not squeg:
+        notes.append(
+            f"the run ({t_end:.3g} s) covers {t_end / tau:.2g} bias time constants "
+            f"({tau:.3g} s); squegging cannot be excluded without a longer run"
+        )
+    VE_shift = float(np.mean(ve[tail]) - solved.op.VE) if grew else None
+    # Keep the last cycles at full resolution, thinned to ``points`` samples.
+    keep = max(2, min(points, len(t)))
+    last_cycles = min(cycles_run, 8.0)
+    window = t >= t_end - last_cycles / f_ref
+    tw, vow, vbw = t[window], vo[window], vb[window]
+    pick = np.unique(np.linspace(0, len(tw) - 1, min(keep, len(tw))).astype(int))
+    env_pick = np.unique(np.linspace(0, len(env_t) - 1, min(keep, len(env_t))).astype(int))
+    return Transient(
+        f_meas=f_meas,
+        amp_out_peak=amp_peak if grew else None,
+        amp_out_pp=2.0 * amp_peak if grew else None,
+        amp_out_fund=amp_fund,
+        amp_be_fund=be_fund,
+        thd=thd,
+        harmonics_dBc=harmonics,
+        t_startup_90=t90,
+        VE_shift=VE_shift,
+        squegging=squeg,
+        settled=settled,
+        cycles_run=cycles_run,
+        steps=steps,
+        rejected_steps=rejected,
+        bias_time_constant=tau,
+        notes=notes,
+        t=tw[pick].tolist(),
+        v_out=vow[pick].tolist(),
+        v_base=vbw[pick].tolist(),
+        envelope_t=[env_t[i] for i in env_pick] if env_t else [],
+        envelope=[env[i] for i in env_pick] if env else [],
+        spectrum_f=spec_f,
+        spectrum_dBc=spec_dB,
+    )
