@@ -16,6 +16,7 @@ from pydantic import ValidationError
 
 from app.analysis.analyze import analyze
 from app.analysis.threshold import ParameterError, find_threshold, sweep
+from app.analysis.transient import MAX_CYCLES, SimulationError, simulate
 from app.circuit.topologies import GAIN_SETTER
 from app.design import Design
 from app.errors import describe_validation_error
@@ -100,6 +101,19 @@ def cmd_sweep(args: argparse.Namespace) -> None:
     )
 
 
+def cmd_simulate(args: argparse.Namespace) -> None:
+    design = _load(args.design)
+    try:
+        result = simulate(design, cycles=args.cycles, points=args.points)
+    except SimulationError as err:
+        raise BadInputError(str(err)) from err
+    data = result.model_dump(mode="json")
+    if not args.waveforms:
+        for key in ("waveform", "envelope", "spectrum"):
+            data["transient"].pop(key)
+    _print(data)
+
+
 def cmd_serve(args: argparse.Namespace) -> None:
     from app.web.server import serve  # imported here: the core needs no web stack
 
@@ -129,6 +143,13 @@ def parser() -> argparse.ArgumentParser:
     s.add_argument("--points", type=int, default=50)
     s.add_argument("--scale", choices=["log", "linear"], default=None)
     s.set_defaults(run=cmd_sweep)
+
+    m = sub.add_parser("simulate", help="nonlinear transient: amplitude, THD, startup, squegging")
+    m.add_argument("design")
+    m.add_argument("--cycles", type=float, default=300.0, help=f"periods to run (max {MAX_CYCLES})")
+    m.add_argument("--points", type=int, default=4000, help="waveform points kept")
+    m.add_argument("--waveforms", action="store_true", help="include waveform, envelope, spectrum")
+    m.set_defaults(run=cmd_simulate)
 
     v = sub.add_parser("serve", help="serve the design sheet on this computer")
     v.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")

@@ -110,6 +110,21 @@ class SwingOut(_Out):
     )
 
 
+class LargeSignalOut(_Out):
+    x: Num = Field(description="Base-emitter fundamental amplitude over V_T")
+    amp_be: Num = Field(description="Base-emitter fundamental amplitude, V")
+    amp_out: Num = Field(description="Fundamental amplitude at the output tank node, V")
+    amp_ce: Num = Field(description="Collector-emitter fundamental amplitude, V")
+    IC_avg: Num = Field(description="Average collector current with the drive applied, A")
+    VBE_avg: Num = Field(description="Average base-emitter voltage with the drive applied, V")
+    f: Num = Field(description="Oscillation frequency at that amplitude, Hz")
+    P_tank: Num = Field(description="Signal power dissipated in the coil loss, W")
+    x_fixed_bias: Num = Field(description="Drive the fixed-bias shortcut would give, V/V_T")
+    output_node: str
+    valid: bool
+    reason: str | None
+
+
 class Result(_Out):
     format: Literal["ringwise.result"] = "ringwise.result"
     version: Literal[1] = 1
@@ -122,4 +137,53 @@ class Result(_Out):
     poles: PolesOut
     startup: StartupOut
     swing: SwingOut
+    large_signal: LargeSignalOut
+    warnings: list[WarningOut]
+
+
+class WaveformOut(_Out):
+    t: list[float] = Field(description="Time of the last cycles, s")
+    v_out: list[float] = Field(description="Output tank node voltage, V")
+    v_be: list[float] = Field(description="Base-emitter voltage, V")
+
+
+class EnvelopeOut(_Out):
+    t: list[float] = Field(description="Time, s")
+    v: list[float] = Field(description="Half peak-to-peak of each period at the output node, V")
+
+
+class SpectrumOut(_Out):
+    f: list[float] = Field(description="Frequency, Hz")
+    dBc: list[float] = Field(description="Level relative to the fundamental, dB")
+
+
+class TransientOut(_Out):
+    f_meas: Num = Field(description="Frequency from zero crossings of the last cycles, Hz")
+    amp_out_peak: Num = Field(description="Steady peak amplitude at the output node, V")
+    amp_out_pp: Num = Field(description="Steady peak-to-peak at the output node, V")
+    amp_out_fund: Num = Field(description="Fundamental amplitude at the output node (FFT), V")
+    amp_be_fund: Num = Field(description="Base-emitter fundamental amplitude (FFT), V")
+    thd: Num = Field(description="Total harmonic distortion at the output node (ratio)")
+    harmonics_dBc: list[Num] = Field(description="2nd, 3rd, ... harmonic levels, dBc")
+    t_startup_90: Num = Field(description="Time to 90 % of the final amplitude, s")
+    VE_shift: Num = Field(description="Shift of the average emitter voltage from DC, V")
+    squegging: bool
+    settled: bool
+    cycles_run: Num
+    steps: int
+    rejected_steps: int
+    bias_time_constant: Num = Field(description="Longest bias-network time constant, s")
+    notes: list[str]
+    waveform: WaveformOut
+    envelope: EnvelopeOut
+    spectrum: SpectrumOut
+
+
+class SimulationResult(_Out):
+    format: Literal["ringwise.simulation"] = "ringwise.simulation"
+    version: Literal[1] = 1
+    name: str
+    topology: str
+    output_node: str
+    transient: TransientOut
     warnings: list[WarningOut]

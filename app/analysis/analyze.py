@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 from app.analysis.budget import loop_budget
-from app.analysis.checks import Finding, rule_checks
+from app.analysis.checks import Finding, rule_checks, squegging_risk
+from app.analysis.describing import describing_function
 from app.analysis.operating import Solved, solve
 from app.analysis.poles import natural_frequencies
 from app.analysis.startup import fixed_bias_drive, gm_ratio, verdict
@@ -12,6 +13,7 @@ from app.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, ideal_gain
 from app.design import Design
 from app.result import (
     BudgetLineOut,
+    LargeSignalOut,
     LoopOut,
     OperatingPointOut,
     PoleOut,
@@ -38,6 +40,10 @@ def analyze(design: Design) -> Result:
     v = verdict(gain, op)
     V_be, V_ce = _fixed_bias_swing(s, gain)
     findings = rule_checks(s, budget, poles, V_ce)
+    ls = describing_function(s)
+    findings += squegging_risk(s, poles)
+    if not ls.valid and ls.x is not None and ls.reason:
+        findings.append(Finding("amplitude-estimate", ls.reason))
     if threshold.value is None and threshold.reason:
         findings.append(Finding("no-threshold", threshold.reason))
     dom = poles.dominant
@@ -89,6 +95,20 @@ def analyze(design: Design) -> Result:
             threshold_RC=threshold.value if setter == "RC" else None,
         ),
         swing=SwingOut(V_be=V_be, V_ce=V_ce),
+        large_signal=LargeSignalOut(
+            x=ls.x,
+            amp_be=ls.amp_be,
+            amp_out=ls.amp_out,
+            amp_ce=ls.amp_ce,
+            IC_avg=ls.IC_avg,
+            VBE_avg=ls.VBE_avg,
+            f=ls.f,
+            P_tank=ls.P_tank,
+            x_fixed_bias=ls.x_fixed_bias,
+            output_node=OUTPUT_NODE_LABEL[design.topology],
+            valid=ls.valid,
+            reason=ls.reason,
+        ),
         warnings=[WarningOut(code=f.code, message=f.message) for f in findings],
     )
 

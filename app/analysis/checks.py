@@ -32,6 +32,12 @@ COUPLING_COST_DB: Final = 0.5
 COUPLING_SHIFT: Final = 0.002
 #: Extra RHP poles below f_osc / this are flagged as a squegging risk.
 SQUEGGING_RATIO: Final = 10.0
+#: Squegging risk from time constants: the bias network's time constant over
+#: the envelope's (1/σ) above this, with a loop gain above SQUEG_GAIN.  A
+#: heuristic, calibrated against the transient on a handful of designs of
+#: ours (common practice, no source): the transient is the judge.
+SQUEG_TAU_RATIO: Final = 100.0
+SQUEG_GAIN: Final = 6.0
 
 
 @dataclass(frozen=True)
@@ -174,3 +180,31 @@ def _pole_checks(s: Solved, poles: PoleFigures) -> list[Finding]:
             )
         )
     return out
+
+
+def squegging_risk(s: Solved, poles: PoleFigures) -> list[Finding]:
+    """Warn, from time constants and margin alone, that the bias network may squeg.
+
+    The amplitude is regulated by the bias capacitors charging from the
+    transistor's rectified current; when they are much slower than the
+    envelope grows (1/σ) and the margin is large, the regulation overshoots:
+    the transistor is starved, the oscillation dies and restarts.
+    """
+    from app.analysis.transient import bias_time_constant
+
+    dom = poles.dominant
+    if dom is None or dom.sigma <= 0 or s.gain <= SQUEG_GAIN:
+        return []
+    tau = bias_time_constant(s.design)
+    ratio = tau * dom.sigma
+    if ratio <= SQUEG_TAU_RATIO:
+        return []
+    return [
+        Finding(
+            "squegging-risk",
+            f"the bias network's time constant ({format_si(tau, 's')}) is {ratio:.0f}× the "
+            f"envelope's growth time ({format_si(1 / dom.sigma, 's')}) at a loop gain of "
+            f"{s.gain:.3g}: the oscillation may die and restart (squegging); lower the "
+            "margin or the bypass/coupling time constants, and confirm with the transient",
+        )
+    ]

@@ -72,7 +72,8 @@ def _pnjlim(v_new: float, v_old: float, VT: float, v_crit: float) -> float:
         if v_old > 0:
             arg = 1.0 + (v_new - v_old) / VT
             return v_old + VT * math.log(arg) if arg > 0 else v_crit
-        return VT * math.log(v_new / VT)
+        # (v_crit < 0 only for absurdly large I_S, as the describing function may try)
+        return VT * math.log(v_new / VT) if v_new > 0 else v_new
     return v_new
 
 

@@ -55,8 +55,9 @@ VCE_SATURATION_EDGE: Final = 0.2
 #: Beyond this drive the junction conducts in short pulses only; the
 #: sinusoidal-drive assumption is poor, V/V_T.
 X_PULSED: Final = 40.0
-#: Largest drive searched, V/V_T.
-X_MAX: Final = 400.0
+#: Largest drive searched, V/V_T (about 3 V of base-emitter drive: beyond it the
+#: junction would be driven into reverse breakdown on the negative peaks).
+X_MAX: Final = 120.0
 #: Secant on the drive: second trial factor, step limit (in ln x), tolerance
 #: on ln(gain) and iteration cap.
 SECANT_FIRST: Final = 1.2

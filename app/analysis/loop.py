@@ -174,8 +174,9 @@ def _figures_from(
     ss: SmallSignal, f_osc: np.ndarray, T: np.ndarray, dT_ds: np.ndarray, x: np.ndarray
 ) -> LoopFigures:
     w = TWO_PI * np.nan_to_num(f_osc, nan=1.0)
-    slope = (dT_ds / T).real  # dφ/dω = Im((dT/dω)/T), dT/dω = j dT/ds
-    nan = ~np.isfinite(f_osc)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slope = (dT_ds / T).real  # dφ/dω = Im((dT/dω)/T), dT/dω = j dT/ds
+    nan = ~np.isfinite(f_osc) | ~np.isfinite(slope) | (np.abs(T) == 0)
 
     def mask(a: np.ndarray) -> np.ndarray:
         return np.where(nan, np.nan, a)

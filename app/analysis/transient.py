@@ -131,18 +131,21 @@ def transient_system(solved: Solved) -> tuple[LinearSystem, np.ndarray]:
 def bias_time_constant(design: Design) -> float:
     """Longest time constant of the bias network that follows the amplitude, s.
 
-    The emitter bypass against RE (common-emitter), the base bypass against
-    the divider (common-base) and the base coupling capacitor against the
-    divider (every form).
+    The capacitors that charge from the transistor's rectified current, each
+    against the resistance it discharges through: the emitter bypass against RE
+    (common-emitter), the base bypass against the divider (common-base), the
+    input coupling capacitor against the divider (common-emitter and
+    common-collector) or against RE (common-base).
     """
-    b = design.bias
+    b, k = design.bias, design.coupling
     R_div = b.RB1 * b.RB2 / (b.RB1 + b.RB2)
-    taus = [design.coupling.Cc2 * R_div]
-    if design.topology is Topology.CE and b.CE is not None:
-        taus.append(b.RE * b.CE)
-    if design.topology is Topology.CB and b.CB is not None:
-        taus.append(R_div * b.CB)
-    return max(taus)
+    if design.topology is Topology.CE:
+        assert b.CE is not None
+        return max(b.RE * b.CE, k.Cc2 * R_div)
+    if design.topology is Topology.CB:
+        assert b.CB is not None
+        return max(R_div * b.CB, k.Cc2 * b.RE)
+    return max(k.Cc2 * R_div, k.Cc1 * b.RE)
 
 
 class _Stepper:
@@ -425,4 +428,53 @@ def _measure(
         envelope=[env[i] for i in env_pick] if env else [],
         spectrum_f=spec_f,
         spectrum_dBc=spec_dB,
+    )
+
+
+def simulate(design: Design, cycles: float = 300.0, points: int = 4000):
+    """The transient as the result contract (``ringwise simulate``, ``POST /api/simulate``)."""
+    from app.circuit.topologies import OUTPUT_NODE_LABEL
+    from app.result import (
+        EnvelopeOut,
+        SimulationResult,
+        SpectrumOut,
+        TransientOut,
+        WarningOut,
+        WaveformOut,
+    )
+
+    r = run(design, cycles, points)
+    warnings = []
+    if r.squegging:
+        warnings.append(WarningOut(code="squegging", message=r.notes[0]))
+    elif not r.settled and r.amp_out_peak is not None:
+        warnings.append(
+            WarningOut(code="not-settled", message="the envelope has not settled by the end")
+        )
+    return SimulationResult(
+        name=design.name,
+        topology=design.topology.value,
+        output_node=OUTPUT_NODE_LABEL[design.topology],
+        transient=TransientOut(
+            f_meas=r.f_meas,
+            amp_out_peak=r.amp_out_peak,
+            amp_out_pp=r.amp_out_pp,
+            amp_out_fund=r.amp_out_fund,
+            amp_be_fund=r.amp_be_fund,
+            thd=r.thd,
+            harmonics_dBc=r.harmonics_dBc,
+            t_startup_90=r.t_startup_90,
+            VE_shift=r.VE_shift,
+            squegging=r.squegging,
+            settled=r.settled,
+            cycles_run=r.cycles_run,
+            steps=r.steps,
+            rejected_steps=r.rejected_steps,
+            bias_time_constant=r.bias_time_constant,
+            notes=r.notes,
+            waveform=WaveformOut(t=r.t, v_out=r.v_out, v_be=r.v_base),
+            envelope=EnvelopeOut(t=r.envelope_t, v=r.envelope),
+            spectrum=SpectrumOut(f=r.spectrum_f, dBc=r.spectrum_dBc),
+        ),
+        warnings=warnings,
     )
