@@ -250,13 +250,32 @@ def run(design: Design, cycles: float = 300.0, points: int = 4000) -> Transient:
     if not 100 <= points <= MAX_POINTS:
         raise SimulationError(f"points must be between 100 and {MAX_POINTS}, got {points}")
     solved = solve(design)
-    system, x = transient_system(solved)
-    lay = system.layout
+    system, x0 = transient_system(solved)
     f_ref = solved.f_osc or solved.tank.f_ideal
     h0 = 1.0 / (f_ref * STEPS_PER_CYCLE)
-    t_end = cycles / f_ref
+    trace = integrate(system, x0, h0, cycles / f_ref, T1)
+    return _measure(solved, trace, f_ref, points, h0)
+
+
+@dataclass(frozen=True)
+class Trace:
+    """Samples of one run: time, output node, base-emitter and emitter voltages."""
+
+    t: np.ndarray
+    v_out: np.ndarray
+    v_be: np.ndarray
+    v_e: np.ndarray
+    steps: int
+    rejected: int
+
+
+def integrate(system: LinearSystem, x: np.ndarray, h0: float, t_end: float, out: str) -> Trace:
+    """Trapezoidal integration from state ``x`` to ``t_end`` with nominal step ``h0``.
+
+    ``out`` names the node whose voltage drives the local-error control.
+    """
     stepper = _Stepper(system)
-    i_out, i_e = lay.node[T1], stepper.ie
+    i_out, i_e = system.layout.node[out], stepper.ie
     v = stepper.controls(x)
     v_prev = v
     ph = stepper.phi(*v)
@@ -302,10 +321,18 @@ def run(design: Design, cycles: float = 300.0, points: int = 4000) -> Transient:
             level -= 1
             h = h0 / 2**level
             since_change, quiet = 0, 0
-    return _measure(
-        solved, np.array(ts), np.array(vo), np.array(vbe_t), np.array(ve), f_ref, points,
-        len(ts) - 1, rejected,
-    )  # fmt: skip
+    return Trace(np.array(ts), np.array(vo), np.array(vbe_t), np.array(ve), len(ts) - 1, rejected)
+
+
+def unwarp(f_measured: float, h: float) -> float:
+    """Undo the trapezoidal rule's frequency warping, tan(π·f_d·h) = π·f·h.
+
+    The trapezoidal rule is the bilinear map s = (2/h)(z−1)/(z+1); a resonance
+    at f appears at f_d with tan(π f_d h) = π f h, about (ωh)²/12 low
+    (Oppenheim & Schafer, *Discrete-Time Signal Processing*, bilinear
+    transformation, from memory).
+    """
+    return math.tan(math.pi * f_measured * h) / (math.pi * h)
 
 
 def _crossings(t: np.ndarray, v: np.ndarray) -> np.ndarray:
@@ -315,17 +342,9 @@ def _crossings(t: np.ndarray, v: np.ndarray) -> np.ndarray:
     return t[k] + frac * (t[k + 1] - t[k])
 
 
-def _measure(
-    solved: Solved,
-    t: np.ndarray,
-    vo: np.ndarray,
-    vb: np.ndarray,  # base-emitter voltage
-    ve: np.ndarray,
-    f_ref: float,
-    points: int,
-    steps: int,
-    rejected: int,
-) -> Transient:
+def _measure(solved: Solved, trace: Trace, f_ref: float, points: int, h0: float) -> Transient:
+    t, vo, vb, ve = trace.t, trace.v_out, trace.v_be, trace.v_e
+    steps, rejected = trace.steps, trace.rejected
     t_end = float(t[-1])
     cycles_run = t_end * f_ref
     tail_cycles = max(STEADY_MIN_CYCLES, STEADY_FRACTION * cycles_run)
@@ -353,7 +372,7 @@ def _measure(
     tail_cross = cross[cross >= t_end - tail_cycles / f_ref]
     if grew and tail_cross.size >= 3:
         n = tail_cross.size - 1
-        f_meas = float(n / (tail_cross[-1] - tail_cross[0]))
+        f_meas = unwarp(float(n / (tail_cross[-1] - tail_cross[0])), h0)
         # FFT over a whole number of periods, resampled uniformly.
         grid = np.linspace(tail_cross[0], tail_cross[-1], n * SAMPLES_PER_CYCLE_FFT, endpoint=False)
         spec_o = np.fft.rfft(np.interp(grid, t, vo)) / len(grid) * 2.0
