@@ -66,7 +66,7 @@ def test_sweep_good(client, sample):
     # more collector resistance, more loop gain (ideal CE Colpitts: T = gm·RC·C1/C2,
     # textbook, from memory)
     assert body["gain"] == sorted(body["gain"])
-    assert 0 < body["threshold"]["value"] < 330
+    assert 0 < body["threshold"]["value"] < Design.model_validate(sample).bias.RC
 
 
 def test_sweep_accepts_the_cap_and_refuses_beyond(client, sample):
@@ -101,8 +101,9 @@ def test_threshold_default_is_the_gain_setter(client, sample):
     assert r.status_code == 200
     body = r.json()
     assert body["param"] == "RC"
-    assert body["current"] == 330.0
-    assert 0 < body["value"] < 330.0  # the sample starts, so RC at threshold is lower
+    rc = Design.model_validate(sample).bias.RC
+    assert body["current"] == rc
+    assert 0 < body["value"] < rc  # the sample starts, so RC at threshold is lower
 
 
 def test_threshold_named_param_and_bad_param(client, sample):
