@@ -127,6 +127,25 @@ class Device(_Part):
         return data
 
 
+class Noise(_Part):
+    """Inputs of the phase-noise estimate (Leeson's model)."""
+
+    F_dB: Annotated[float, _si(""), Field(ge=0, le=40)] = Field(
+        default=6.0, description="Effective device noise factor, dB (typical, from memory)"
+    )
+    f_corner: Annotated[float, _si("Hz"), Field(gt=0, le=1e9)] = Field(
+        default=10e3, description="Flicker corner of the device, Hz (typical, from memory)"
+    )
+
+
+class Ratings(_Part):
+    """Part ratings checked against the estimated stresses."""
+
+    V_cap: Volts = Field(
+        default=50.0, description="Voltage rating of the capacitors, V (common ceramic rating)"
+    )
+
+
 class Design(_Part):
     """One oscillator design, all values in SI base units."""
 
@@ -143,6 +162,8 @@ class Design(_Part):
     temperature_C: Annotated[float, _si(""), Field(ge=-60, le=200)] = Field(
         default=25.0, description="Operating temperature, °C"
     )
+    noise: Noise = Field(default_factory=Noise)
+    ratings: Ratings = Field(default_factory=Ratings)
 
     @model_validator(mode="after")
     def _parts_for_topology(self) -> Design:
@@ -189,6 +210,9 @@ PARAMETERS: Final[dict[str, str]] = {
     "VA": "device",
     "fT": "device",
     "C_mu": "device",
+    "F_dB": "noise",
+    "f_corner": "noise",
+    "V_cap": "ratings",
 }
 
 

@@ -125,6 +125,37 @@ class LargeSignalOut(_Out):
     reason: str | None
 
 
+class NoisePointOut(_Out):
+    offset: Num = Field(description="Offset from the carrier, Hz")
+    dBc_Hz: Num = Field(description="Single-sideband phase noise, dBc/Hz")
+
+
+class NoiseCurveOut(_Out):
+    offset: list[float] = Field(description="Offsets 10 Hz … 10 MHz, Hz")
+    dBc_Hz: list[float] = Field(description="Leeson SSB phase noise, dBc/Hz")
+
+
+class PartStressOut(_Out):
+    part: str
+    I_rms: Num = Field(description="RMS signal current, A")
+    V_peak: Num = Field(description="Peak voltage, DC plus signal amplitude, V")
+    P: Num = Field(description="Dissipated signal power, W")
+
+
+class StabilityOut(_Out):
+    Q_loaded: Num = Field(description="Loaded Q from the loop's phase slope")
+    P_signal: Num = Field(description="Signal power dissipated in the resonator loss, W")
+    F_dB: Num = Field(description="Device noise factor used, dB")
+    f_corner: Num = Field(description="Flicker corner used, Hz")
+    leeson_corner: Num = Field(description="f0/(2·Q_loaded): edge of the 1/f² region, Hz")
+    phase_noise: list[NoisePointOut]
+    curve: NoiseCurveOut
+    pushing_Hz_per_V: Num = Field(description="df_osc/dVcc, Hz/V")
+    pulling_Hz: Num = Field(description="f_osc with the load minus f_osc open, Hz")
+    pulling_Hz_per_ohm: Num = Field(description="df_osc/dR_load at the load, Hz/Ω")
+    parts: list[PartStressOut]
+
+
 class Result(_Out):
     format: Literal["ringwise.result"] = "ringwise.result"
     version: Literal[1] = 1
@@ -138,6 +169,7 @@ class Result(_Out):
     startup: StartupOut
     swing: SwingOut
     large_signal: LargeSignalOut
+    stability: StabilityOut
     warnings: list[WarningOut]
 
 

@@ -36,6 +36,9 @@ def test_sample_starts_with_margin(path) -> None:
     assert r.startup.verdict == "will-start"
     assert r.poles.sigma > 0
     assert abs(r.loop.f_osc / r.tank.f_ideal - 1) < 0.02
-    assert r.warnings == []
+    # Advice about the load pulling the frequency is expected where a load is
+    # given; nothing else may be flagged.
+    assert {w.code for w in r.warnings} <= {"load-pulling"}
+    assert r.large_signal.valid and r.large_signal.amp_out > 0
     data = json.loads(r.model_dump_json())
     assert _finite_or_null(data)

@@ -7,6 +7,7 @@ from app.analysis.checks import Finding, rule_checks, squegging_risk
 from app.analysis.describing import describing_function
 from app.analysis.operating import Solved, solve
 from app.analysis.poles import natural_frequencies
+from app.analysis.stability import stability
 from app.analysis.startup import fixed_bias_drive, gm_ratio, verdict
 from app.analysis.threshold import find_threshold
 from app.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, ideal_gain
@@ -15,11 +16,15 @@ from app.result import (
     BudgetLineOut,
     LargeSignalOut,
     LoopOut,
+    NoiseCurveOut,
+    NoisePointOut,
     OperatingPointOut,
+    PartStressOut,
     PoleOut,
     PolesOut,
     Result,
     SmallSignalOut,
+    StabilityOut,
     StartupOut,
     SwingOut,
     TankOut,
@@ -44,6 +49,8 @@ def analyze(design: Design) -> Result:
     findings += squegging_risk(s, poles)
     if not ls.valid and ls.x is not None and ls.reason:
         findings.append(Finding("amplitude-estimate", ls.reason))
+    st = stability(s, ls)
+    findings += [Finding(code, message) for code, message in st.notes]
     if threshold.value is None and threshold.reason:
         findings.append(Finding("no-threshold", threshold.reason))
     dom = poles.dominant
@@ -108,6 +115,19 @@ def analyze(design: Design) -> Result:
             output_node=OUTPUT_NODE_LABEL[design.topology],
             valid=ls.valid,
             reason=ls.reason,
+        ),
+        stability=StabilityOut(
+            Q_loaded=st.Q_loaded,
+            P_signal=st.P_signal,
+            F_dB=st.F_dB,
+            f_corner=st.f_corner,
+            leeson_corner=st.leeson_corner,
+            phase_noise=[NoisePointOut(offset=o, dBc_Hz=v) for o, v in st.phase_noise],
+            curve=NoiseCurveOut(offset=[o for o, _ in st.curve], dBc_Hz=[v for _, v in st.curve]),
+            pushing_Hz_per_V=st.pushing_Hz_per_V,
+            pulling_Hz=st.pulling_Hz,
+            pulling_Hz_per_ohm=st.pulling_Hz_per_ohm,
+            parts=[PartStressOut(**vars(p)) for p in st.parts],
         ),
         warnings=[WarningOut(code=f.code, message=f.message) for f in findings],
     )

@@ -101,6 +101,10 @@ class LargeSignal:
     x_fixed_bias: float | None
     valid: bool
     reason: str | None
+    #: Fundamental phasors of every unknown (node voltages, branch currents), V or A.
+    phasors: np.ndarray | None = None
+    #: Average state (node voltages, branch currents) with the drive applied.
+    x_avg: np.ndarray | None = None
 
 
 def _with_IS(system: LinearSystem, factor: float) -> LinearSystem:
@@ -228,4 +232,6 @@ def _figures(solved: Solved, x: float, x_fixed: float, op, ss, loop) -> LargeSig
         x_fixed_bias=x_fixed,
         valid=valid,
         reason=reason,
+        phasors=sol * scale,
+        x_avg=op.x,
     )

@@ -1,0 +1,193 @@
+r"""Frequency stability figures: Leeson phase noise, pushing, pulling, tank stresses.
+
+Phase noise follows Leeson's single-sideband model,
+
+.. math::
+
+    \mathcal{L}(\Delta f) = 10\log_{10}\left[\frac{F k T}{2 P_s}
+    \left(1 + \left(\frac{f_0}{2 Q_L \Delta f}\right)^2\right)
+    \left(1 + \frac{f_c}{\Delta f}\right)\right]\ \mathrm{dBc/Hz}
+
+with :math:`Q_L` the loaded Q from the loop's phase slope, :math:`P_s` the
+signal power dissipated in the resonator's loss (the coil's series
+resistance, at the describing-function amplitude), F the device's effective
+noise factor and f_c its flicker corner.  Forms of the formula that circulate
+differ by 6 dB through other definitions of P_s and of single- versus
+double-sideband noise; this is Leeson's original single-sideband form.
+
+Pushing is df/dVcc from two full solves at Vcc ± a step; pulling is the
+change of f_osc from an open output to the given load, and df/dR_load there.
+
+References
+----------
+D. B. Leeson, "A simple model of feedback oscillator noise spectrum",
+Proc. IEEE 54(2), 1966 (from memory).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Final
+
+import numpy as np
+from scipy import constants
+
+from app.analysis.describing import LargeSignal
+from app.analysis.operating import Solved, solve
+from app.circuit.netlist import Capacitor, Inductor
+from app.design import with_param
+
+#: Offsets reported and plotted, Hz.
+REPORT_OFFSETS: Final = (100.0, 1e3, 10e3, 100e3)
+PLOT_DECADES: Final = (1.0, 7.0)  # 10 Hz … 10 MHz
+PLOT_POINTS: Final = 61
+#: Supply step for pushing, as a fraction of Vcc.
+PUSH_STEP: Final = 0.01
+#: Relative step of R_load for df/dR_load.
+PULL_STEP: Final = 0.01
+#: Pulling beyond this fraction of f_osc earns a buffer recommendation
+#: (common practice, no source).
+PULL_BUFFER_PPM: Final = 100.0
+#: A capacitor's peak voltage above this fraction of its rating is flagged.
+RATING_FRACTION: Final = 0.8
+
+
+@dataclass(frozen=True)
+class PartStress:
+    part: str
+    I_rms: float
+    V_peak: float
+    P: float
+
+
+@dataclass(frozen=True)
+class Stability:
+    Q_loaded: float | None
+    P_signal: float | None
+    F_dB: float
+    f_corner: float
+    leeson_corner: float | None
+    phase_noise: list[tuple[float, float]]
+    curve: list[tuple[float, float]]
+    pushing_Hz_per_V: float | None
+    pulling_Hz: float | None
+    pulling_Hz_per_ohm: float | None
+    parts: list[PartStress]
+    notes: list[tuple[str, str]]
+
+
+def leeson(
+    offset: np.ndarray | float, f0: float, Q_loaded: float, P_s: float, F_dB: float,
+    f_corner: float, T: float,
+) -> np.ndarray:  # fmt: skip
+    """Leeson's SSB phase noise, dBc/Hz, at ``offset`` (Hz) from the carrier ``f0`` (Hz)."""
+    df = np.asarray(offset, dtype=float)
+    F = 10.0 ** (F_dB / 10.0)
+    floor = F * constants.k * T / (2.0 * P_s)
+    return 10.0 * np.log10(
+        floor * (1.0 + (f0 / (2.0 * Q_loaded * df)) ** 2) * (1.0 + f_corner / df)
+    )
+
+
+def pushing(solved: Solved) -> float | None:
+    """df_osc/dVcc, Hz/V, by a central difference of two full solves."""
+    Vcc = solved.design.supply.Vcc
+    dV = PUSH_STEP * Vcc
+    f = [solve(with_param(solved.design, "Vcc", Vcc + s * dV)).f_osc for s in (1.0, -1.0)]
+    if None in f:
+        return None
+    return (f[0] - f[1]) / (2.0 * dV)
+
+
+def pulling(solved: Solved) -> tuple[float | None, float | None]:
+    """(f with the load − f open, Hz; df/dR_load at the load, Hz/Ω)."""
+    R = solved.design.load.R_load
+    if R is None or solved.f_osc is None:
+        return (0.0 if solved.f_osc is not None else None), None
+    d = solved.design
+    open_design = d.model_copy(update={"load": d.load.model_copy(update={"R_load": None})})
+    f_open = solve(open_design).f_osc
+    f_hi = solve(with_param(d, "R_load", R * (1 + PULL_STEP))).f_osc
+    f_lo = solve(with_param(d, "R_load", R * (1 - PULL_STEP))).f_osc
+    shift = solved.f_osc - f_open if f_open is not None else None
+    slope = (f_hi - f_lo) / (2 * PULL_STEP * R) if None not in (f_hi, f_lo) else None
+    return shift, slope
+
+
+def part_stresses(solved: Solved, ls: LargeSignal) -> list[PartStress]:
+    """RMS current and voltage, peak voltage (DC + AC) and dissipation of each tank part."""
+    if ls.phasors is None or ls.x_avg is None:
+        return []
+    lay = solved.system.layout
+    ph, avg = ls.phasors, ls.x_avg
+
+    def v(node: str, x: np.ndarray) -> complex:
+        return complex(x[lay.node[node]]) if node in lay.node else 0j
+
+    out = []
+    w = 2.0 * math.pi * (ls.f or 0.0)
+    for el in solved.netlist:
+        if isinstance(el, Inductor):
+            I_pk = abs(ph[lay.branch[el.name]])
+            V = abs(v(el.a, ph) - v(el.b, ph))
+            out.append(PartStress(el.name, I_pk / math.sqrt(2), V, 0.5 * I_pk**2 * el.R_s))
+        elif isinstance(el, Capacitor) and el.name in ("C1", "C2", "C3", "Cc1", "Cc2"):
+            V_ac = abs(v(el.a, ph) - v(el.b, ph))
+            V_dc = abs((v(el.a, avg) - v(el.b, avg)).real)
+            out.append(PartStress(el.name, w * el.C * V_ac / math.sqrt(2), V_dc + V_ac, 0.0))
+    return out
+
+
+def stability(solved: Solved, ls: LargeSignal) -> Stability:
+    """All stability figures of a solved design with its describing-function state."""
+    d = solved.design
+    Q = float(solved.loop.Q_loaded) if solved.f_osc is not None else None
+    P_s = ls.P_tank
+    T = d.temperature_C + constants.zero_Celsius
+    pn: list[tuple[float, float]] = []
+    curve: list[tuple[float, float]] = []
+    corner = None
+    if Q and P_s and P_s > 0 and solved.f_osc:
+        f0 = solved.f_osc
+        corner = f0 / (2.0 * Q)
+        args = (f0, Q, P_s, d.noise.F_dB, d.noise.f_corner, T)
+        pn = [(o, float(leeson(o, *args))) for o in REPORT_OFFSETS]
+        grid = np.logspace(*PLOT_DECADES, PLOT_POINTS)
+        curve = list(zip(grid.tolist(), leeson(grid, *args).tolist(), strict=True))
+    push = pushing(solved) if solved.f_osc is not None else None
+    shift, slope = pulling(solved)
+    parts = part_stresses(solved, ls)
+    notes: list[tuple[str, str]] = []
+    if shift is not None and solved.f_osc and abs(shift) / solved.f_osc * 1e6 > PULL_BUFFER_PPM:
+        notes.append(
+            (
+                "load-pulling",
+                f"the load moves f_osc by {abs(shift) / solved.f_osc * 1e6:.0f} ppm; "
+                "take the output through a buffer stage (an emitter follower or a "
+                "common-base isolation stage) or couple it more loosely",
+            )
+        )
+    for p in parts:
+        if p.part.startswith("C") and p.V_peak > RATING_FRACTION * d.ratings.V_cap:
+            notes.append(
+                (
+                    "capacitor-stress",
+                    f"{p.part} sees {p.V_peak:.3g} V peak, over {100 * RATING_FRACTION:.0f} % "
+                    f"of its {d.ratings.V_cap:g} V rating",
+                )
+            )
+    return Stability(
+        Q_loaded=Q,
+        P_signal=P_s,
+        F_dB=d.noise.F_dB,
+        f_corner=d.noise.f_corner,
+        leeson_corner=corner,
+        phase_noise=pn,
+        curve=curve,
+        pushing_Hz_per_V=push,
+        pulling_Hz=shift,
+        pulling_Hz_per_ohm=slope,
+        parts=parts,
+        notes=notes,
+    )
