@@ -94,6 +94,6 @@ def test_samples_have_stability_figures(path) -> None:
     assert values[-1] > -200
     assert len(st.curve.offset) == len(st.curve.dBc_Hz) > 10
     coil = next(p for p in st.parts if p.part == "L")
-    assert coil.P == pytest.approx(st.P_signal, rel=1e-9)
+    assert pytest.approx(st.P_signal, rel=1e-9) == coil.P
     assert coil.I_rms > 0 and all(np.isfinite(p.V_peak) for p in st.parts)
     assert st.pushing_Hz_per_V is not None
