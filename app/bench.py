@@ -23,6 +23,8 @@ SAMPLES: Final = Path(__file__).resolve().parent.parent / "sample_designs"
 ANALYZE_TARGET: Final = 5e-3
 SWEEP_TARGET: Final = 200e-3
 SWEEP_POINTS: Final = 200
+TRANSIENT_CYCLES: Final = 300
+TRANSIENT_TARGET: Final = 1.0
 
 
 def median_time(fn: Callable[[], object], repeat: int, warmup: int = 2) -> float:
@@ -51,6 +53,13 @@ def _line(label: str, seconds: float, target: float) -> str:
 
 
 def bench_core() -> list[str]:
+    from app.analysis.budget import loop_budget
+    from app.analysis.describing import describing_function
+    from app.analysis.operating import solve
+    from app.analysis.poles import natural_frequencies
+    from app.analysis.stability import stability
+    from app.analysis.threshold import find_threshold
+
     lines = ["analysis core (median CPU time of 30 runs each):"]
     designs = [
         Design.model_validate(json.loads(p.read_text(encoding="utf-8")))
@@ -60,6 +69,19 @@ def bench_core() -> list[str]:
         lines.append(
             _line(f"analyze {d.name[:36]}", median_time(lambda d=d: analyze(d), 30), ANALYZE_TARGET)
         )
+        s = solve(d)
+        ls = describing_function(s)
+        setter = GAIN_SETTER[d.topology]
+        stages = {
+            "solve": lambda d=d: solve(d),
+            "threshold": lambda d=d, s=s: find_threshold(d, setter, start=s),
+            "budget": lambda s=s: loop_budget(s, setter),
+            "poles": lambda s=s: natural_frequencies(s.ss, s.tank.f_ideal, s.f_osc),
+            "describing fn": lambda s=s: describing_function(s),
+            "stability": lambda s=s, ls=ls: stability(s, ls),
+        }
+        parts = "  ".join(f"{k} {median_time(fn, 15) * 1e3:.2f}" for k, fn in stages.items())
+        lines.append(f"      stages, ms: {parts}")
     d = designs[0]
     param = GAIN_SETTER[d.topology]
     value = get_param(d, param)
@@ -68,6 +90,37 @@ def bench_core() -> list[str]:
     lines.append(
         _line(f"sweep of {param}, {SWEEP_POINTS} points (with threshold)", t, SWEEP_TARGET)
     )
+    return lines
+
+
+def bench_transient() -> list[str]:
+    """300-cycle transients of every sample against SciPy's Radau on the same equations."""
+    from app.analysis.reference import reference_run
+    from app.analysis.transient import _crossings, run
+
+    lines = [
+        f"transient, {TRANSIENT_CYCLES} cycles (wall time, one run each) vs scipy solve_ivp Radau "
+        "rtol 1e-7:"
+    ]
+    for path in sorted(SAMPLES.glob("*.json")):
+        d = Design.model_validate(json.loads(path.read_text(encoding="utf-8")))
+        t0 = time.perf_counter()
+        ours = run(d, cycles=TRANSIENT_CYCLES)
+        t_ours = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        t, vo, _vb, _ve, f_ref = reference_run(d, TRANSIENT_CYCLES)
+        t_ref = time.perf_counter() - t0
+        tail = t >= t[-1] - 0.2 * TRANSIENT_CYCLES / f_ref
+        ref_amp = 0.5 * (vo[tail].max() - vo[tail].min())
+        cross = _crossings(t[tail], vo[tail] - vo[tail].mean())
+        ref_f = (len(cross) - 1) / (cross[-1] - cross[0])
+        d_amp = (ours.amp_out_peak or 0.0) / ref_amp - 1.0
+        d_f = (ours.f_meas or 0.0) / ref_f - 1.0
+        lines.append(
+            f"  {d.name[:36]:<36} ours {t_ours:6.2f} s (target ≤ {TRANSIENT_TARGET:g} s)"
+            f"  Radau {t_ref:6.1f} s  speed-up x{t_ref / t_ours:5.1f} (target ≥ 10)"
+            f"  Δamp {100 * d_amp:+.3f} %  Δf {100 * d_f:+.4f} %"
+        )
     return lines
 
 
@@ -86,6 +139,8 @@ def main() -> None:
     for line in bench_core():
         print(line, flush=True)
     for line in bench_web():
+        print(line, flush=True)
+    for line in bench_transient():
         print(line, flush=True)
 
 

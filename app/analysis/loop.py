@@ -27,6 +27,7 @@ Razavi, *RF Microelectronics*, oscillator chapter (phase-slope Q), both from mem
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from typing import Final
@@ -43,6 +44,9 @@ FREQ_RTOL: Final = 1e-11
 #: Newton steps that stop shrinking below this relative size have reached the
 #: round-off floor of Im T and are accepted.
 NOISE_RTOL: Final = 1e-8
+#: Bisection narrows a bracket to this relative width, then hands over to Newton.
+BISECT_HANDOVER: Final = 1e-6
+BISECT_MAX: Final = 60
 #: Newton iterations allowed when refining a crossing.
 NEWTON_STEPS: Final = 30
 TWO_PI: Final = 2.0 * math.pi
@@ -206,8 +210,22 @@ def find_oscillation(
     first = refine_crossing(ss, start, start / SEARCH_SPAN, start * SEARCH_SPAN)
     if np.all(first.found):
         return first
+    if not batch:
+        return _grid_search(ss, f_ref_a)
+    # Search the grid only for the members Newton could not settle.
+    todo = ~first.found
+    sub = dataclasses.replace(ss, G=ss.G[todo], C=ss.C[todo], gm=np.asarray(ss.gm)[todo])
+    second = _grid_search(sub, f_ref_a[todo])
+    merged = [a.copy() for a in _astuple(first)]
+    for out, part in zip(merged, _astuple(second), strict=True):
+        out[todo] = part
+    return LoopFigures(*merged)
+
+
+def _grid_search(ss: SmallSignal, f_ref: np.ndarray) -> LoopFigures:
+    """Grid over f_ref/SPAN … f_ref·SPAN, then bracketed Newton (and bisection if needed)."""
     grid = np.geomspace(1.0 / SEARCH_SPAN, SEARCH_SPAN, SEARCH_POINTS)
-    f_grid = f_ref_a[..., None] * grid
+    f_grid = f_ref[..., None] * grid
     T = return_ratio(ss, TWO_PI * 1j * f_grid)
     im, re = T.imag, T.real
     falling = (im[..., :-1] > 0) & (im[..., 1:] <= 0) & (re[..., :-1] + re[..., 1:] > 0)
@@ -218,10 +236,10 @@ def find_oscillation(
     hi = np.take_along_axis(f_grid, k[..., None] + 1, -1)[..., 0]
     second = refine_crossing(ss, np.sqrt(lo * hi), lo, hi)
     second = _bisect_leftovers(ss, second, lo, hi, has)
-    use_first = first.found
-    return LoopFigures(
-        *(np.where(use_first, a, b) for a, b in zip(_astuple(first), _astuple(second), strict=True))
-    )
+    nothing = np.asarray(~has)
+    if np.any(nothing):
+        second = LoopFigures(*(np.where(nothing, np.nan, a) for a in _astuple(second)))
+    return second
 
 
 def _bisect_leftovers(
@@ -232,12 +250,17 @@ def _bisect_leftovers(
     if not np.any(need):
         return figs
     lo, hi = lo.copy(), hi.copy()
-    while np.any(need & (hi - lo > FREQ_RTOL * hi)):
+    for _ in range(BISECT_MAX):
+        narrow = need & (hi - lo <= BISECT_HANDOVER * hi)
+        if np.all(narrow | ~need):
+            break
         mid = np.sqrt(lo * hi)
         im = return_ratio(ss, TWO_PI * 1j * mid[..., None])[..., 0].imag
         lo = np.where(need & (im > 0), mid, lo)
         hi = np.where(need & (im <= 0), mid, hi)
-    f = np.where(need, np.sqrt(lo * hi), figs.f_osc)
+    # A narrow bracket is well inside Newton's basin even for a high-Q tank.
+    newton = refine_crossing(ss, np.sqrt(lo * hi), lo, hi)
+    f = np.where(need, np.where(newton.found, newton.f_osc, np.sqrt(lo * hi)), figs.f_osc)
     return _figures(ss, f)
 
 

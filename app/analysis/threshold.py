@@ -179,6 +179,11 @@ def _secant_slope(trials: _Trials, x0: float, g0: float) -> tuple[float, float] 
     if abs(x1 - x0) < math.log(FIRST_STEP):
         x1 = x0 + math.log(FIRST_STEP)
     g1 = trials.log_gain(x1)
+    for _retreat in range(RETREATS):
+        if _usable(g1):
+            break
+        x1 = 0.5 * (x0 + x1)
+        g1 = trials.log_gain(x1)
     for _ in range(SECANT_STEPS):
         if not (_usable(g0) and _usable(g1)) or g1 == g0:
             return None
