@@ -74,8 +74,8 @@ def bench_core() -> list[str]:
         setter = GAIN_SETTER[d.topology]
         stages = {
             "solve": lambda d=d: solve(d),
-            "threshold": lambda d=d, s=s: find_threshold(d, setter, start=s),
-            "budget": lambda s=s: loop_budget(s, setter),
+            "threshold": lambda d=d, s=s, p=setter: find_threshold(d, p, start=s),
+            "budget": lambda s=s, p=setter: loop_budget(s, p),
             "poles": lambda s=s: natural_frequencies(s.ss, s.tank.f_ideal, s.f_osc),
             "describing fn": lambda s=s: describing_function(s),
             "stability": lambda s=s, ls=ls: stability(s, ls),
