@@ -17,7 +17,7 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import Annotated, Any, Final
 
-from pydantic import TypeAdapter, ValidationError
+from pydantic import BaseModel, TypeAdapter, ValidationError
 
 from app.design import FORMAT, PARAMETERS, VERSION, Design, Topology
 from app.errors import describe_validation_error
@@ -53,7 +53,18 @@ class FormField:
 
     @property
     def optional(self) -> bool:
+        """Whether the field may be left blank (absent part, or a default applies)."""
         return not _field_info(self).is_required()
+
+    @property
+    def nullable(self) -> bool:
+        """Whether blank means an absent part (``null``), not "use the default"."""
+        return self.optional and _field_info(self).default is None
+
+    @property
+    def default(self) -> Any:
+        info = _field_info(self)
+        return None if info.is_required() else info.default
 
 
 #: Input groups in page order: key, heading.
@@ -87,11 +98,14 @@ FIELDS: Final[tuple[FormField, ...]] = (
     FormField("VA", "transistor", "V_A, Early voltage", "V"),
     FormField("fT", "transistor", "f_T, transition frequency", "Hz"),
     FormField("C_mu", "transistor", "C_μ, base–collector capacitance", "F"),
+    FormField("F_dB", "transistor", "Noise factor for phase noise, dB (blank: default)", ""),
+    FormField("f_corner", "transistor", "Flicker corner (blank: default)", "Hz"),
     FormField("Cc1", "load", "Cc1, DC block at the output terminal", "F"),
     FormField("Cc2", "load", "Cc2, DC block at the input terminal", "F"),
     FormField("R_load", "load", "R_load, load on the output (blank: none)", "Ω"),
     FormField("Vcc", "conditions", "Vcc, supply", "V"),
     FormField("temperature_C", "conditions", "Temperature", "°C"),
+    FormField("V_cap", "conditions", "Capacitor voltage rating (blank: default)", "V"),
 )
 
 BY_NAME: Final = {f.name: f for f in FIELDS}
@@ -103,6 +117,14 @@ TOPOLOGY_LABELS: Final = {
     Topology.CB.value: "common-base (base at signal ground)",
     Topology.CC.value: "common-collector (collector at signal ground)",
 }
+
+
+#: The design's sections (its fields that are models of their own), in file order.
+_SECTIONS: Final = tuple(
+    key
+    for key, info in Design.model_fields.items()
+    if isinstance(info.annotation, type) and issubclass(info.annotation, BaseModel)
+)
 
 
 def _field_info(field: FormField):
@@ -157,7 +179,12 @@ def check_field(field: FormField, text: str) -> FieldState:
             return FieldState(text, None, "", f"unknown transistor preset {text!r}; known: {known}")
         return FieldState(text, text or None, DEVICE_PRESET_LABELS.get(text, ""), None)
     if text.strip() == "" and field.kind == "quantity":
-        shown = "none" if field.optional else ""
+        if field.nullable:
+            shown = "none"
+        elif field.optional:
+            shown = f"default {display(field.default, field.unit)}"
+        else:
+            shown = ""
         return FieldState(text, None, shown, None)
     try:
         value = _ADAPTERS[field.name].validate_python(text)
@@ -208,7 +235,7 @@ def document(texts: Mapping[str, str], *, for_file: bool = False) -> dict[str, A
         if f.section is not None:
             sections.setdefault(f.section, {})
         if text.strip() == "":
-            if f.name == "preset" or (f.optional and f.section is not None):
+            if f.name == "preset" or (f.nullable and f.section is not None):
                 sections[f.section][f.name] = None  # type: ignore[index]
             continue
         value: Any = _json_value(text) if for_file and f.kind == "quantity" else text
@@ -216,12 +243,15 @@ def document(texts: Mapping[str, str], *, for_file: bool = False) -> dict[str, A
             doc[f.name] = value
         else:
             sections[f.section][f.name] = value
-    order = ["format", "version", "name", "topology"]
-    out = {k: doc[k] for k in order if k in doc}
-    for section in ("supply", "bias", "tank", "coupling", "load", "device"):
-        out[section] = sections.get(section, {})
-    if "temperature_C" in doc:
-        out["temperature_C"] = doc["temperature_C"]
+    out: dict[str, Any] = {}
+    for key, info in Design.model_fields.items():
+        if key in _SECTIONS:
+            content = sections.get(key, {})
+            # a section that has defaults of its own is left out when nothing in it is set
+            if content or info.is_required() or key == "load":
+                out[key] = content
+        elif key in doc:
+            out[key] = doc[key]
     return out
 
 
@@ -231,9 +261,6 @@ class DocumentError(ValueError):
     def __init__(self, problems: list[dict]) -> None:
         super().__init__("; ".join(f"{p['field']}: {p['message']}" for p in problems))
         self.problems = problems
-
-
-_SECTIONS: Final = ("supply", "bias", "tank", "coupling", "load", "device")
 
 
 def texts_from_document(doc: Any) -> dict[str, str]:

@@ -114,3 +114,14 @@ def test_document_errors_name_every_key():
     with pytest.raises(DocumentError) as info:
         texts_from_document({"format": "ringwise.design", "version": 1, "x": 1, "bias": {"Q": 2}})
     assert [p["field"] for p in info.value.problems] == ["x", "bias.Q"]
+
+
+def test_blank_field_with_a_default_uses_the_core_default():
+    state = check_field(BY_NAME["F_dB"], "")
+    assert state.error is None
+    assert state.display == "default 6"
+    texts = dict(SAMPLES[DEFAULT_SAMPLE])
+    assert "noise" not in document(texts)  # nothing set: the core's defaults apply
+    doc = document({**texts, "F_dB": "8"})
+    assert doc["noise"] == {"F_dB": "8"}
+    assert Design.model_validate(doc).noise.F_dB == 8.0
