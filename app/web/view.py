@@ -40,6 +40,8 @@ SHOWN: Final = (
     ("tank.C_series", "F", "Series capacitance Cs", "frequency"),
     ("tank.feedback_ratio", "", "Feedback ratio C1/C2", "frequency"),
     ("loop.Q_loaded", "", "Loaded Q (from the phase slope)", "frequency"),
+    ("large_signal.f", "Hz", "Frequency at full amplitude", "frequency"),
+    ("stability.pushing_Hz_per_V", "Hz/V", "Pushing df/dVcc", "frequency"),
     ("loop.gain_ideal", "", "Loop gain, hand method", "loop"),
     ("loop.gain", "", "Loop gain, full circuit", "loop"),
     ("startup.margin_dB", "dB", "Margin over the threshold of 1", "loop"),
@@ -47,6 +49,8 @@ SHOWN: Final = (
     ("tank.R_s", "Ω", "Coil series loss R_s", "loop"),
     ("loop.Z_out", "Ω", "Load on the controlled source", "loop"),
     ("poles.growth_time", "s", "Envelope growth time 1/σ", "loop"),
+    ("large_signal.amp_out", "V", "Output amplitude (large signal)", "loop"),
+    ("stability.leeson_corner", "Hz", "Leeson corner f0/(2·Q)", "loop"),
     ("operating_point.IC", "A", "Collector current I_C", "bias"),
     ("operating_point.VCE", "V", "V_CE", "bias"),
     ("operating_point.VBE", "V", "V_BE", "bias"),
@@ -69,8 +73,11 @@ PANELS: Final = (
 
 
 def lookup(result: Mapping[str, Any], path: str) -> Any:
+    """The value at a dotted path of the result (``None`` where the result has none)."""
     value: Any = result
     for key in path.split("."):
+        if not isinstance(value, Mapping) or key not in value:
+            return None
         value = value[key]
     return value
 
