@@ -17,8 +17,10 @@ from pydantic import (
     BeforeValidator,
     ConfigDict,
     Field,
+    ValidationError,
     model_validator,
 )
+from pydantic_core import InitErrorDetails, PydanticCustomError
 
 from app.presets import DEVICE_PRESETS
 from app.units import parse_quantity
@@ -48,10 +50,11 @@ def _si(unit: str) -> BeforeValidator:
 
 # Bounds are generous on purpose: wide enough for 1 kHz - 1 GHz designs and for
 # the "ideal limit" checks (huge coupling capacitors, huge beta and VA).
-Volts = Annotated[float, _si("V"), Field(gt=0, le=1000, description="volt")]
-Ohms = Annotated[float, _si("Ω"), Field(gt=0, le=1e12, description="ohm")]
-Farads = Annotated[float, _si("F"), Field(gt=0, le=1e3, description="farad")]
-Henries = Annotated[float, _si("H"), Field(gt=0, le=1e3, description="henry")]
+# Lower bounds are far below any real part but keep the arithmetic finite.
+Volts = Annotated[float, _si("V"), Field(ge=0.01, le=1000, description="volt")]
+Ohms = Annotated[float, _si("Ω"), Field(ge=1e-3, le=1e12, description="ohm")]
+Farads = Annotated[float, _si("F"), Field(ge=1e-15, le=1e3, description="farad")]
+Henries = Annotated[float, _si("H"), Field(ge=1e-12, le=1e3, description="henry")]
 
 
 class _Part(BaseModel):
@@ -80,7 +83,7 @@ class Bias(_Part):
 
 class Tank(_Part):
     L: Henries = Field(description="Tank inductance, H")
-    Q_L: Annotated[float, _si(""), Field(gt=0, le=1e6)] = Field(
+    Q_L: Annotated[float, _si(""), Field(ge=0.01, le=1e6)] = Field(
         description="Unloaded Q of the inductor at the tank's ideal resonance"
     )
     C1: Farads = Field(description="Tank capacitor, collector side (across C-E), F")
@@ -104,11 +107,11 @@ class Device(_Part):
     beta: Annotated[float, _si(""), Field(ge=1, le=1e9)] = Field(
         description="Forward current gain β"
     )
-    IS: Annotated[float, _si("A"), Field(gt=0, le=1e-6)] = Field(
+    IS: Annotated[float, _si("A"), Field(ge=1e-30, le=1e-6)] = Field(
         description="Transport saturation current at 25 °C, A"
     )
     VA: Annotated[float, _si("V"), Field(ge=1, le=1e12)] = Field(description="Early voltage, V")
-    fT: Annotated[float, _si("Hz"), Field(gt=0, le=1e12)] = Field(
+    fT: Annotated[float, _si("Hz"), Field(ge=1e3, le=1e12)] = Field(
         description="Transition frequency, Hz"
     )
     C_mu: Annotated[float, _si("F"), Field(ge=0, le=1e-6)] = Field(
@@ -133,7 +136,7 @@ class Noise(_Part):
     F_dB: Annotated[float, _si(""), Field(ge=0, le=40)] = Field(
         default=6.0, description="Effective device noise factor, dB (typical, from memory)"
     )
-    f_corner: Annotated[float, _si("Hz"), Field(gt=0, le=1e9)] = Field(
+    f_corner: Annotated[float, _si("Hz"), Field(ge=1e-3, le=1e9)] = Field(
         default=10e3, description="Flicker corner of the device, Hz (typical, from memory)"
     )
 
@@ -172,9 +175,23 @@ class Design(_Part):
             Topology.CB: ("RC", "CB"),
             Topology.CC: (),
         }[self.topology]
-        for part in needs:
-            if getattr(self.bias, part) is None:
-                raise ValueError(f"bias.{part} is required by the {self.topology.value} form")
+        missing = [part for part in needs if getattr(self.bias, part) is None]
+        if missing:
+            raise ValidationError.from_exception_data(
+                "Design",
+                [
+                    InitErrorDetails(
+                        type=PydanticCustomError(
+                            "part_required",
+                            "bias.{part} is required by the {form} form",
+                            {"part": part, "form": self.topology.value},
+                        ),
+                        loc=("bias", part),
+                        input=None,
+                    )
+                    for part in missing
+                ],
+            )
         return self
 
     def unused_parts(self) -> list[str]:

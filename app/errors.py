@@ -12,11 +12,20 @@ from typing import Any
 
 from pydantic import ValidationError
 
+
+class DesignError(ValueError):
+    """A design (or a request about one) that the analyses cannot serve as asked.
+
+    The web layer maps every subclass to a 422 with the message; the CLI to
+    exit status 2.
+    """
+
+
 _LIMIT_WORDS = {
-    "greater_than": "must be greater than {gt}",
-    "greater_than_equal": "must be at least {ge}",
-    "less_than": "must be less than {lt}",
-    "less_than_equal": "must be at most {le}",
+    "greater_than": "must be greater than {gt:g}",
+    "greater_than_equal": "must be at least {ge:g}",
+    "less_than": "must be less than {lt:g}",
+    "less_than_equal": "must be at most {le:g}",
 }
 
 
@@ -28,6 +37,8 @@ def _message(error: dict[str, Any]) -> str:
         return f"{_LIMIT_WORDS[kind].format(**ctx)}, got {given!r}"
     if kind == "missing":
         return "is required"
+    if kind == "part_required":
+        return f"is required by the {ctx.get('form')} form"
     if kind == "extra_forbidden":
         return "is not a field of the design format"
     if kind == "value_error":

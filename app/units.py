@@ -94,4 +94,4 @@ def format_si(value: float | None, unit: str = "", digits: int = 4) -> str:
     """Short engineering text for a value in SI base units (``2.2e-9, "F"`` -> ``"2.2 nF"``)."""
     if value is None or not math.isfinite(value):
         return "—"
-    return Quantity(value, unit).render(prec=digits - 1, strip_zeros=True)
+    return Quantity(value, unit).render(prec=digits - 1, strip_zeros=True).replace(" u", " µ")

@@ -23,6 +23,7 @@ from app.circuit.mna import (
 )
 from app.circuit.netlist import NPN
 from app.circuit.npn import JunctionState
+from app.errors import DesignError
 
 #: Newton stops when no unknown moves more than this (V or A) ...
 STEP_TOL: Final = 1e-10
@@ -45,7 +46,7 @@ class Region(str, Enum):
     CUTOFF = "cut-off"
 
 
-class DCConvergenceError(ArithmeticError):
+class DCConvergenceError(DesignError, ArithmeticError):
     """Newton's method found no operating point."""
 
 

@@ -58,6 +58,8 @@ X_PULSED: Final = 40.0
 #: Largest drive searched, V/V_T (about 3 V of base-emitter drive: beyond it the
 #: junction would be driven into reverse breakdown on the negative peaks).
 X_MAX: Final = 120.0
+#: ln I0(x) beyond which the averaged junction is outside floating-point range.
+LOG_I0_MAX: Final = 600.0
 #: Secant on the drive: second trial factor, step limit (in ln x), tolerance
 #: on ln(gain) and iteration cap.
 SECANT_FIRST: Final = 1.2
@@ -123,7 +125,10 @@ class _Drive:
 
     def evaluate(self, x: float):
         s = self.solved
-        system = _with_IS(s.system, math.exp(_log_i0(x)))
+        log_factor = _log_i0(x)
+        if log_factor > LOG_I0_MAX:
+            raise DCConvergenceError(f"drive {x:.3g} V_T is beyond the model's range")
+        system = _with_IS(s.system, math.exp(log_factor))
         xdc = solve_dc(system, self.x_dc)
         op = operating_point(system, xdc)
         hp = hybrid_pi(op.state, s.design.device.fT, s.design.device.C_mu)

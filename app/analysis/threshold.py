@@ -32,6 +32,7 @@ from scipy.optimize import brentq
 from app.analysis.dc import DCConvergenceError
 from app.analysis.operating import Solved, solve
 from app.design import Design, get_param, with_param
+from app.errors import DesignError
 
 #: The threshold is sought within value / RANGE … value · RANGE.
 SEARCH_RANGE: Final = 1e4
@@ -63,7 +64,7 @@ RISING_PARAMS: Final = frozenset({"RC", "Q_L", "R_load", "beta", "VA", "fT"})
 SLOPE_STEP: Final = math.log(1.05)
 
 
-class ParameterError(ValueError):
+class ParameterError(DesignError):
     """A threshold or sweep request names a parameter it cannot use."""
 
 
@@ -308,8 +309,12 @@ def sweep(
     stop: float,
     points: int,
     scale: Literal["log", "linear"] | None = None,
+    threshold: Threshold | None = None,
 ) -> Sweep:
-    """Loop gain and f_osc at ``points`` values of ``param`` (others fixed)."""
+    """Loop gain and f_osc at ``points`` values of ``param`` (others fixed).
+
+    A ``threshold`` the caller already has for this parameter is reused.
+    """
     try:
         current = get_param(design, param)
     except ValueError as err:
@@ -338,7 +343,9 @@ def sweep(
         f_osc.append(last.f_osc)
         gain.append(last.gain if last.f_osc is not None else None)
         valid.append(True)
-    if param in LINEAR_PARAMS:
+    if threshold is not None and threshold.param == param:
+        pass
+    elif param in LINEAR_PARAMS:
         threshold = Threshold(param, None, current, reason=f"{param} has no threshold search")
     else:
         threshold = find_threshold(design, param)

@@ -37,6 +37,7 @@ from __future__ import annotations
 
 import itertools
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Final
 
@@ -47,6 +48,7 @@ from app.circuit.mna import LinearSystem, _stamp_pair
 from app.circuit.npn import junction_currents
 from app.circuit.topologies import T1
 from app.design import Design, Topology
+from app.errors import DesignError
 
 #: Steps per oscillation period at the nominal step size.
 STEPS_PER_CYCLE: Final = 128
@@ -81,7 +83,7 @@ SQUEG_LOW: Final = 0.3
 BIAS_TAU_COVER: Final = 3.0
 
 
-class SimulationError(ValueError):
+class SimulationError(DesignError):
     """A transient request that cannot be run as asked."""
 
 
@@ -243,8 +245,26 @@ class _Stepper:
         return None
 
 
-def run(design: Design, cycles: float = 300.0, points: int = 4000) -> Transient:
-    """Simulate ``cycles`` periods (of the small-signal f_osc) and measure the result."""
+class SimulationCancelledError(Exception):
+    """The progress callback asked the run to stop."""
+
+
+#: The progress callback is called about this often, in steps.
+PROGRESS_EVERY: Final = 2000
+
+
+def run(
+    design: Design,
+    cycles: float = 300.0,
+    points: int = 4000,
+    progress: Callable[[float], bool] | None = None,
+) -> Transient:
+    """Simulate ``cycles`` periods (of the small-signal f_osc) and measure the result.
+
+    ``progress``, if given, is called with the fraction done (0 … 1) every
+    ``PROGRESS_EVERY`` steps; returning ``False`` cancels the run
+    (:class:`SimulationCancelledError`).
+    """
     if not MIN_CYCLES <= cycles <= MAX_CYCLES:
         raise SimulationError(f"cycles must be between {MIN_CYCLES} and {MAX_CYCLES}, got {cycles}")
     if not 100 <= points <= MAX_POINTS:
@@ -253,7 +273,7 @@ def run(design: Design, cycles: float = 300.0, points: int = 4000) -> Transient:
     system, x0 = transient_system(solved)
     f_ref = solved.f_osc or solved.tank.f_ideal
     h0 = 1.0 / (f_ref * STEPS_PER_CYCLE)
-    trace = integrate(system, x0, h0, cycles / f_ref, T1)
+    trace = integrate(system, x0, h0, cycles / f_ref, T1, progress)
     return _measure(solved, trace, f_ref, points, h0)
 
 
@@ -269,10 +289,18 @@ class Trace:
     rejected: int
 
 
-def integrate(system: LinearSystem, x: np.ndarray, h0: float, t_end: float, out: str) -> Trace:
+def integrate(
+    system: LinearSystem,
+    x: np.ndarray,
+    h0: float,
+    t_end: float,
+    out: str,
+    progress: Callable[[float], bool] | None = None,
+) -> Trace:
     """Trapezoidal integration from state ``x`` to ``t_end`` with nominal step ``h0``.
 
-    ``out`` names the node whose voltage drives the local-error control.
+    ``out`` names the node whose voltage drives the local-error control;
+    ``progress`` is as in :func:`run`.
     """
     stepper = _Stepper(system)
     i_out, i_e = system.layout.node[out], stepper.ie
@@ -317,6 +345,8 @@ def integrate(system: LinearSystem, x: np.ndarray, h0: float, t_end: float, out:
         if dev_out > scale:
             scale = dev_out
         since_change += 1
+        if progress is not None and len(ts) % PROGRESS_EVERY == 0 and not progress(t / t_end):
+            raise SimulationCancelledError(f"cancelled at t = {t:.4g} s")
         if level > 0 and quiet >= 8:
             level -= 1
             h = h0 / 2**level
@@ -450,7 +480,12 @@ def _measure(solved: Solved, trace: Trace, f_ref: float, points: int, h0: float)
     )
 
 
-def simulate(design: Design, cycles: float = 300.0, points: int = 4000):
+def simulate(
+    design: Design,
+    cycles: float = 300.0,
+    points: int = 4000,
+    progress: Callable[[float], bool] | None = None,
+):
     """The transient as the result contract (``ringwise simulate``, ``POST /api/simulate``)."""
     from app.circuit.topologies import OUTPUT_NODE_LABEL
     from app.result import (
@@ -462,7 +497,7 @@ def simulate(design: Design, cycles: float = 300.0, points: int = 4000):
         WaveformOut,
     )
 
-    r = run(design, cycles, points)
+    r = run(design, cycles, points, progress)
     warnings = []
     if r.squegging:
         warnings.append(WarningOut(code="squegging", message=r.notes[0]))

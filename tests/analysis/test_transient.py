@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numpy as np
@@ -136,3 +137,14 @@ def test_caps_on_requested_work() -> None:
         run(d, cycles=1e6)
     with pytest.raises(SimulationError, match="points must be between"):
         run(d, cycles=100, points=10**7)
+
+
+def test_progress_is_reported_and_cancels() -> None:
+    from app.analysis.transient import SimulationCancelledError
+
+    d = load_sample(sample_paths()[0])
+    seen: list[float] = []
+    run(d, cycles=60, progress=lambda f: seen.append(f) or True)
+    assert seen and all(0 < a < b <= 1 for a, b in itertools.pairwise(seen))
+    with pytest.raises(SimulationCancelledError):
+        run(d, cycles=60, progress=lambda f: False)

@@ -31,7 +31,7 @@ def test_analyze_returns_the_core_result(client, key):
     [
         ("tank", "L", "47uF", "'47uF' carries the unit 'F', this field takes 'H'"),
         ("tank", "C2", "abc", "'abc' is not a number; write e.g. 2.2n, 2n2, 39k or 1e-6"),
-        ("bias", "RB2", 0, "must be greater than 0, got 0"),
+        ("bias", "RB2", 0, "must be at least 0.001, got 0"),
         ("supply", "Vcc", "2k", "must be at most 1000, got '2k'"),
         ("tank", "bogus", 1, "is not a field of the design format"),
     ],
@@ -49,7 +49,7 @@ def test_analyze_cross_field_rule(client, sample):
     sample["bias"]["RC"] = None
     r = client.post("/api/analyze", json=sample)
     assert r.status_code == 422
-    assert "bias.RC is required by the common-emitter form" in r.json()["message"]
+    assert "bias.RC: is required by the common-emitter form" in r.json()["message"]
 
 
 def test_sweep_good(client, sample):

@@ -12,12 +12,12 @@ def test_field_error_exact_body(client, sample):
     assert r.json() == {
         "status": 422,
         "error": "invalid-input",
-        "message": "tank.C2: must be greater than 0, got '-1'",
+        "message": "tank.C2: must be at least 1e-15, got '-1'",
         "problems": [
             {
                 "field": "tank.C2",
-                "message": "must be greater than 0, got '-1'",
-                "type": "greater_than",
+                "message": "must be at least 1e-15, got '-1'",
+                "type": "greater_than_equal",
             }
         ],
     }

@@ -79,7 +79,7 @@ def test_sample_link_with_overrides():
         ("C2", "2n2", 2.2e-9, "2.2 nF"),  # RKM code, IEC 60062
         ("RB1", "39k", 39e3, "39 kΩ"),
         ("RE", "4R7", 4.7, "4.7 Ω"),  # RKM code, IEC 60062
-        ("L", "47 uH", 47e-6, "47 uH"),
+        ("L", "47 uH", 47e-6, "47 µH"),
         ("Q_L", "120", 120.0, "120"),
         ("C3", "", None, "none"),
     ],
