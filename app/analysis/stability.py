@@ -94,7 +94,8 @@ def pushing(solved: Solved) -> float | None:
     """df_osc/dVcc, Hz/V, by a central difference of two full solves."""
     Vcc = solved.design.supply.Vcc
     dV = PUSH_STEP * Vcc
-    f = [solve(with_param(solved.design, "Vcc", Vcc + s * dV)).f_osc for s in (1.0, -1.0)]
+    x0, f0 = solved.op.x, solved.f_osc
+    f = [solve(with_param(solved.design, "Vcc", Vcc + s * dV), x0, f0).f_osc for s in (1.0, -1.0)]
     if None in f:
         return None
     return (f[0] - f[1]) / (2.0 * dV)
@@ -107,9 +108,10 @@ def pulling(solved: Solved) -> tuple[float | None, float | None]:
         return (0.0 if solved.f_osc is not None else None), None
     d = solved.design
     open_design = d.model_copy(update={"load": d.load.model_copy(update={"R_load": None})})
-    f_open = solve(open_design).f_osc
-    f_hi = solve(with_param(d, "R_load", R * (1 + PULL_STEP))).f_osc
-    f_lo = solve(with_param(d, "R_load", R * (1 - PULL_STEP))).f_osc
+    x0, f0 = solved.op.x, solved.f_osc
+    f_open = solve(open_design, x0, f0).f_osc
+    f_hi = solve(with_param(d, "R_load", R * (1 + PULL_STEP)), x0, f0).f_osc
+    f_lo = solve(with_param(d, "R_load", R * (1 - PULL_STEP)), x0, f0).f_osc
     shift = solved.f_osc - f_open if f_open is not None else None
     slope = (f_hi - f_lo) / (2 * PULL_STEP * R) if None not in (f_hi, f_lo) else None
     return shift, slope
