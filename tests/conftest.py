@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import copy
 import json
+import math
 from pathlib import Path
 from typing import Any
 
@@ -55,6 +56,28 @@ def ideal_data(topology: str) -> dict[str, Any]:
         "coupling": {"Cc1": 1.0, "Cc2": 1.0},
         "device": {"beta": 1e9, "IS": 1e-14, "VA": 1e12, "fT": 1e12, "C_mu": 0.0},
     }
+
+
+def all_finite(value: Any) -> bool:
+    """Every float in a JSON-like structure is finite (null stands for "does not exist")."""
+    if isinstance(value, dict):
+        return all(all_finite(v) for v in value.values())
+    if isinstance(value, list):
+        return all(all_finite(v) for v in value)
+    return not isinstance(value, float) or math.isfinite(value)
+
+
+def at_gain(design: Design, target: float, lo: float = 10.0, hi: float = 10e3) -> Design:
+    """``design`` with RC bisected (on a log scale) to give the requested loop gain."""
+    from app.analysis.operating import solve
+    from app.design import with_param
+
+    a, b = math.log(lo), math.log(hi)
+    for _ in range(60):
+        mid = 0.5 * (a + b)
+        gain = solve(with_param(design, "RC", math.exp(mid))).gain
+        a, b = (mid, b) if gain < target else (a, mid)
+    return with_param(design, "RC", math.exp(0.5 * (a + b)))
 
 
 def sample_paths() -> list[Path]:

@@ -3,22 +3,11 @@
 from __future__ import annotations
 
 import json
-import math
 
 import pytest
 
 from app.analysis.analyze import analyze
-from tests.conftest import load_sample, sample_paths
-
-
-def _finite_or_null(value) -> bool:
-    if isinstance(value, dict):
-        return all(_finite_or_null(v) for v in value.values())
-    if isinstance(value, list):
-        return all(_finite_or_null(v) for v in value)
-    if isinstance(value, float):
-        return math.isfinite(value)
-    return True
+from tests.conftest import all_finite, load_sample, sample_paths
 
 
 def test_there_are_samples_of_every_form() -> None:
@@ -41,4 +30,4 @@ def test_sample_starts_with_margin(path) -> None:
     assert {w.code for w in r.warnings} <= {"load-pulling"}
     assert r.large_signal.valid and r.large_signal.amp_out > 0
     data = json.loads(r.model_dump_json())
-    assert _finite_or_null(data)
+    assert all_finite(data)

@@ -3,12 +3,11 @@
 from __future__ import annotations
 
 import json
-import math
 
 import pytest
 
 from app.analysis.analyze import analyze
-from tests.conftest import BASE_CE, design_from
+from tests.conftest import BASE_CE, all_finite, design_from
 
 # (changes, region, expected warning codes, f_osc exists)
 DEAD = [
@@ -18,14 +17,6 @@ DEAD = [
     ({"coupling__Cc2": "1p"}, "active", {"coupling-reactance"}, True),
     ({"coupling__Cc1": "1p"}, "active", {"no-crossing"}, False),
 ]
-
-
-def _all_finite(value) -> bool:
-    if isinstance(value, dict):
-        return all(_all_finite(v) for v in value.values())
-    if isinstance(value, list):
-        return all(_all_finite(v) for v in value)
-    return not isinstance(value, float) or math.isfinite(value)
 
 
 @pytest.mark.parametrize(("changes", "region", "codes", "has_f"), DEAD)
@@ -39,7 +30,7 @@ def test_dead_designs_are_explained(changes, region, codes, has_f) -> None:
         assert r.loop.gain is None and r.loop.budget == []
     text = r.model_dump_json()
     assert "NaN" not in text and "Infinity" not in text
-    assert _all_finite(json.loads(text))
+    assert all_finite(json.loads(text))
 
 
 def test_saturated_design_still_reports_the_starting_value() -> None:

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import math
-
 import pytest
 from scipy.special import iv
 
@@ -11,8 +9,7 @@ from app.analysis.describing import describing_function
 from app.analysis.operating import solve
 from app.analysis.startup import gm_ratio
 from app.analysis.transient import run
-from app.design import with_param
-from tests.conftest import load_sample, sample_paths
+from tests.conftest import at_gain, load_sample, sample_paths
 
 
 def test_gm_ratio_reference_values() -> None:
@@ -28,13 +25,7 @@ def test_gm_ratio_reference_values() -> None:
 def _clapp_at_gain(target: float):
     """The Clapp sample with RC bisected for the requested loop gain."""
     design = load_sample(next(p for p in sample_paths() if "clapp" in p.name))
-    lo, hi = math.log(30.0), math.log(3e3)
-    for _ in range(50):
-        mid = 0.5 * (lo + hi)
-        lo, hi = (
-            (mid, hi) if solve(with_param(design, "RC", math.exp(mid))).gain < target else (lo, mid)
-        )
-    return with_param(design, "RC", math.exp(lo))
+    return at_gain(design, target, lo=30.0, hi=3e3)
 
 
 @pytest.mark.parametrize("gain", [1.5, 3.0, 5.0])

@@ -9,8 +9,7 @@ from scipy.special import iv
 
 from app.analysis.analyze import analyze
 from app.analysis.startup import fixed_bias_drive, gm_ratio
-from app.design import with_param
-from tests.conftest import BASE_CE, design_from
+from tests.conftest import BASE_CE, at_gain, design_from
 
 
 @pytest.mark.parametrize("x", [1e-3, 0.5, 1.0, 3.0, 10.0, 40.0])
@@ -28,16 +27,7 @@ def test_drive_solves_the_amplitude_condition() -> None:
 
 
 def _at_gain(target: float):
-    """A design of ours whose RC is bisected to give the requested loop gain."""
-    from app.analysis.operating import solve
-
-    design = design_from(BASE_CE)
-    lo, hi = math.log(10.0), math.log(10e3)
-    for _ in range(60):
-        mid = 0.5 * (lo + hi)
-        gain = solve(with_param(design, "RC", math.exp(mid))).gain
-        lo, hi = (mid, hi) if gain < target else (lo, mid)
-    return with_param(design, "RC", math.exp(0.5 * (lo + hi)))
+    return at_gain(design_from(BASE_CE), target)
 
 
 @pytest.mark.parametrize(
