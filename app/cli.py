@@ -15,12 +15,14 @@ from typing import Any
 from pydantic import ValidationError
 
 from app.analysis.analyze import analyze
+from app.analysis.sensitivity import sensitivities
 from app.analysis.threshold import ParameterError, find_threshold, sweep
 from app.analysis.transient import MAX_CYCLES, SimulationError, simulate
 from app.circuit.topologies import GAIN_SETTER
 from app.design import Design
 from app.errors import describe_validation_error
-from app.units import UnitError, parse_quantity
+from app.preferred import SeriesError, snap_design
+from app.units import UnitError, format_si, parse_quantity
 
 EXIT_BAD_INPUT = 2
 
@@ -114,6 +116,27 @@ def cmd_simulate(args: argparse.Namespace) -> None:
     _print(data)
 
 
+def cmd_snap(args: argparse.Namespace) -> None:
+    design = _load(args.design)
+    try:
+        result = snap_design(design, args.series)
+    except SeriesError as err:
+        raise BadInputError(f"--series: {err}") from err
+    _print(result.design.model_dump(mode="json"))
+    for part, before, after in result.changes:
+        print(f"ringwise: {part} {format_si(before)} → {format_si(after)}", file=sys.stderr)
+    print(
+        f"ringwise: f_osc {format_si(result.f_before, 'Hz')} → {format_si(result.f_after, 'Hz')}, "
+        f"loop gain {result.gain_before:.3g} → {result.gain_after:.3g}",
+        file=sys.stderr,
+    )
+
+
+def cmd_sensitivity(args: argparse.Namespace) -> None:
+    rows = sensitivities(_load(args.design))
+    _print([{"part": r.part, "value": r.value, "S_f": r.S_f, "S_gain": r.S_gain} for r in rows])
+
+
 def cmd_serve(args: argparse.Namespace) -> None:
     from app.web.server import serve  # imported here: the core needs no web stack
 
@@ -150,6 +173,15 @@ def parser() -> argparse.ArgumentParser:
     m.add_argument("--points", type=int, default=4000, help="waveform points kept")
     m.add_argument("--waveforms", action="store_true", help="include waveform, envelope, spectrum")
     m.set_defaults(run=cmd_simulate)
+
+    n = sub.add_parser("snap", help="move every part to the nearest E-series value")
+    n.add_argument("design")
+    n.add_argument("--series", default="E24", help="E6, E12, E24, E48 or E96 (default E24)")
+    n.set_defaults(run=cmd_snap)
+
+    k = sub.add_parser("sensitivity", help="∂ln f/∂ln x and ∂ln T/∂ln x for every part")
+    k.add_argument("design")
+    k.set_defaults(run=cmd_sensitivity)
 
     v = sub.add_parser("serve", help="serve the design sheet on this computer")
     v.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")

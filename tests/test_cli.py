@@ -77,3 +77,16 @@ def test_not_json(capsys, tmp_path: Path) -> None:
     bad.write_text("{not json")
     code, _, err = _run(capsys, "analyze", str(bad))
     assert code == EXIT_BAD_INPUT and "is not JSON" in err
+
+
+def test_snap_prints_a_design_and_reports_changes(capsys) -> None:
+    code, data, err = _run(capsys, "snap", str(sample_paths()[0]), "--series", "E6")
+    assert code == 0 and data["format"] == "ringwise.design"
+    assert "f_osc" in err and "loop gain" in err
+    code, _, err = _run(capsys, "snap", str(sample_paths()[0]), "--series", "E7")
+    assert code == EXIT_BAD_INPUT and "unknown series" in err
+
+
+def test_sensitivity_lists_parts(capsys) -> None:
+    code, data, _ = _run(capsys, "sensitivity", str(sample_paths()[0]))
+    assert code == 0 and {"L", "C1", "C2"} <= {row["part"] for row in data}
