@@ -14,7 +14,7 @@ from fastapi.staticfiles import StaticFiles
 from app.web import errors
 from app.web.assets import IMMUTABLE_MAX_AGE, plotly_js
 from app.web.paths import STATIC_DIR
-from app.web.routers import api, pages
+from app.web.routers import api, pages, simulate
 from app.web.samples import DEFAULT_SAMPLE, samples
 
 #: Scripts, styles, fonts and connections only from this server.  Plotly sets
@@ -57,6 +57,7 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
     app.state.default_design = default_design
     errors.install(app)
     app.include_router(api.router)
+    app.include_router(simulate.router)
     app.include_router(pages.router)
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     vendored = plotly_js()
