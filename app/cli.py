@@ -16,6 +16,7 @@ from pydantic import ValidationError
 
 from app.analysis.analyze import analyze
 from app.analysis.sensitivity import sensitivities
+from app.analysis.spread import SpreadError, spread_result
 from app.analysis.threshold import ParameterError, find_threshold, sweep
 from app.analysis.transient import MAX_CYCLES, SimulationError, simulate
 from app.circuit.topologies import GAIN_SETTER
@@ -137,6 +138,22 @@ def cmd_sensitivity(args: argparse.Namespace) -> None:
     _print([{"part": r.part, "value": r.value, "S_f": r.S_f, "S_gain": r.S_gain} for r in rows])
 
 
+def cmd_spread(args: argparse.Namespace) -> None:
+    design = _load(args.design)
+    window = None
+    if args.window:
+        window = (_value(args.window[0], "--window"), _value(args.window[1], "--window"))
+    try:
+        result = spread_result(design, args.samples, args.seed, args.margin, window)
+    except SpreadError as err:
+        raise BadInputError(str(err)) from err
+    data = result.model_dump(mode="json")
+    if not args.histograms:
+        for key in ("f_histogram", "gain_histogram"):
+            data["spread"].pop(key)
+    _print(data)
+
+
 def cmd_serve(args: argparse.Namespace) -> None:
     from app.web.server import serve  # imported here: the core needs no web stack
 
@@ -182,6 +199,17 @@ def parser() -> argparse.ArgumentParser:
     k = sub.add_parser("sensitivity", help="∂ln f/∂ln x and ∂ln T/∂ln x for every part")
     k.add_argument("design")
     k.set_defaults(run=cmd_sensitivity)
+
+    p_ = sub.add_parser("spread", help="Monte Carlo over tolerances and temperature: yield")
+    p_.add_argument("design")
+    p_.add_argument("--samples", type=int, default=2000, help="samples (max 100000)")
+    p_.add_argument("--seed", type=int, default=1)
+    p_.add_argument("--margin", type=float, default=2.0, help="loop gain the margin yield asks for")
+    p_.add_argument(
+        "--window", nargs=2, metavar=("LOW", "HIGH"), help="frequency window, e.g. 990k 1.01M"
+    )
+    p_.add_argument("--histograms", action="store_true", help="include the histograms")
+    p_.set_defaults(run=cmd_spread)
 
     v = sub.add_parser("serve", help="serve the design sheet on this computer")
     v.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")

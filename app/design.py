@@ -149,6 +149,82 @@ class Ratings(_Part):
     )
 
 
+Fraction = Annotated[float, _si(""), Field(ge=0, le=0.5)]
+Dielectric = Literal["C0G", "X7R"]
+#: Capacitors whose dielectric may be stated, and the default class of each:
+#: class 1 in the tank (where the frequency is set), class 2 for blocking and bypass.
+CAPACITOR_PARTS: Final = ("C1", "C2", "C3", "Cc1", "Cc2", "CE", "CB")
+DEFAULT_DIELECTRIC: Final[dict[str, str]] = {
+    "C1": "C0G", "C2": "C0G", "C3": "C0G",
+    "Cc1": "X7R", "Cc2": "X7R", "CE": "X7R", "CB": "X7R",
+}  # fmt: skip
+#: Parts that may carry a tolerance of their own.
+TOLERANCED_PARTS: Final = ("RB1", "RB2", "RC", "RE", "R_load", *CAPACITOR_PARTS, "L", "Q_L")
+
+
+class Tolerances(_Part):
+    """Manufacturing spread and temperature behaviour, for the spread analyses.
+
+    Tolerances are half-widths of a uniform distribution (a 5 % part lies
+    anywhere within ±5 %).  Defaults are common catalogue grades (common
+    practice, no source).
+    """
+
+    R: Fraction = Field(default=0.01, description="Resistor tolerance (fraction)")
+    C: Fraction = Field(default=0.05, description="Capacitor tolerance (fraction)")
+    L: Fraction = Field(default=0.10, description="Inductor tolerance (fraction)")
+    Q_L: Fraction = Field(default=0.20, description="Spread of the coil's Q (fraction)")
+    beta_ratio: Annotated[float, _si(""), Field(ge=1, le=100)] = Field(
+        default=3.0, description="Highest over lowest β of the part type (log-uniform)"
+    )
+    IS_ratio: Annotated[float, _si(""), Field(ge=1, le=100)] = Field(
+        default=2.0, description="Highest over lowest I_S of the part type (log-uniform)"
+    )
+    per_part: dict[str, Fraction] = Field(
+        default_factory=dict, description="Tolerances of individual parts, overriding the class"
+    )
+    dielectric: dict[str, Dielectric] = Field(
+        default_factory=dict,
+        description="Dielectric class per capacitor (default C0G in the tank, X7R elsewhere)",
+    )
+    L_tempco_ppm: Annotated[float, _si(""), Field(ge=-5000, le=5000)] = Field(
+        default=100.0, description="Inductor temperature coefficient, ppm/°C (typical, from memory)"
+    )
+    T_min: Annotated[float, _si(""), Field(ge=-60, le=200)] = Field(
+        default=-40.0, description="Lowest operating temperature, °C"
+    )
+    T_max: Annotated[float, _si(""), Field(ge=-60, le=200)] = Field(
+        default=85.0, description="Highest operating temperature, °C"
+    )
+
+    @model_validator(mode="after")
+    def _sensible(self) -> Tolerances:
+        if self.T_min > self.T_max:
+            raise ValueError(f"T_min ({self.T_min:g} °C) is above T_max ({self.T_max:g} °C)")
+        for name in self.per_part:
+            if name not in TOLERANCED_PARTS:
+                raise ValueError(
+                    f"per_part: {name!r} is not a part; parts: {', '.join(TOLERANCED_PARTS)}"
+                )
+        for name in self.dielectric:
+            if name not in CAPACITOR_PARTS:
+                raise ValueError(f"dielectric: {name!r} is not a capacitor")
+        return self
+
+    def of(self, part: str) -> float:
+        """The tolerance that applies to ``part``."""
+        if part in self.per_part:
+            return self.per_part[part]
+        if part == "L":
+            return self.L
+        if part == "Q_L":
+            return self.Q_L
+        return self.C if part in CAPACITOR_PARTS else self.R
+
+    def dielectric_of(self, part: str) -> str:
+        return self.dielectric.get(part, DEFAULT_DIELECTRIC[part])
+
+
 class Design(_Part):
     """One oscillator design, all values in SI base units."""
 
@@ -167,6 +243,7 @@ class Design(_Part):
     )
     noise: Noise = Field(default_factory=Noise)
     ratings: Ratings = Field(default_factory=Ratings)
+    tolerances: Tolerances = Field(default_factory=Tolerances)
 
     @model_validator(mode="after")
     def _parts_for_topology(self) -> Design:

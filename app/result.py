@@ -219,3 +219,59 @@ class SimulationResult(_Out):
     output_node: str
     transient: TransientOut
     warnings: list[WarningOut]
+
+
+class PercentilesOut(_Out):
+    p1: Num
+    p5: Num
+    p50: Num
+    p95: Num
+    p99: Num
+
+
+class HistogramOut(_Out):
+    edges: list[float]
+    counts: list[int]
+
+
+class WorstCaseOut(_Out):
+    sample: int
+    T_C: Num
+    gain: Num
+    f_osc: Num
+    parts: dict[str, float]
+
+
+class SensitivityOut(_Out):
+    part: str
+    value: Num
+    tolerance: Num = Field(description="Tolerance (fraction) the spread used for this part")
+    S_f: Num = Field(description="∂ln f_osc/∂ln x")
+    S_gain: Num = Field(description="∂ln |T|/∂ln x")
+    f_spread: Num = Field(description="|S_f|·tolerance: its share of the frequency spread")
+    gain_spread: Num = Field(description="|S_gain|·tolerance: its share of the gain spread")
+
+
+class SpreadOut(_Out):
+    samples: int
+    seed: int
+    temperatures_C: list[float]
+    margin: Num = Field(description="Loop gain the margin yield asks for")
+    yield_start: Num = Field(description="Fraction that start at every temperature")
+    yield_margin: Num = Field(description="Fraction above the margin at every temperature")
+    yield_by_temperature: dict[str, float]
+    in_window: Num = Field(description="Fraction that start inside the frequency window")
+    window: list[float] | None
+    f_osc: PercentilesOut
+    gain: PercentilesOut
+    f_histogram: HistogramOut
+    gain_histogram: HistogramOut
+    worst_cases: list[WorstCaseOut]
+    sensitivities: list[SensitivityOut] = Field(description="Ranked: what to tighten first")
+
+
+class SpreadResult(_Out):
+    format: Literal["ringwise.spread"] = "ringwise.spread"
+    version: Literal[1] = 1
+    name: str
+    spread: SpreadOut

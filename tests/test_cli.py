@@ -90,3 +90,18 @@ def test_snap_prints_a_design_and_reports_changes(capsys) -> None:
 def test_sensitivity_lists_parts(capsys) -> None:
     code, data, _ = _run(capsys, "sensitivity", str(sample_paths()[0]))
     assert code == 0 and {"L", "C1", "C2"} <= {row["part"] for row in data}
+
+
+def test_spread_prints_yield_and_percentiles(capsys) -> None:
+    code, data, _ = _run(
+        capsys, "spread", str(sample_paths()[0]), "--samples", "200", "--seed", "4",
+        "--window", "100k", "20M",
+    )  # fmt: skip
+    assert code == 0
+    s = data["spread"]
+    assert s["samples"] == 200 and s["seed"] == 4
+    assert set(s["f_osc"]) == {"p1", "p5", "p50", "p95", "p99"}
+    assert 0 <= s["yield_start"] <= 1 and s["in_window"] is not None
+    assert s["sensitivities"] and s["worst_cases"]
+    code, _, err = _run(capsys, "spread", str(sample_paths()[0]), "--samples", "0")
+    assert code == EXIT_BAD_INPUT and "samples must be between" in err

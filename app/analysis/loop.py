@@ -96,6 +96,8 @@ class LoopFigures:
     phase_slope: np.ndarray
     Q_loaded: np.ndarray
     Z_out: np.ndarray
+    #: dT/ds at f_osc, s (for a first Newton step toward the dominant pole)
+    dT_ds: np.ndarray
 
     @property
     def found(self) -> np.ndarray:
@@ -165,7 +167,8 @@ def _refine_one(ss: SmallSignal, f: float, f_lo: float, f_hi: float) -> LoopFigu
             break
         prev_step = size
     nan = np.asarray(math.nan)
-    return LoopFigures(nan, np.asarray(complex(math.nan, math.nan)), nan, nan, nan, nan)
+    cnan = np.asarray(complex(math.nan, math.nan))
+    return LoopFigures(nan, cnan, nan, nan, nan, nan, cnan)
 
 
 def _figures(ss: SmallSignal, f_osc: np.ndarray) -> LoopFigures:
@@ -192,6 +195,7 @@ def _figures_from(
         phase_slope=mask(slope),
         Q_loaded=mask(0.5 * w * np.abs(slope)),
         Z_out=mask(np.abs(x @ ss.u)),
+        dT_ds=np.where(nan, np.nan + 0j, dT_ds),
     )
 
 
@@ -265,4 +269,4 @@ def _bisect_leftovers(
 
 
 def _astuple(f: LoopFigures) -> tuple[np.ndarray, ...]:
-    return (f.f_osc, f.T, f.gain, f.phase_slope, f.Q_loaded, f.Z_out)
+    return (f.f_osc, f.T, f.gain, f.phase_slope, f.Q_loaded, f.Z_out, f.dT_ds)

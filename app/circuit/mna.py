@@ -23,6 +23,7 @@ IEEE Trans. Circuits and Systems, 1975 (from memory).
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,7 +37,13 @@ from app.circuit.netlist import (
     Netlist,
     Resistor,
 )
-from app.circuit.npn import HybridPi, JunctionState, junction_state
+from app.circuit.npn import (
+    HybridPi,
+    JunctionState,
+    exp_and_slope_array,
+    junction_currents,
+    junction_state,
+)
 
 #: Conductance from every node to ground, S (SPICE's default GMIN).
 G_MIN = 1e-12
@@ -249,25 +256,171 @@ class SmallSignal:
         return self.G + np.asarray(self.gm)[..., None, None] * np.outer(self.u, self.w)
 
 
+@dataclass(frozen=True)
+class Incidence:
+    """Where the transistor's currents go and what controls them, as vectors.
+
+    ``P_C`` = e_c − e_e carries I_C (into the collector, out of the emitter),
+    ``P_B`` = e_b − e_e carries I_B; ``W_BE`` and ``W_CE`` read v_BE and v_CE
+    from a solution (they equal ``P_B`` and ``P_C`` as vectors).  ``S_BE`` and
+    ``S_BC`` are the unit two-terminal stamps of the junction capacitances.
+    """
+
+    P_C: np.ndarray
+    P_B: np.ndarray
+    S_BE: np.ndarray
+    S_BC: np.ndarray
+
+    @property
+    def W_BE(self) -> np.ndarray:
+        return self.P_B
+
+    @property
+    def W_CE(self) -> np.ndarray:
+        return self.P_C
+
+
+def incidence(lay: Layout, dev: NPN) -> Incidence:
+    n = lay.size
+    S_BE, S_BC = np.zeros((n, n)), np.zeros((n, n))
+    _stamp_pair(S_BE, lay, dev.b, dev.e, 1.0)
+    _stamp_pair(S_BC, lay, dev.b, dev.c, 1.0)
+    return Incidence(
+        P_C=lay.unit(dev.c) - lay.unit(dev.e),
+        P_B=lay.unit(dev.b) - lay.unit(dev.e),
+        S_BE=S_BE,
+        S_BC=S_BC,
+    )
+
+
+def _rank1(k, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """k · a bᵀ, with k a scalar or an array of batch coefficients."""
+    return np.asarray(k)[..., None, None] * np.outer(a, b)
+
+
 def small_signal(system: LinearSystem, hp: HybridPi) -> SmallSignal:
     """Linearise around an operating point described by the hybrid-π ``hp``.
 
     The circuit must hold exactly one transistor: the loop studied is the
-    one through its controlled source.
+    one through its controlled source.  ``system.G``/``system.C`` and the
+    fields of ``hp`` may carry a leading batch axis (one circuit per sample).
     """
     if len(system.devices) != 1:
         raise ValueError("the return ratio is defined for circuits with one transistor")
-    dev = system.devices[0]
-    lay = system.layout
-    G = system.G.copy()
-    C = system.C.copy()
-    u = lay.unit(dev.c) - lay.unit(dev.e)
-    w = lay.unit(dev.b) - lay.unit(dev.e)
-    vce = lay.unit(dev.c) - lay.unit(dev.e)
-    # i_b = g_pi v_be + g_r v_ce into the base, returning through the emitter.
-    G += np.outer(lay.unit(dev.b) - lay.unit(dev.e), hp.g_pi * w + hp.g_r * vce)
+    inc = incidence(system.layout, system.devices[0])
+    # i_b = g_pi v_be + g_r v_ce into the base, returning through the emitter;
     # i_c (without g_m v_be) = g_o v_ce into the collector, out of the emitter.
-    G += np.outer(u, hp.g_o * vce)
-    _stamp_pair(C, lay, dev.b, dev.e, hp.C_pi)
-    _stamp_pair(C, lay, dev.b, dev.c, hp.C_mu)
-    return SmallSignal(lay, G, C, hp.gm, u, w, hp)
+    G = (
+        system.G
+        + _rank1(hp.g_pi, inc.P_B, inc.W_BE)
+        + _rank1(hp.g_r, inc.P_B, inc.W_CE)
+        + _rank1(hp.g_o, inc.P_C, inc.W_CE)
+    )
+    C = system.C + np.asarray(hp.C_pi)[..., None, None] * inc.S_BE
+    C = C + np.asarray(hp.C_mu)[..., None, None] * inc.S_BC
+    return SmallSignal(system.layout, G, C, hp.gm, inc.P_C, inc.W_BE, hp)
+
+
+def nonlinear_residual_batch(
+    G: np.ndarray, b: np.ndarray, inc: Incidence, x: np.ndarray, params: dict[str, np.ndarray]
+) -> tuple[np.ndarray, np.ndarray, tuple]:
+    """F(x) = G x + i_dev(x) − b and its Jacobian for a batch of circuits.
+
+    ``G`` (B, n, n), ``b`` (B, n), ``x`` (B, n); ``params`` holds the device
+    parameters IS, beta, beta_R, VA, VT as arrays of shape (B,).  The same
+    transport model as :func:`nonlinear_residual`, evaluated elementwise.
+    """
+    vbe = x @ inc.W_BE
+    vce = x @ inc.W_CE
+    q = junction_currents(
+        vbe, vce, params["IS"], params["beta"], params["beta_R"], params["VA"], params["VT"],
+        exp_and_slope_array,
+    )  # fmt: skip
+    IC, IB = q[0], q[1]
+    F = np.einsum("bij,bj->bi", G, x) + IC[:, None] * inc.P_C + IB[:, None] * inc.P_B - b
+    J = (
+        G
+        + _rank1(q[4], inc.P_C, inc.W_BE)
+        + _rank1(q[5], inc.P_C, inc.W_CE)
+        + _rank1(q[6], inc.P_B, inc.W_BE)
+        + _rank1(q[7], inc.P_B, inc.W_CE)
+    )
+    return F, J, q
+
+
+@dataclass(frozen=True)
+class Patterns:
+    """The assembly split into a constant part and one unit stamp per element value.
+
+    ``G = G0 + Σ k·M`` over the terms ``(element, field, "G" | "C" | "b", M)``
+    with k the element's value in stamp form (1/R, C, R_s, L, V).  Built from
+    the same stamps as :func:`assemble`, so a batch of circuits that differ
+    only in values is assembled in one matrix product.
+    """
+
+    layout: Layout
+    G0: np.ndarray
+    C0: np.ndarray
+    b0: np.ndarray
+    terms: tuple[tuple[str, str, str, np.ndarray], ...]
+    devices: tuple[NPN, ...]
+
+
+def linear_patterns(netlist: Netlist) -> Patterns:
+    """Split ``netlist``'s assembly into its constant part and unit stamps."""
+    zeroed = []
+    for el in netlist:
+        if isinstance(el, Resistor):
+            zeroed.append(dataclasses.replace(el, R=math.inf))
+        elif isinstance(el, Capacitor):
+            zeroed.append(dataclasses.replace(el, C=0.0))
+        elif isinstance(el, Inductor):
+            zeroed.append(dataclasses.replace(el, L=0.0, R_s=0.0))
+        elif isinstance(el, DCSupply):
+            zeroed.append(dataclasses.replace(el, V=0.0))
+        else:
+            zeroed.append(el)
+    base = assemble(Netlist(tuple(zeroed)))
+    lay, n = base.layout, base.layout.size
+    terms = []
+    for el in netlist:
+        if isinstance(el, Resistor):
+            M = np.zeros((n, n))
+            _stamp_pair(M, lay, el.a, el.b, 1.0)
+            terms.append((el.name, "G_R", "G", M))
+        elif isinstance(el, Capacitor):
+            M = np.zeros((n, n))
+            _stamp_pair(M, lay, el.a, el.b, 1.0)
+            terms.append((el.name, "C", "C", M))
+        elif isinstance(el, Inductor):
+            k = lay.branch[el.name]
+            Mr, Ml = np.zeros((n, n)), np.zeros((n, n))
+            Mr[k, k], Ml[k, k] = -1.0, -1.0
+            terms += [(el.name, "R_s", "G", Mr), (el.name, "L", "C", Ml)]
+        elif isinstance(el, DCSupply):
+            v = np.zeros(n)
+            v[lay.branch[el.name]] = 1.0
+            terms.append((el.name, "V", "b", v))
+    return Patterns(lay, base.G, base.C, base.b, tuple(terms), base.devices)
+
+
+def assemble_batch(patterns: Patterns, values: dict[tuple[str, str], np.ndarray]) -> LinearSystem:
+    """G, C, b for a batch: ``values[(element, field)]`` holds one stamp value per circuit."""
+    n = patterns.layout.size
+    out = {}
+    for target, base in (("G", patterns.G0), ("C", patterns.C0)):
+        terms = [(k, M) for k, M in _terms_of(patterns, values, target)]
+        if terms:
+            coeffs = np.stack([k for k, _M in terms], axis=1)  # (B, terms)
+            mats = np.stack([M.reshape(-1) for _k, M in terms])  # (terms, n·n)
+            out[target] = base + (coeffs @ mats).reshape(-1, n, n)
+        else:
+            out[target] = base[None]
+    b = patterns.b0 + sum(k[:, None] * M for k, M in _terms_of(patterns, values, "b"))
+    return LinearSystem(patterns.layout, out["G"], out["C"], b, patterns.devices)
+
+
+def _terms_of(patterns: Patterns, values, target: str):
+    for name, field, kind, M in patterns.terms:
+        if kind == target:
+            yield np.asarray(values[(name, field)], dtype=float), M

@@ -35,6 +35,7 @@ import math
 from dataclasses import dataclass
 from typing import Final
 
+import numpy as np
 from scipy import constants
 
 #: Reference temperature of the device data, K (25 °C).
@@ -97,17 +98,23 @@ class JunctionState:
     dIB_dvce: float
 
 
-def junction_currents(
-    vbe: float, vce: float, IS: float, beta: float, beta_R: float, VA: float, VT: float
-) -> tuple[float, float, float, float, float, float, float, float]:
+def exp_and_slope_array(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_exp_and_slope` elementwise, for batches of junctions."""
+    clipped = np.minimum(x, EXP_ARG_LIMIT)
+    value = np.exp(clipped)
+    return value * (1.0 + (x - clipped)), value
+
+
+def junction_currents(vbe, vce, IS, beta, beta_R, VA, VT, exp_and_slope=_exp_and_slope) -> tuple:
     """(IC, IB, I_F, I_R, dIC/dv_BE, dIC/dv_CE, dIB/dv_BE, dIB/dv_CE) at (v_BE, v_CE).
 
     The transport model itself, as a plain tuple: the transient calls this in
-    its inner loop.  :func:`junction_state` wraps it.
+    its inner loop with floats; batched analyses call it with arrays and
+    ``exp_and_slope=exp_and_slope_array``.  :func:`junction_state` wraps it.
     """
     vbc = vbe - vce
-    ef, def_ = _exp_and_slope(vbe / VT)
-    er, der = _exp_and_slope(vbc / VT)
+    ef, def_ = exp_and_slope(vbe / VT)
+    er, der = exp_and_slope(vbc / VT)
     I_F = IS * (ef - 1.0)
     I_R = IS * (er - 1.0)
     gF = IS * def_ / VT  # dI_F/dv_BE

@@ -1,0 +1,359 @@
+r"""Monte Carlo spread over part tolerances and temperature, vectorised.
+
+Every sample is the full small-signal analysis of the one circuit model —
+DC operating point by Newton, hybrid-π, return ratio and its zero-phase
+crossing, and the dominant natural frequency — but computed for all samples
+and temperature corners at once: one batched assembly from the unit stamps
+(:func:`app.circuit.mna.linear_patterns`), a batched Newton on the nodal
+equations, and the batched loop search of :mod:`app.analysis.loop`.
+
+Distributions (common practice, no source): each tolerance is the half-width
+of a uniform distribution; β and I_S are log-uniform between the limits of
+their ratio; capacitors follow their dielectric class — C0G/NP0
+0 ± 30 ppm/°C, X7R within ±15 % over −55 … +125 °C, modelled here as a
+linear drift of random slope inside that limit (EIA-198 / IEC 60384-8 and -9
+class limits, from memory) — and the coil its temperature coefficient.  The
+transistor's temperature behaviour enters through I_S(T) and V_T(T).
+
+The real part of the dominant pole is taken as the first Newton step of
+1 − T(s) = 0 from jω_osc: σ ≈ Re[(1 − T)/T′] — exact at the threshold and a
+close estimate near it, which is where yield is decided.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Final
+
+import numpy as np
+from scipy import constants
+
+from app.analysis.loop import find_oscillation
+from app.analysis.operating import solve
+from app.analysis.startup import MARGINAL_BELOW
+from app.circuit.mna import (
+    LinearSystem,
+    assemble_batch,
+    incidence,
+    linear_patterns,
+    nonlinear_residual_batch,
+    small_signal,
+)
+from app.circuit.npn import BETA_REVERSE, HybridPi, saturation_current, thermal_voltage
+from app.circuit.topologies import build
+from app.design import CAPACITOR_PARTS, Design, with_param
+from app.errors import DesignError
+
+DEFAULT_SAMPLES: Final = 2000
+MAX_SAMPLES: Final = 100_000
+#: C0G/NP0 temperature coefficient limit, 1/°C (class 1, from memory).
+C0G_TEMPCO: Final = 30e-6
+#: X7R: capacitance within ±15 % over −55 … +125 °C (class 2, from memory);
+#: as a linear drift, at most 15 % per 100 °C from 25 °C.
+X7R_DRIFT_PER_100C: Final = 0.15
+T_REFERENCE_C: Final = 25.0
+#: Batched DC Newton: step limit on a junction voltage (V), tolerance, iterations.
+DC_STEP_LIMIT: Final = 0.1
+DC_TOL: Final = 1e-11
+DC_MAX_ITER: Final = 100
+PERCENTILES: Final = (1, 5, 50, 95, 99)
+HISTOGRAM_BINS: Final = 40
+WORST_CASES: Final = 5
+RESISTORS: Final = ("RB1", "RB2", "RC", "RE", "R_load")
+
+
+class SpreadError(DesignError):
+    """A spread request that cannot be run as asked."""
+
+
+@dataclass(frozen=True)
+class Draws:
+    """Sampled part values (at 25 °C) and temperature coefficients, one row per sample."""
+
+    values: dict[str, np.ndarray]
+    cap_drift: dict[str, np.ndarray]  # relative change per °C from 25 °C
+    temperatures: tuple[float, ...]
+    seed: int
+
+
+def draw(design: Design, samples: int, seed: int) -> Draws:
+    """Sample every part of ``design`` within its tolerance (reproducible for a seed)."""
+    if not 1 <= samples <= MAX_SAMPLES:
+        raise SpreadError(f"samples must be between 1 and {MAX_SAMPLES}, got {samples}")
+    rng = np.random.default_rng(seed)
+    tol = design.tolerances
+    b, t, d = design.bias, design.tank, design.device
+    values: dict[str, np.ndarray] = {}
+    nominal = {
+        "RB1": b.RB1, "RB2": b.RB2, "RC": b.RC, "RE": b.RE, "R_load": design.load.R_load,
+        "C1": t.C1, "C2": t.C2, "C3": t.C3, "Cc1": design.coupling.Cc1,
+        "Cc2": design.coupling.Cc2, "CE": b.CE, "CB": b.CB, "L": t.L, "Q_L": t.Q_L,
+    }  # fmt: skip
+    for part, value in nominal.items():
+        if value is None:
+            continue
+        values[part] = value * (1.0 + tol.of(part) * rng.uniform(-1.0, 1.0, samples))
+    for part, ratio, value in (("beta", tol.beta_ratio, d.beta), ("IS", tol.IS_ratio, d.IS)):
+        values[part] = value * ratio ** rng.uniform(-0.5, 0.5, samples)
+    drift: dict[str, np.ndarray] = {}
+    for part in CAPACITOR_PARTS:
+        if part not in values:
+            continue
+        if tol.dielectric_of(part) == "C0G":
+            drift[part] = rng.uniform(-C0G_TEMPCO, C0G_TEMPCO, samples)
+        else:
+            drift[part] = rng.uniform(-X7R_DRIFT_PER_100C, X7R_DRIFT_PER_100C, samples) / 100.0
+    corners = tuple(dict.fromkeys((tol.T_min, design.temperature_C, tol.T_max)))
+    return Draws(values, drift, corners, seed)
+
+
+def values_at(design: Design, draws: Draws, T_C: float) -> dict[str, np.ndarray]:
+    """Part values of every sample at temperature ``T_C`` (°C)."""
+    out = dict(draws.values)
+    dT = T_C - T_REFERENCE_C
+    for part, k in draws.cap_drift.items():
+        out[part] = draws.values[part] * (1.0 + k * dT)
+    out["L"] = draws.values["L"] * (1.0 + design.tolerances.L_tempco_ppm * 1e-6 * dT)
+    return out
+
+
+def sample_design(design: Design, draws: Draws, i: int, T_C: float) -> Design:
+    """Sample ``i`` at ``T_C`` as an ordinary design (for checks and worst-case reports)."""
+    vals = values_at(design, draws, T_C)
+    out = design.model_copy(update={"temperature_C": T_C})
+    for part, arr in vals.items():
+        out = with_param(out, part, float(arr[i]))
+    return out
+
+
+@dataclass(frozen=True)
+class Batch:
+    """Figures of every sample at one temperature (arrays of shape (samples,))."""
+
+    T_C: float
+    f_osc: np.ndarray
+    gain: np.ndarray
+    sigma: np.ndarray
+    IC: np.ndarray
+    VCE: np.ndarray
+    converged: np.ndarray
+
+
+def analyse_batch(design: Design, vals: dict[str, np.ndarray], T_C: float) -> Batch:
+    """The small-signal analysis of every sample at ``T_C``, in one batch."""
+    n_samples = len(vals["L"])
+    nominal = solve(design)
+    netlist = build(design)
+    pat = linear_patterns(netlist)
+    C_s = 1.0 / sum(1.0 / vals[c] for c in ("C1", "C2", "C3") if c in vals)
+    w0 = 1.0 / np.sqrt(vals["L"] * C_s)
+    stamp: dict[tuple[str, str], np.ndarray] = {}
+    for name, fld, _target, _M in pat.terms:
+        if fld == "G_R":
+            stamp[(name, fld)] = 1.0 / vals[name]
+        elif fld == "C":
+            stamp[(name, fld)] = vals[name]
+        elif fld == "L":
+            stamp[(name, fld)] = vals["L"]
+        elif fld == "R_s":
+            stamp[(name, fld)] = w0 * vals["L"] / vals["Q_L"]
+        elif fld == "V":
+            stamp[(name, fld)] = np.full(n_samples, design.supply.Vcc)
+    system = assemble_batch(pat, stamp)
+    T_K = T_C + constants.zero_Celsius
+    dev = design.device
+    params = {
+        "IS": saturation_current(1.0, T_K) * vals["IS"],
+        "beta": vals["beta"],
+        "beta_R": np.full(n_samples, BETA_REVERSE),
+        "VA": np.full(n_samples, dev.VA),
+        "VT": np.full(n_samples, thermal_voltage(T_K)),
+    }
+    inc = incidence(pat.layout, pat.devices[0])
+    x, q, ok = _dc_batch(system, inc, params, nominal.op.x)
+    gm = q[4]
+    C_pi = np.maximum(gm / (2.0 * math.pi * dev.fT) - dev.C_mu, 0.0)
+    hp = HybridPi(
+        gm=gm, g_pi=q[6], g_o=q[5], g_r=q[7], C_pi=C_pi, C_mu=np.full(n_samples, dev.C_mu)
+    )
+    ss = small_signal(LinearSystem(pat.layout, system.G, system.C, system.b, pat.devices), hp)
+    f_ideal = w0 / (2.0 * math.pi)
+    # Start each sample's search where the nominal design's crossing sits
+    # relative to its ideal resonance.
+    offset = nominal.f_osc / nominal.tank.f_ideal if nominal.f_osc else 1.0
+    loop = find_oscillation(ss, f_ideal, f_ideal * offset)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sigma = np.where(loop.found, ((1.0 - loop.T) / loop.dT_ds).real, np.nan)
+    gain = np.where(np.isfinite(loop.f_osc), loop.gain, 0.0)
+    return Batch(T_C, loop.f_osc, gain, sigma, q[0], x @ inc.W_CE, ok)
+
+
+def _dc_batch(system: LinearSystem, inc, params, x_start: np.ndarray):
+    """Batched Newton on the nodal equations, from the nominal design's DC point."""
+    B = len(params["IS"])
+    x = np.tile(x_start, (B, 1))
+    done = np.zeros(B, dtype=bool)
+    for _ in range(DC_MAX_ITER):
+        F, J, q = nonlinear_residual_batch(system.G, system.b, inc, x, params)
+        dx = np.linalg.solve(J, -F[..., None])[..., 0]
+        dv = np.maximum(np.abs(dx @ inc.W_BE), np.abs(dx @ (inc.W_BE - inc.W_CE)))
+        alpha = np.minimum(1.0, DC_STEP_LIMIT / np.maximum(dv, 1e-300))
+        x = x + alpha[:, None] * dx
+        done = (alpha == 1.0) & np.all(np.abs(dx) <= DC_TOL + 1e-9 * np.abs(x), axis=1)
+        if np.all(done):
+            break
+    _F, _J, q = nonlinear_residual_batch(system.G, system.b, inc, x, params)
+    return x, q, done
+
+
+@dataclass(frozen=True)
+class Spread:
+    samples: int
+    seed: int
+    temperatures: tuple[float, ...]
+    margin: float
+    yield_start: float
+    yield_margin: float
+    yield_by_temperature: dict[float, float]
+    in_window: float | None
+    window: tuple[float, float] | None
+    f_percentiles: dict[int, float]
+    gain_percentiles: dict[int, float]
+    f_histogram: tuple[list[float], list[int]]
+    gain_histogram: tuple[list[float], list[int]]
+    worst_cases: list[dict]
+    batches: list[Batch] = field(repr=False)
+
+
+def _percentiles(a: np.ndarray) -> dict[int, float]:
+    a = a[np.isfinite(a)]
+    if a.size == 0:
+        return {p: math.nan for p in PERCENTILES}
+    return {p: float(v) for p, v in zip(PERCENTILES, np.percentile(a, PERCENTILES), strict=True)}
+
+
+def _histogram(a: np.ndarray) -> tuple[list[float], list[int]]:
+    a = a[np.isfinite(a)]
+    if a.size == 0:
+        return [], []
+    counts, edges = np.histogram(a, bins=HISTOGRAM_BINS)
+    return edges.tolist(), counts.tolist()
+
+
+def monte_carlo(
+    design: Design,
+    samples: int = DEFAULT_SAMPLES,
+    seed: int = 1,
+    margin: float = MARGINAL_BELOW,
+    window: tuple[float, float] | None = None,
+) -> Spread:
+    """Startup yield and spread of f_osc and loop gain over tolerances and temperature."""
+    if window is not None and not 0 < window[0] < window[1]:
+        raise SpreadError(f"the frequency window must satisfy 0 < low < high, got {window}")
+    draws = draw(design, samples, seed)
+    batches = [analyse_batch(design, values_at(design, draws, T), T) for T in draws.temperatures]
+    gains = np.stack([b.gain for b in batches])  # (corners, samples)
+    freqs = np.stack([b.f_osc for b in batches])
+    active = np.stack([(b.VCE > 0.2) & (b.IC > 0) & b.converged for b in batches])
+    starts = (gains > 1.0) & active
+    margin_ok = (gains > margin) & active
+    in_window = None
+    if window is not None:
+        inside = (freqs >= window[0]) & (freqs <= window[1])
+        in_window = float(np.mean(np.all(inside & starts, axis=0)))
+    worst = []
+    min_gain = np.min(gains, axis=0)
+    for i in np.argsort(min_gain)[:WORST_CASES]:
+        k = int(np.argmin(gains[:, i]))
+        worst.append(
+            {
+                "sample": int(i),
+                "T_C": draws.temperatures[k],
+                "gain": float(gains[k, i]),
+                "f_osc": float(freqs[k, i]) if np.isfinite(freqs[k, i]) else None,
+                "parts": {p: float(v[i]) for p, v in draws.values.items()},
+            }
+        )
+    return Spread(
+        samples=samples,
+        seed=seed,
+        temperatures=draws.temperatures,
+        margin=margin,
+        yield_start=float(np.mean(np.all(starts, axis=0))),
+        yield_margin=float(np.mean(np.all(margin_ok, axis=0))),
+        yield_by_temperature={
+            T: float(np.mean(s)) for T, s in zip(draws.temperatures, starts, strict=True)
+        },
+        in_window=in_window,
+        window=window,
+        f_percentiles=_percentiles(freqs.ravel()),
+        gain_percentiles=_percentiles(gains.ravel()),
+        f_histogram=_histogram(freqs.ravel()),
+        gain_histogram=_histogram(gains.ravel()),
+        worst_cases=worst,
+        batches=batches,
+    )
+
+
+def spread_result(
+    design: Design,
+    samples: int = DEFAULT_SAMPLES,
+    seed: int = 1,
+    margin: float = MARGINAL_BELOW,
+    window: tuple[float, float] | None = None,
+):
+    """Monte Carlo and ranked sensitivities as the result contract (CLI and API)."""
+    from app.analysis.sensitivity import sensitivities
+    from app.result import (
+        HistogramOut,
+        PercentilesOut,
+        SensitivityOut,
+        SpreadOut,
+        SpreadResult,
+        WorstCaseOut,
+    )
+
+    r = monte_carlo(design, samples, seed, margin, window)
+    tol = design.tolerances
+    sens = []
+    for s in sensitivities(design):
+        t = {"beta": math.log(tol.beta_ratio) / 2, "IS": math.log(tol.IS_ratio) / 2}.get(
+            s.part, tol.of(s.part) if s.part in (*RESISTORS, *CAPACITOR_PARTS, "L", "Q_L") else 0.0
+        )
+        sens.append(
+            SensitivityOut(
+                part=s.part,
+                value=s.value,
+                tolerance=t,
+                S_f=s.S_f,
+                S_gain=s.S_gain,
+                f_spread=abs(s.S_f) * t if s.S_f is not None else None,
+                gain_spread=abs(s.S_gain) * t if s.S_gain is not None else None,
+            )
+        )
+    sens.sort(key=lambda s: -((s.f_spread or 0.0) + (s.gain_spread or 0.0)))
+
+    def pct(d: dict[int, float]) -> PercentilesOut:
+        return PercentilesOut(**{f"p{k}": v for k, v in d.items()})
+
+    return SpreadResult(
+        name=design.name,
+        spread=SpreadOut(
+            samples=r.samples,
+            seed=r.seed,
+            temperatures_C=list(r.temperatures),
+            margin=r.margin,
+            yield_start=r.yield_start,
+            yield_margin=r.yield_margin,
+            yield_by_temperature={f"{k:g}": v for k, v in r.yield_by_temperature.items()},
+            in_window=r.in_window,
+            window=list(r.window) if r.window else None,
+            f_osc=pct(r.f_percentiles),
+            gain=pct(r.gain_percentiles),
+            f_histogram=HistogramOut(edges=r.f_histogram[0], counts=r.f_histogram[1]),
+            gain_histogram=HistogramOut(edges=r.gain_histogram[0], counts=r.gain_histogram[1]),
+            worst_cases=[WorstCaseOut(**w) for w in r.worst_cases],
+            sensitivities=sens,
+        ),
+    )
