@@ -24,6 +24,9 @@ ANALYZE_TARGET: Final = 5e-3
 SWEEP_TARGET: Final = 200e-3
 SWEEP_POINTS: Final = 200
 TRANSIENT_CYCLES: Final = 300
+SPREAD_SAMPLES: Final = 10_000
+SPREAD_LOOP_SAMPLES: Final = 100
+SPREAD_TARGET: Final = 1.0
 TRANSIENT_TARGET: Final = 1.0
 
 
@@ -124,6 +127,36 @@ def bench_transient() -> list[str]:
     return lines
 
 
+def bench_spread() -> list[str]:
+    """10 000 Monte Carlo samples at three temperature corners, against a Python loop."""
+    from app.analysis.operating import solve
+    from app.analysis.spread import draw, monte_carlo, sample_design
+
+    d = Design.model_validate(
+        json.loads(sorted(SAMPLES.glob("*.json"))[0].read_text(encoding="utf-8"))
+    )
+    t0 = time.perf_counter()
+    r = monte_carlo(d, samples=SPREAD_SAMPLES, seed=1)
+    t_batch = time.perf_counter() - t0
+    draws = draw(d, SPREAD_LOOP_SAMPLES, seed=1)
+    designs = [
+        sample_design(d, draws, i, T)
+        for i in range(SPREAD_LOOP_SAMPLES)
+        for T in draws.temperatures
+    ]
+    t0 = time.perf_counter()
+    for one in designs:
+        solve(one)
+    per_solve = (time.perf_counter() - t0) / len(designs)
+    t_loop = per_solve * SPREAD_SAMPLES * len(r.temperatures)
+    return [
+        f"spread: {SPREAD_SAMPLES} samples x {len(r.temperatures)} temperatures (wall time):",
+        f"  batched {t_batch:6.2f} s (target ≤ {SPREAD_TARGET:g} s)   looping the single-design "
+        f"solve would take {t_loop:6.1f} s ({per_solve * 1e3:.2f} ms each, measured on "
+        f"{len(designs)})   speed-up x{t_loop / t_batch:5.1f} (target ≥ 50)",
+    ]
+
+
 def bench_web() -> list[str]:
     try:
         from app.web.bench import bench_web as web
@@ -137,6 +170,8 @@ def bench_web() -> list[str]:
 
 def main() -> None:
     for line in bench_core():
+        print(line, flush=True)
+    for line in bench_spread():
         print(line, flush=True)
     for line in bench_web():
         print(line, flush=True)
