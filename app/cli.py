@@ -17,10 +17,11 @@ from pydantic import ValidationError
 from app.analysis.analyze import analyze
 from app.analysis.sensitivity import sensitivities
 from app.analysis.spread import SpreadError, spread_result
+from app.analysis.synthesis import SynthesisError, synthesize
 from app.analysis.threshold import ParameterError, find_threshold, sweep
 from app.analysis.transient import MAX_CYCLES, SimulationError, simulate
 from app.circuit.topologies import GAIN_SETTER
-from app.design import Design
+from app.design import Design, Topology
 from app.errors import describe_validation_error
 from app.preferred import SeriesError, snap_design
 from app.units import UnitError, format_si, parse_quantity
@@ -154,6 +155,24 @@ def cmd_spread(args: argparse.Namespace) -> None:
     _print(data)
 
 
+def cmd_synthesize(args: argparse.Namespace) -> None:
+    try:
+        result = synthesize(
+            args.topology,
+            _value(args.f, "--f"),
+            _value(args.Vcc, "--Vcc"),
+            _value(args.IC, "--IC"),
+            gain=args.gain,
+            L=_value(args.L, "--L") if args.L else None,
+            ratio=args.ratio,
+        )
+    except SynthesisError as err:
+        raise BadInputError(str(err)) from err
+    _print(result.design.model_dump(mode="json"))
+    for reason in result.reasons:
+        print(f"ringwise: {reason}", file=sys.stderr)
+
+
 def cmd_serve(args: argparse.Namespace) -> None:
     from app.web.server import serve  # imported here: the core needs no web stack
 
@@ -210,6 +229,16 @@ def parser() -> argparse.ArgumentParser:
     )
     p_.add_argument("--histograms", action="store_true", help="include the histograms")
     p_.set_defaults(run=cmd_spread)
+
+    y = sub.add_parser("synthesize", help="a buildable design from targets, in standard values")
+    y.add_argument("--topology", choices=[t.value for t in Topology], default="common-emitter")
+    y.add_argument("--f", required=True, help="target frequency, e.g. 1M")
+    y.add_argument("--Vcc", required=True, help="supply, e.g. 12")
+    y.add_argument("--IC", required=True, help="collector current, e.g. 1m")
+    y.add_argument("--gain", type=float, default=3.0, help="target loop gain (default 3)")
+    y.add_argument("--L", default=None, help="inductor to use, e.g. 10u")
+    y.add_argument("--ratio", type=float, default=None, help="C1/C2 to use instead of tuning")
+    y.set_defaults(run=cmd_synthesize)
 
     v = sub.add_parser("serve", help="serve the design sheet on this computer")
     v.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")

@@ -105,3 +105,14 @@ def test_spread_prints_yield_and_percentiles(capsys) -> None:
     assert s["sensitivities"] and s["worst_cases"]
     code, _, err = _run(capsys, "spread", str(sample_paths()[0]), "--samples", "0")
     assert code == EXIT_BAD_INPUT and "samples must be between" in err
+
+
+def test_synthesize_prints_a_design_with_reasons(capsys) -> None:
+    code, data, err = _run(
+        capsys, "synthesize", "--topology", "common-emitter", "--f", "1M", "--Vcc", "12",
+        "--IC", "1m", "--gain", "3",
+    )  # fmt: skip
+    assert code == 0 and data["topology"] == "common-emitter"
+    assert "RE =" in err and "C1/C2" in err
+    code, _, err = _run(capsys, "synthesize", "--f", "1M", "--Vcc", "1", "--IC", "1m")
+    assert code == EXIT_BAD_INPUT and "headroom" in err

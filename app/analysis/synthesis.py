@@ -1,0 +1,228 @@
+r"""Design from targets: a buildable component set for a frequency, supply and current.
+
+The choices, each a rule of the trade (common practice, no source) and each
+explained in the result:
+
+* emitter degeneration: V_E of about a tenth of the supply (at least 1 V),
+  RE = V_E/I_C, so β and V_BE drift move the current little;
+* a stiff divider: ten times the base current through RB2;
+* collector resistor (common-emitter, common-base) putting V_C midway
+  between V_E and the supply, for the largest symmetric swing;
+* tank: C_s = 1/((2πf)²L); if L is not given, a characteristic impedance
+  √(L/C_s) that keeps the gain resistor at least ten times the reactance it
+  loads, so the tank's Q is not swamped;
+* the feedback ratio C1/C2 adjusted by the full model until the loop gain
+  is the target;
+* coupling and bypass capacitors with a reactance at f of at most a
+  twentieth of what they couple, and no larger (long bias time constants
+  invite squegging);
+* every value snapped to a standard series (resistors E24, capacitors E12 or
+  E24, the coil E12) and the ratio re-adjusted on the snapped values.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Final
+
+from app.analysis.operating import solve
+from app.circuit.npn import T_NOMINAL, thermal_voltage
+from app.design import Design, Topology, with_param
+from app.errors import DesignError
+from app.preferred import nearest
+from app.presets import DEVICE_PRESETS
+from app.units import format_si
+
+DEFAULT_GAIN: Final = 3.0
+DEFAULT_Q_L: Final = 80.0
+VE_FRACTION: Final = 0.1
+VE_MIN: Final = 1.0
+DIVIDER_STIFFNESS: Final = 10.0
+#: Gain resistor over the reactance of the tank capacitor it loads.
+LOAD_OVER_REACTANCE: Final = 10.0
+#: Coupling and bypass reactance over what they couple.
+COUPLING_RATIO: Final = 50.0
+RATIO_ITERATIONS: Final = 12
+#: The gain resistor is first sized for this multiple of the target hand gain,
+#: leaving room for the losses the full model then counts.
+LOSS_ALLOWANCE: Final = 2.0
+#: Least collector-emitter voltage a design may be biased at, V.
+MIN_VCE: Final = 0.5
+RATIO_BOUNDS: Final = (0.05, 20.0)
+
+
+class SynthesisError(DesignError):
+    """Targets that cannot be met as asked."""
+
+
+@dataclass(frozen=True)
+class Synthesis:
+    design: Design
+    f_osc: float | None
+    gain: float
+    reasons: list[str]
+
+
+def synthesize(
+    topology: str,
+    f: float,
+    Vcc: float,
+    IC: float,
+    gain: float = DEFAULT_GAIN,
+    L: float | None = None,
+    ratio: float | None = None,
+    preset: str = "general-purpose",
+    Q_L: float = DEFAULT_Q_L,
+    name: str | None = None,
+) -> Synthesis:
+    """A full design meeting the targets, in standard values, with a reason per choice."""
+    form = Topology(topology)
+    if not (1e3 <= f <= 1e9 and 0.5 <= Vcc <= 1000 and 1e-6 <= IC <= 1.0 and gain > 1):
+        raise SynthesisError(
+            "targets out of range: f 1 kHz … 1 GHz, Vcc 0.5 … 1000 V, IC 1 µA … 1 A, gain > 1"
+        )
+    dev = DEVICE_PRESETS[preset]
+    w = 2.0 * math.pi * f
+    VT = thermal_voltage(T_NOMINAL)
+    reasons: list[str] = []
+    VE = max(VE_MIN, VE_FRACTION * Vcc)
+    VBE = VT * math.log(IC / dev["IS"])
+    if Vcc < VE + VBE + MIN_VCE:
+        raise SynthesisError(f"Vcc = {Vcc:g} V leaves no headroom above V_E + V_BE")
+    RE = nearest(VE / IC, "E24")
+    reasons.append(
+        f"RE = {format_si(RE, 'Ω')}: V_E ≈ {VE:.2g} V degenerates the bias so β and V_BE "
+        "drift move I_C little"
+    )
+    IB = IC / dev["beta"]
+    VB = VE + VBE
+    I_div = DIVIDER_STIFFNESS * IB
+    RB2 = nearest(VB / I_div, "E24")
+    RB1 = nearest((Vcc - VB) / (I_div + IB), "E24")
+    reasons.append(
+        f"RB1 = {format_si(RB1, 'Ω')}, RB2 = {format_si(RB2, 'Ω')}: {DIVIDER_STIFFNESS:g}× the "
+        f"base current in the divider holds V_B ≈ {VB:.3g} V against β spread"
+    )
+    RC = None
+    n = ratio if ratio is not None else 0.5
+    gm = IC / VT
+    if form is not Topology.CC:
+        VC = VE + 0.5 * (Vcc - VE)
+        R_mid = (Vcc - VC) / IC
+        # Hand figure of the loop gain per ohm of RC, with a factor for the losses.
+        per_ohm = gm * (n if form is Topology.CE else n / (1 + n) ** 2)
+        R_need = LOSS_ALLOWANCE * gain / per_ohm
+        RC = nearest(min(R_mid, R_need), "E24")
+        why = (
+            "V_C midway between V_E and the supply leaves the largest symmetric swing"
+            if R_mid <= R_need
+            else f"the hand-method gain g_m·RC·(ratio) with room for losses sets it "
+            f"(V_C ≈ {Vcc - RC * IC:.3g} V, above midway)"
+        )
+        reasons.append(f"RC = {format_si(RC, 'Ω')}: {why}")
+    R_gain = RC if RC is not None else RE
+    if L is None:
+        # X_C1 = Z0/(1 + n) in a tank of characteristic impedance Z0 = √(L/Cs).
+        Z0 = (1.0 + n) * R_gain / LOAD_OVER_REACTANCE
+        L = nearest(Z0 / w, "E12")
+        reasons.append(
+            f"L = {format_si(L, 'H')}: a tank impedance that keeps the gain resistor "
+            f"{LOAD_OVER_REACTANCE:g}× the reactance it loads"
+        )
+    else:
+        reasons.append(f"L = {format_si(L, 'H')} as given")
+    Cs = 1.0 / (w * w * L)
+    R_in = min(dev["beta"] / gm, RB1 * RB2 / (RB1 + RB2))
+    # Cc2 feeds the base (resistance R_in) or, in the common-base form, the
+    # emitter, whose input resistance is about 1/g_m.
+    Cc2 = nearest(COUPLING_RATIO * (gm if form is Topology.CB else 1.0 / R_in) / w, "E12")
+    data = {
+        "format": "ringwise.design",
+        "version": 1,
+        "name": name or f"{form.value} source, {format_si(f, 'Hz')}",
+        "topology": form.value,
+        "supply": {"Vcc": Vcc},
+        "bias": {
+            "RB1": RB1, "RB2": RB2, "RC": RC, "RE": RE,
+            "CE": nearest(COUPLING_RATIO * gm / w, "E12") if form is Topology.CE else None,
+            # the base bypass: its reactance, seen at the emitter divided by β + 1,
+            # kept below 1/g_m
+            "CB": nearest(gm / w, "E12") if form is Topology.CB else None,
+        },
+        "tank": {"L": L, "Q_L": Q_L, "C1": Cs * (1 + n), "C2": Cs * (1 + n) / n, "C3": None},
+        "coupling": {"Cc1": Cs * (1 + n) * COUPLING_RATIO, "Cc2": Cc2},
+        "load": {"R_load": None},
+        "device": {"preset": preset, **dev},
+    }  # fmt: skip
+    design = Design.model_validate(data)
+    design = with_param(design, "Cc1", nearest(design.tank.C1 * COUPLING_RATIO, "E12"))
+    reasons.append(
+        f"Cc1, Cc2{', CE' if form is Topology.CE else ', CB' if form is Topology.CB else ''}: "
+        f"reactance at f at most 1/{COUPLING_RATIO:g} of what each couples, and no larger"
+    )
+    design, n, achieved = _tune_ratio(design, Cs, n, gain, fixed=ratio is not None)
+    reasons.append(
+        f"C1 = {format_si(design.tank.C1, 'F')}, C2 = {format_si(design.tank.C2, 'F')}: "
+        f"C1/C2 = {design.tank.C1 / design.tank.C2:.3g} gives a loop gain of {achieved:.3g} "
+        f"(target {gain:g}) with every loss included, in E24 values"
+    )
+    s = solve(design)
+    return Synthesis(design=design, f_osc=s.f_osc, gain=s.gain, reasons=reasons)
+
+
+def _tune_ratio(
+    design: Design, Cs: float, n: float, target: float, fixed: bool
+) -> tuple[Design, float, float]:
+    """Adjust C1/C2 (at constant Cs) until the full loop gain is the target, in E24 values."""
+
+    def with_ratio(k: float, snap: bool) -> Design:
+        C1, C2 = Cs * (1 + k), Cs * (1 + k) / k
+        if snap:
+            C1, C2 = nearest(C1, "E24"), nearest(C2, "E24")
+        return with_param(with_param(design, "C1", C1), "C2", C2)
+
+    common_base = design.topology is Topology.CB
+    if not fixed:
+        for _ in range(RATIO_ITERATIONS):
+            g = solve(with_ratio(n, snap=False)).gain
+            if g <= 0:
+                n = min(n * 2.0, 1.0 if common_base else RATIO_BOUNDS[1])
+                continue
+            step = target / g
+            if common_base:
+                # the gain goes as k = n/(1+n)², largest (1/4) at n = 1: tune k, keep n ≤ 1
+                k = min(n / (1 + n) ** 2 * step, 0.25)
+                n_new = 1.0 if k >= 0.25 else ((1 - 2 * k) - math.sqrt(1 - 4 * k)) / (2 * k)
+            else:
+                n_new = n * step
+            n = min(max(n_new, RATIO_BOUNDS[0]), RATIO_BOUNDS[1])
+            if abs(step - 1.0) < 1e-3:
+                break
+    # Pick the snapped neighbour pair closest to the target gain and frequency.
+    best, best_score = with_ratio(n, snap=True), math.inf
+    base = with_ratio(n, snap=False)
+    f_goal = solve(base).f_osc
+    for dC1 in (-1, 0, 1):
+        for dC2 in (-1, 0, 1):
+            cand = _step(_step(best, "C1", dC1), "C2", dC2)
+            s = solve(cand)
+            if s.f_osc is None or f_goal is None:
+                continue
+            score = abs(math.log(s.gain / target)) + 4.0 * abs(math.log(s.f_osc / f_goal))
+            if score < best_score:
+                best_pick, best_score = cand, score
+    chosen = best_pick if best_score < math.inf else best
+    return chosen, n, solve(chosen).gain
+
+
+def _step(design: Design, part: str, k: int) -> Design:
+    """Move ``part`` ``k`` steps along the E24 series."""
+    from app.preferred import values
+
+    v = getattr(design.tank, part)
+    decade = 10.0 ** math.floor(math.log10(v) - 1)
+    grid = [x * decade * m for m in (0.1, 1.0, 10.0) for x in values("E24")]
+    grid.sort()
+    i = min(range(len(grid)), key=lambda j: abs(math.log(grid[j] / v)))
+    return with_param(design, part, grid[max(0, min(len(grid) - 1, i + k))])
