@@ -5,7 +5,8 @@
 const SEL = {
   form: "#design-form",
   outcome: ".outcome",
-  figures: ".outcome [data-field]:not([data-field='warnings'])",
+  figures: ".outcome [data-field]:not([data-field='warnings']), .stability-panel dd[data-field]",
+  stressRows: "[data-role='stress-rows']",
   verdict: ".verdict",
   verdictLabel: "[data-role='verdict-label']",
   glyph: ".verdict .glyph use",
@@ -24,15 +25,40 @@ const SEL = {
   status: "#tool-status",
   config: "#ringwise-config",
   initial: "#ringwise-view",
-  plots: { loop: "#plot-loop", sweep: "#plot-sweep", reactance: "#plot-reactance", budget: "#plot-budget" },
+  plots: {
+    loop: "#plot-loop",
+    sweep: "#plot-sweep",
+    reactance: "#plot-reactance",
+    budget: "#plot-budget",
+    noise: "#plot-noise",
+    wave: "#plot-wave",
+    envelope: "#plot-envelope",
+    spectrum: "#plot-spectrum",
+  },
+  run: {
+    panel: "[data-role='run']",
+    cycles: "#run-cycles",
+    start: "#run-start",
+    stop: "#run-stop",
+    progress: "#run-progress",
+    status: "#run-status",
+    error: "#run-error",
+    stale: ".run-stale",
+    body: ".run-body",
+    figures: ".run-figures [data-field]",
+    notes: "[data-field='transient.notes']",
+    warnings: "[data-field='run.warnings']",
+    node: "[data-role='run-node']",
+  },
 };
 
 const EVENTS = {
   rendered: "ringwise:rendered", // results, indicator, schematic and plots a, c, d drawn
   swept: "ringwise:swept", // the what-if plot drawn
+  ran: "ringwise:ran", // a time-domain run ended (detail.state: done, cancelled, failed)
 };
 
-const API = { sheet: "/api/sheet", sweep: "/api/sheet/sweep", importFile: "/api/import" };
+const API = { sheet: "/api/sheet", sweep: "/api/sheet/sweep", importFile: "/api/import", jobs: "/api/simulate/jobs" };
 const DEBOUNCE_MS = 60;
 const PRESET_FIELDS = ["beta", "IS", "VA", "fT", "C_mu"];
 
@@ -42,6 +68,8 @@ const form = $(SEL.form);
 const config = JSON.parse($(SEL.config).textContent);
 
 const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, timer: 0, inputAt: 0, view: null };
+// The time-domain run: the job being polled, and the query of the design it ran on.
+const run = { id: null, timer: 0, query: null, seq: 0 };
 
 // ---- the form and the link -------------------------------------------------
 
@@ -124,7 +152,7 @@ async function requestSweep(texts, view, inputAt) {
   try {
     const data = await post(API.sweep, { fields: texts, param, threshold_hint: hint }, state.sweep.signal);
     if (seq !== state.sweepSeq || !data.ok) return;
-    plotSweep(data.sweep, view);
+    plotSweep(data.sweep);
     document.dispatchEvent(new CustomEvent(EVENTS.swept, { detail: { seq, inputAt, at: performance.now() } }));
   } catch (err) {
     if (err.name !== "AbortError") status(`What-if plot not computed: ${err.message}`);
@@ -165,7 +193,10 @@ function render(view) {
     if (!figure) continue;
     el.dataset.value = figure.raw;
     if (!el.classList.contains("verdict")) el.textContent = figure.text;
+    if ("hidden" in figure) el.hidden = figure.hidden;
   }
+  renderStress(view);
+  markRunStale(view);
   const verdict = view.shown["startup.verdict"];
   $(SEL.verdictLabel).textContent = verdict.text;
   $(SEL.glyph).setAttribute("href", `#glyph-${verdict.value}`);
@@ -175,6 +206,32 @@ function render(view) {
   plotLoop(view.curves.loop, view);
   plotReactance(view.curves.reactance);
   plotBudget(view.curves.budget);
+  plotNoise(view.curves.noise);
+}
+
+function cell(tag, text, field) {
+  const el = document.createElement(tag);
+  el.textContent = text;
+  if (field) {
+    const figure = state.view.shown[field];
+    el.dataset.field = field;
+    el.dataset.value = figure ? figure.raw : "";
+    el.textContent = figure ? figure.text : "—";
+  }
+  return el;
+}
+
+function renderStress(view) {
+  const rows = view.part_rows.map((row) => {
+    const tr = document.createElement("tr");
+    tr.dataset.part = row.part;
+    if (row.close) tr.className = "close";
+    const head = cell("th", row.part);
+    head.scope = "row";
+    tr.append(head, cell("td", "", `${row.prefix}.I_rms`), cell("td", "", `${row.prefix}.V_peak`), cell("td", row.rating), cell("td", row.share), cell("td", "", `${row.prefix}.P`));
+    return tr;
+  });
+  $(SEL.stressRows).replaceChildren(...rows);
 }
 
 function warningItem(w) {
@@ -225,6 +282,48 @@ function renderSweepOptions(view) {
 }
 
 // ---- plots (Plotly.react redraws in place) ---------------------------------
+//
+// A plot is redrawn only when its data changed since it was last drawn, and
+// only once it is on screen (or near it): a plot scrolled out of view, or in
+// a panel not shown yet, keeps its newest data and is drawn when it appears.
+
+const lazy = { seen: new Set(), drawn: new Map(), pending: new Map() };
+const observer = new IntersectionObserver(
+  (entries) => {
+    for (const entry of entries) {
+      const id = entry.target.id;
+      if (entry.isIntersecting) {
+        lazy.seen.add(id);
+        flushPlot(id);
+      } else lazy.seen.delete(id);
+    }
+  },
+  { rootMargin: "300px 0px" },
+);
+
+function plotWhenSeen(sel, data, draw) {
+  const el = $(sel);
+  const key = JSON.stringify(data);
+  if (lazy.drawn.get(el.id) === key) {
+    lazy.pending.delete(el.id);
+    return;
+  }
+  lazy.pending.set(el.id, { key, draw: () => draw(el) });
+  if (!observed.has(el.id)) {
+    observed.add(el.id);
+    observer.observe(el);
+  }
+  if (lazy.seen.has(el.id)) flushPlot(el.id);
+}
+const observed = new Set();
+
+function flushPlot(id) {
+  const job = lazy.pending.get(id);
+  if (!job) return;
+  lazy.pending.delete(id);
+  job.draw();
+  lazy.drawn.set(id, job.key);
+}
 
 const INK = "#1f2a30";
 const ACCENT = "#a2521f";
@@ -246,10 +345,15 @@ const vline = (x, dash, color = INK) => ({ type: "line", xref: "x", yref: "paper
 const hline = (y, dash, yref = "y") => ({ type: "line", xref: "paper", yref, x0: 0, x1: 1, y0: y, y1: y, line: { color: "#5d6a70", width: 1, dash } });
 
 function plotLoop(c, view) {
+  const label = view.shown["loop.f_osc"].text;
+  plotWhenSeen(SEL.plots.loop, [c, label], (el) => drawLoop(el, c, label));
+}
+
+function drawLoop(el, c, label) {
   const shapes = [hline(1, "dot")];
   if (c.f_osc) shapes.push(vline(c.f_osc, "dash", ACCENT));
   Plotly.react(
-    $(SEL.plots.loop),
+    el,
     [
       { x: c.f, y: c.magnitude, name: "|T|", line: { color: INK, width: 2 }, hovertemplate: "%{x:.4s}Hz  |T| %{y:.3f}<extra></extra>" },
       { x: c.f, y: c.phase_deg, name: "phase (°)", yaxis: "y2", line: { color: ACCENT, width: 1.5, dash: "dot" }, hovertemplate: "%{x:.4s}Hz  %{y:.1f}°<extra></extra>" },
@@ -259,13 +363,17 @@ function plotLoop(c, view) {
       yaxis: { type: "log", title: { text: "|T|" }, exponentformat: "SI" },
       yaxis2: { overlaying: "y", side: "right", title: { text: "phase (°)" }, zeroline: false },
       shapes,
-      annotations: c.f_osc ? [{ x: Math.log10(c.f_osc), y: 1, yref: "paper", text: `f_osc ${view.shown["loop.f_osc"].text}`, showarrow: false, xanchor: "left", yanchor: "top", font: { color: ACCENT, size: 10 } }] : [],
+      annotations: c.f_osc ? [{ x: Math.log10(c.f_osc), y: 1, yref: "paper", text: `f_osc ${label}`, showarrow: false, xanchor: "left", yanchor: "top", font: { color: ACCENT, size: 10 } }] : [],
     }),
     PLOT_CONFIG,
   );
 }
 
-function plotSweep(s, view) {
+function plotSweep(s) {
+  plotWhenSeen(SEL.plots.sweep, s, (el) => drawSweep(el, s));
+}
+
+function drawSweep(el, s) {
   const shapes = [hline(1, "dot"), vline(s.current, "dot")];
   const annotations = [{ x: Math.log10(s.current), y: 0, yref: "paper", text: "now", showarrow: false, xanchor: "left", yanchor: "bottom", font: { size: 10 } }];
   if (s.threshold) {
@@ -273,7 +381,7 @@ function plotSweep(s, view) {
     annotations.push({ x: Math.log10(s.threshold), y: 1, yref: "paper", text: "loop gain 1", showarrow: false, xanchor: "left", yanchor: "top", font: { color: "#a3322a", size: 10 } });
   }
   Plotly.react(
-    $(SEL.plots.sweep),
+    el,
     [
       { x: s.values, y: s.gain, name: "loop gain", line: { color: INK, width: 2 }, hovertemplate: `${s.param} %{x:.3s}${s.unit}  gain %{y:.3f}<extra></extra>` },
       { x: s.values, y: s.f_osc, name: "f_osc (Hz)", yaxis: "y2", line: { color: ACCENT, width: 1.5, dash: "dot" }, hovertemplate: `${s.param} %{x:.3s}${s.unit}  %{y:.4s}Hz<extra></extra>` },
@@ -292,8 +400,12 @@ function plotSweep(s, view) {
 const REACTANCE_COLOURS = { L: ACCENT, C1: "#1d6b57", C2: "#3b6ea5", C3: "#5b3f8c", C_series: INK };
 
 function plotReactance(r) {
+  plotWhenSeen(SEL.plots.reactance, r, (el) => drawReactance(el, r));
+}
+
+function drawReactance(el, r) {
   Plotly.react(
-    $(SEL.plots.reactance),
+    el,
     r.lines.map((line) => ({
       x: r.f,
       y: line.X,
@@ -311,8 +423,12 @@ function plotReactance(r) {
 }
 
 function plotBudget(b) {
+  plotWhenSeen(SEL.plots.budget, b, (el) => drawBudget(el, b));
+}
+
+function drawBudget(el, b) {
   Plotly.react(
-    $(SEL.plots.budget),
+    el,
     [
       {
         type: "bar",
@@ -332,6 +448,216 @@ function plotBudget(b) {
     }),
     PLOT_CONFIG,
   );
+}
+
+const REGION_FILL = { cube: "rgba(162, 82, 31, 0.08)", square: "rgba(29, 107, 87, 0.07)", flicker: "rgba(154, 106, 0, 0.08)", floor: "rgba(59, 110, 165, 0.07)" };
+
+function plotNoise(n) {
+  plotWhenSeen(SEL.plots.noise, n, (el) => drawNoise(el, n));
+}
+
+function drawNoise(el, n) {
+  const shapes = n.regions.map((r) => ({
+    type: "rect",
+    layer: "below",
+    xref: "x",
+    yref: "paper",
+    x0: r.x0,
+    x1: r.x1,
+    y0: 0,
+    y1: 1,
+    fillcolor: REGION_FILL[r.kind],
+    line: { width: 0 },
+    label: { text: r.label, textposition: "top center", font: { size: 10, color: "#5d6a70" } },
+  }));
+  for (const x of [n.f_corner, n.leeson_corner]) if (x) shapes.push(vline(x, "dot", "#5d6a70"));
+  Plotly.react(
+    el,
+    [
+      { x: n.offset, y: n.dBc_Hz, name: "L(Δf), Leeson", line: { color: INK, width: 2 }, hovertemplate: "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>" },
+      { x: n.points.offset, y: n.points.dBc_Hz, name: "reported offsets", mode: "markers", marker: { color: ACCENT, size: 7, symbol: "diamond" }, hovertemplate: "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>" },
+    ],
+    layout({
+      margin: { l: 58, r: 16, t: 24, b: 40 },
+      xaxis: { type: "log", title: { text: "offset from the carrier (Hz)" }, exponentformat: "SI", range: [1, 7] },
+      yaxis: { title: { text: "L (dBc/Hz)" } },
+      shapes,
+    }),
+    PLOT_CONFIG,
+  );
+}
+
+function plotWave(w, node) {
+  plotWhenSeen(SEL.plots.wave, w, (el) =>
+    Plotly.react(
+      el,
+      [
+        { x: w.t, y: w.v_out, name: `output (${node})`, line: { color: INK, width: 1.6 }, hovertemplate: "%{x:.4s}s  %{y:.3s}V<extra></extra>" },
+        { x: w.t, y: w.v_be, name: "v_be", yaxis: "y2", line: { color: ACCENT, width: 1.3, dash: "dot" }, hovertemplate: "%{x:.4s}s  v_be %{y:.3s}V<extra></extra>" },
+      ],
+      layout({
+        xaxis: { title: { text: "time (s)" }, exponentformat: "SI", ticksuffix: "s" },
+        yaxis: { title: { text: "output node (V)" }, exponentformat: "SI" },
+        yaxis2: { overlaying: "y", side: "right", title: { text: "v_be (V)" }, zeroline: false },
+      }),
+      PLOT_CONFIG,
+    ),
+  );
+}
+
+function plotEnvelope(e) {
+  plotWhenSeen(SEL.plots.envelope, e, (el) =>
+    Plotly.react(
+      el,
+      [{ x: e.t, y: e.v, name: "half peak-to-peak per period", line: { color: INK, width: 1.8 }, hovertemplate: "%{x:.4s}s  %{y:.3s}V<extra></extra>" }],
+      layout({
+        showlegend: false,
+        margin: { l: 52, r: 16, t: 8, b: 40 },
+        xaxis: { title: { text: "time from the kick (s)" }, exponentformat: "SI", ticksuffix: "s" },
+        yaxis: { title: { text: "amplitude (V)" }, exponentformat: "SI", rangemode: "tozero" },
+      }),
+      PLOT_CONFIG,
+    ),
+  );
+}
+
+function plotSpectrum(c) {
+  const data = { spectrum: c.spectrum, bars: c.bars };
+  plotWhenSeen(SEL.plots.spectrum, data, (el) =>
+    Plotly.react(
+      el,
+      [
+        { type: "bar", x: c.bars.f, y: c.bars.height, base: c.bars.base, customdata: c.bars.dBc, name: "harmonics", marker: { color: ACCENT }, width: c.bars.width, hovertemplate: "%{x:.4s}Hz  %{customdata:.1f} dBc<extra></extra>" },
+        { x: c.spectrum.f, y: c.spectrum.dBc, name: "spectrum", line: { color: "#5d6a70", width: 1 }, hovertemplate: "%{x:.4s}Hz  %{y:.1f} dBc<extra></extra>" },
+      ],
+      layout({
+        margin: { l: 52, r: 16, t: 8, b: 40 },
+        xaxis: { title: { text: "frequency (Hz)" }, exponentformat: "SI" },
+        yaxis: { title: { text: "level (dBc)" }, range: [c.bars.base, 5] },
+      }),
+      PLOT_CONFIG,
+    ),
+  );
+}
+
+// ---- the time-domain run -----------------------------------------------------
+
+function runState(name, text = "") {
+  $(SEL.run.panel).dataset.run = name;
+  $(SEL.run.status).textContent = text;
+  $(SEL.run.start).disabled = name === "running";
+  $(SEL.run.stop).disabled = name !== "running";
+}
+
+function runError(message) {
+  const box = $(SEL.run.error);
+  box.textContent = message || "";
+  box.hidden = !message;
+}
+
+async function startRun() {
+  if (!state.view?.ok) {
+    runError("Fix the marked fields first: the run needs a design that can be computed.");
+    return;
+  }
+  await stopRun(false);
+  runError("");
+  const seq = ++run.seq;
+  const query = state.view.query;
+  const body = { design: state.view.design, cycles: $(SEL.run.cycles).value.trim(), points: config.run.points };
+  $(SEL.run.progress).value = 0;
+  runState("running", "Starting…");
+  let job;
+  try {
+    job = await post(API.jobs, body);
+  } catch (err) {
+    if (seq !== run.seq) return;
+    runState("failed", "Not started");
+    const problem = err.body?.problems?.[0];
+    runError(problem?.field === "cycles" ? `Cycles ${problem.message}` : err.message);
+    document.dispatchEvent(new CustomEvent(EVENTS.ran, { detail: { state: "failed" } }));
+    return;
+  }
+  if (seq !== run.seq) return;
+  run.id = job.id;
+  run.query = query;
+  runState("running", "Running…");
+  poll(seq);
+}
+
+async function poll(seq) {
+  let job;
+  try {
+    const response = await fetch(`${API.jobs}/${encodeURIComponent(run.id)}?view=true`);
+    job = await response.json();
+    if (!response.ok) throw new Error(job.message);
+  } catch (err) {
+    if (seq !== run.seq) return;
+    run.id = null;
+    runState("failed", "Lost the run");
+    runError(err.message);
+    return;
+  }
+  if (seq !== run.seq) return;
+  $(SEL.run.progress).value = job.progress;
+  if (job.state === "running") {
+    run.timer = setTimeout(() => poll(seq), config.run.poll_ms);
+    return;
+  }
+  run.id = null;
+  if (job.state === "done") {
+    renderRun(job.view);
+    runState("done", "Finished");
+  } else if (job.state === "failed") {
+    runState("failed", "The run failed");
+    runError(job.error.message);
+  } else runState("cancelled", "Stopped");
+  document.dispatchEvent(new CustomEvent(EVENTS.ran, { detail: { state: job.state } }));
+}
+
+async function stopRun(announce = true) {
+  clearTimeout(run.timer);
+  const id = run.id;
+  run.id = null;
+  run.seq++;
+  if (!id) return;
+  $(SEL.run.stop).disabled = true;
+  try {
+    const response = await fetch(`${API.jobs}/${encodeURIComponent(id)}`, { method: "DELETE" });
+    const job = await response.json();
+    $(SEL.run.progress).value = job.progress ?? 0;
+  } catch {
+    // the server forgets the job on its own; nothing to keep
+  }
+  if (announce) {
+    runState("cancelled", "Stopped");
+    document.dispatchEvent(new CustomEvent(EVENTS.ran, { detail: { state: "cancelled" } }));
+  }
+}
+
+function listItems(list, items, text) {
+  list.replaceChildren(...(items.length ? items.map((item) => Object.assign(document.createElement("li"), { textContent: text(item) })) : [noneItem()]));
+}
+
+function renderRun(v) {
+  $(SEL.run.body).hidden = false;
+  for (const el of $$(SEL.run.figures)) {
+    const figure = v.shown[el.dataset.field];
+    el.dataset.value = figure ? figure.raw : "";
+    el.textContent = figure ? figure.text : "—";
+  }
+  listItems($(SEL.run.notes), v.notes, (n) => n);
+  const warnings = $(SEL.run.warnings);
+  warnings.replaceChildren(...(v.warnings.length ? v.warnings.map(warningItem) : [noneItem()]));
+  $(SEL.run.node).textContent = v.output_node;
+  markRunStale(state.view);
+  plotWave(v.curves.waveform, v.output_node);
+  plotEnvelope(v.curves.envelope);
+  plotSpectrum(v.curves);
+}
+
+function markRunStale(view) {
+  if (run.query !== null) $(SEL.run.stale).hidden = view.query === run.query;
 }
 
 // ---- import, export, copy --------------------------------------------------
@@ -389,6 +715,12 @@ function start() {
   });
   $(SEL.sweepParam).addEventListener("change", () => state.view?.ok && requestSweep(formTexts(), { ...state.view, sweep_param: $(SEL.sweepParam).value }, performance.now()));
   $(SEL.copy).addEventListener("click", copyLink);
+  $(SEL.run.start).addEventListener("click", startRun);
+  $(SEL.run.stop).addEventListener("click", () => stopRun());
+  $(SEL.run.cycles).addEventListener("keydown", (e) => e.key === "Enter" && startRun());
+  window.addEventListener("pagehide", () => {
+    if (run.id) fetch(`${API.jobs}/${encodeURIComponent(run.id)}`, { method: "DELETE", keepalive: true });
+  });
   $(SEL.importFile).addEventListener("change", async (e) => {
     const file = e.target.files[0];
     if (file) await importText(await file.text());
@@ -407,7 +739,7 @@ function start() {
   });
   const initial = JSON.parse($(SEL.initial).textContent);
   render(initial);
-  if (initial.ok) plotSweep(initial.curves.sweep, initial);
+  if (initial.ok) plotSweep(initial.curves.sweep);
   document.documentElement.dataset.ready = "1";
   document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq: 0, inputAt: 0, at: performance.now() } }));
 }

@@ -130,3 +130,85 @@ def budget_bars(budget: list[dict[str, Any]]) -> dict[str, Any]:
         "cost_dB": [b["cost_dB"] for b in lines],
         "share": [b["share"] for b in lines],
     }
+
+
+def noise_regions(
+    lo: float, hi: float, f_corner: float | None, leeson_corner: float | None
+) -> list[dict[str, Any]]:
+    """The slope regions of Leeson's L(Δf) over ``lo`` … ``hi``.
+
+    L = (F·k·T/2Ps)·(1 + (f0/(2·Q·Δf))²)·(1 + fc/Δf): below both corners it
+    falls as 1/f³; between them as 1/f² (fc below the Leeson corner) or as 1/f
+    (fc above it); above both it is flat (the floor).
+    """
+    if not (f_corner and leeson_corner and f_corner > 0 and leeson_corner > 0):
+        return []
+    a, b = sorted((f_corner, leeson_corner))
+    middle = ("1/f²", "square") if f_corner <= leeson_corner else ("1/f", "flicker")
+    spans = [(lo, a, "1/f³", "cube"), (a, b, *middle)]
+    spans.append((b, hi, "floor", "floor"))
+    out = []
+    for x0, x1, label, kind in spans:
+        x0, x1 = max(x0, lo), min(x1, hi)
+        if x1 > x0:
+            out.append({"x0": x0, "x1": x1, "label": label, "kind": kind})
+    return out
+
+
+def noise_curve(stability: dict[str, Any]) -> dict[str, Any]:
+    """The core's Leeson curve with its regions and report points, for a log-log plot."""
+    curve = stability["curve"]
+    offsets = curve["offset"]
+    regions = (
+        noise_regions(offsets[0], offsets[-1], stability["f_corner"], stability["leeson_corner"])
+        if offsets
+        else []
+    )
+    return {
+        "offset": offsets,
+        "dBc_Hz": curve["dBc_Hz"],
+        "regions": regions,
+        "points": {
+            "offset": [p["offset"] for p in stability["phase_noise"]],
+            "dBc_Hz": [p["dBc_Hz"] for p in stability["phase_noise"]],
+        },
+        "f_corner": stability["f_corner"],
+        "leeson_corner": stability["leeson_corner"],
+    }
+
+
+#: The harmonic bars stand on a floor this far below the lowest harmonic shown, dB,
+#: rounded down to a multiple of HARMONIC_FLOOR_STEP (and never above −20 dBc).
+HARMONIC_FLOOR_MARGIN: Final = 10.0
+HARMONIC_FLOOR_STEP: Final = 10.0
+HARMONIC_FLOOR_TOP: Final = -20.0
+#: Width of a harmonic bar, as a fraction of the spacing of the harmonics.
+HARMONIC_BAR_WIDTH: Final = 0.25
+
+
+def run_curves(sim: dict[str, Any]) -> dict[str, Any]:
+    """A time-domain run's plot data: waveform, envelope, spectrum with harmonic bars.
+
+    The bars are the fundamental (0 dBc) and the run's harmonics at whole
+    multiples of the measured frequency, each drawn from a common floor.
+    """
+    tr = sim["transient"]
+    levels: list[float | None] = [0.0, *tr["harmonics_dBc"]] if tr["f_meas"] else []
+    known = [v for v in levels if v is not None]
+    floor = min([HARMONIC_FLOOR_TOP, *(v - HARMONIC_FLOOR_MARGIN for v in known)])
+    floor = HARMONIC_FLOOR_STEP * math.floor(floor / HARMONIC_FLOOR_STEP)
+    bars = [(k + 1, v) for k, v in enumerate(levels) if v is not None]
+    return {
+        "waveform": tr["waveform"],
+        "envelope": tr["envelope"],
+        "spectrum": tr["spectrum"],
+        "bars": {
+            "f": [k * tr["f_meas"] for k, _ in bars],
+            "order": [k for k, _ in bars],
+            "dBc": [v for _, v in bars],
+            "base": floor,
+            "height": [v - floor for _, v in bars],
+            "width": HARMONIC_BAR_WIDTH * tr["f_meas"] if tr["f_meas"] else None,
+        },
+        "output_node": sim["output_node"],
+    }

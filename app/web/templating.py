@@ -8,12 +8,24 @@ from typing import Any
 from fastapi import Request
 from fastapi.templating import Jinja2Templates
 
+from app.analysis.stability import RATING_FRACTION, REPORT_OFFSETS
+from app.analysis.transient import HARMONICS, MAX_CYCLES, MIN_CYCLES
 from app.web.assets import plotly_js, static_url
-from app.web.fields import FIELDS, GROUPS, choices, preset_texts
+from app.web.fields import FIELDS, GROUPS, choices, display, preset_texts
 from app.web.ladders import SPANS, ladder
 from app.web.paths import TEMPLATES_DIR
+from app.web.routers.simulate import DEFAULT_CYCLES, POLL_MS, SHEET_POINTS
 from app.web.samples import samples
-from app.web.view import PANELS, SHOWN, idle_by_topology
+from app.web.view import (
+    ORDINALS,
+    PANELS,
+    RUN_SHOWN,
+    SHOWN,
+    STABILITY_SHOWN,
+    SUMMARY_PANELS,
+    SUMMARY_STABILITY,
+    idle_by_topology,
+)
 
 # Starlette's Jinja2Templates turns autoescaping on for .html templates; it stays on.
 templates = Jinja2Templates(directory=str(TEMPLATES_DIR))
@@ -48,7 +60,27 @@ def _static_context() -> dict[str, Any]:
         "pi": PI_ARRANGEMENT,
         "corners": CORNERS,
         "plotly_version": plotly_js().version,
+        "stability_shown": STABILITY_SHOWN,
+        "summary_panels": SUMMARY_PANELS,
+        "summary_stability": [row for row in STABILITY_SHOWN if row[0] in SUMMARY_STABILITY],
+        "noise_defaults": [
+            {"path": f"stability.phase_noise.{i}.dBc_Hz", "offset": display(f, "Hz")}
+            for i, f in enumerate(REPORT_OFFSETS)
+        ],
+        "rating_percent": f"{100 * RATING_FRACTION:g} %",
+        "run_shown": RUN_SHOWN,
+        "harmonic_rows": [
+            {"path": f"transient.harmonics_dBc.{i}", "label": f"{ORDINALS[i]} harmonic"}
+            for i in range(HARMONICS - 1)
+        ],
+        "run": {"cycles": DEFAULT_CYCLES},
         "config": {
+            "run": {
+                "points": SHEET_POINTS,
+                "cycles_min": MIN_CYCLES,
+                "cycles_max": MAX_CYCLES,
+                "poll_ms": POLL_MS,
+            },
             "presets": preset_texts(),
             "idle": idle_by_topology(),
             "ladders": {name: ladder(name)[1] for name in SPANS},

@@ -17,6 +17,7 @@ from pydantic import ValidationError
 
 from app.analysis.analyze import analyze
 from app.analysis.operating import solve
+from app.analysis.stability import RATING_FRACTION
 from app.circuit.topologies import GAIN_SETTER
 from app.design import Design, Topology, get_param
 from app.errors import describe_validation_error
@@ -49,8 +50,13 @@ SHOWN: Final = (
     ("tank.R_s", "Ω", "Coil series loss R_s", "loop"),
     ("loop.Z_out", "Ω", "Load on the controlled source", "loop"),
     ("poles.growth_time", "s", "Envelope growth time 1/σ", "loop"),
-    ("large_signal.amp_out", "V", "Output amplitude (large signal)", "loop"),
-    ("stability.leeson_corner", "Hz", "Leeson corner f0/(2·Q)", "loop"),
+    ("large_signal.amp_out", "V", "Output amplitude (fundamental)", "swing"),
+    ("large_signal.output_node", "text", "Output taken at", "swing"),
+    ("large_signal.amp_be", "V", "Base-emitter amplitude", "swing"),
+    ("large_signal.x", "", "Drive V_be/V_T", "swing"),
+    ("large_signal.IC_avg", "A", "Average I_C with the swing", "swing"),
+    ("large_signal.P_tank", "W", "Signal power in the coil loss", "swing"),
+    ("large_signal.valid", "valid", "Estimate within its assumptions", "swing"),
     ("operating_point.IC", "A", "Collector current I_C", "bias"),
     ("operating_point.VCE", "V", "V_CE", "bias"),
     ("operating_point.VBE", "V", "V_BE", "bias"),
@@ -68,18 +74,75 @@ SHOWN: Final = (
 PANELS: Final = (
     ("frequency", "Frequency and tank"),
     ("loop", "Loop gain and startup"),
+    ("swing", "Steady swing (describing-function estimate)"),
     ("bias", "Operating point"),
 )
 
+#: The summary's panels (its stability block and swing line are its own).
+SUMMARY_PANELS: Final = tuple(p for p in PANELS if p[0] != "swing")
+
+#: The stability panel's figures besides the phase-noise points: (path, unit, label).
+STABILITY_SHOWN: Final = (
+    ("stability.Q_loaded", "", "Loaded Q (phase slope)"),
+    ("stability.P_signal", "W", "Signal power P_s in the resonator loss"),
+    ("stability.F_dB", "dB", "Noise factor F used"),
+    ("stability.f_corner", "Hz", "Flicker corner used"),
+    ("stability.leeson_corner", "Hz", "Leeson corner f0/(2·Q)"),
+    ("stability.pushing_Hz_per_V", "Hz/V", "Pushing df/dVcc"),
+    ("stability.pulling_Hz", "Hz", "Pulling: f with the load − f open"),
+    ("stability.pulling_Hz_per_ohm", "Hz/Ω", "df/dR_load at the load"),
+)
+
+#: Of those, the ones the summary's stability block lists.
+SUMMARY_STABILITY: Final = (
+    "stability.Q_loaded",
+    "stability.P_signal",
+    "stability.pushing_Hz_per_V",
+    "stability.pulling_Hz",
+)
+
+#: The time-domain run's figures: (path in the simulation result, unit, label).
+RUN_SHOWN: Final = (
+    ("transient.f_meas", "Hz", "Measured frequency (zero crossings)"),
+    ("transient.amp_out_peak", "V", "Output peak amplitude"),
+    ("transient.amp_out_pp", "V", "Output peak-to-peak"),
+    ("transient.amp_out_fund", "V", "Output fundamental (FFT)"),
+    ("transient.amp_be_fund", "V", "Base-emitter fundamental (FFT)"),
+    ("transient.thd", "%", "THD at the output"),
+    ("transient.t_startup_90", "s", "Startup to 90 % of the final amplitude"),
+    ("transient.VE_shift", "V", "Shift of the average emitter voltage"),
+    ("transient.squegging", "yesno", "Squegging seen"),
+    ("transient.settled", "yesno", "Envelope settled"),
+    ("transient.cycles_run", "", "Cycles run"),
+    ("transient.bias_time_constant", "s", "Longest bias time constant"),
+)
+#: Names of the harmonics in ``transient.harmonics_dBc`` (2nd, 3rd, ...).
+ORDINALS: Final = ("2nd", "3rd", "4th", "5th", "6th", "7th", "8th", "9th")
+
 
 def lookup(result: Mapping[str, Any], path: str) -> Any:
-    """The value at a dotted path of the result (``None`` where the result has none)."""
+    """The value at a dotted path of the result (``None`` where the result has none);
+    a numeric part indexes a list (``stability.phase_noise.0.dBc_Hz``)."""
     value: Any = result
     for key in path.split("."):
-        if not isinstance(value, Mapping) or key not in value:
+        if isinstance(value, list) and key.isdigit() and int(key) < len(value):
+            value = value[int(key)]
+        elif isinstance(value, Mapping) and key in value:
+            value = value[key]
+        else:
             return None
-        value = value[key]
     return value
+
+
+def _text(value: Any, unit: str) -> str:
+    """Display text of a figure in one of the sheet's units (SI, or a few named kinds)."""
+    if unit == "text":
+        return str(value)
+    if unit == "yesno":
+        return "—" if value is None else ("yes" if value else "no")
+    if unit == "%":
+        return "—" if value is None else f"{100.0 * value:.3g} %"
+    return display(value, unit)
 
 
 def shown_figures(result: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
@@ -87,18 +150,96 @@ def shown_figures(result: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
     out = {}
     for path, unit, _label, _panel in SHOWN:
         value = lookup(result, path)
-        if unit == "text":
-            text = str(value)
-        else:
-            if unit == "param":
-                unit = BY_NAME[result["startup"]["threshold_param"]].unit
-            text = display(value, unit)
-        out[path] = _figure(value, text)
+        if unit == "valid":
+            continue
+        if unit == "param":
+            unit = BY_NAME[result["startup"]["threshold_param"]].unit
+        out[path] = _figure(value, _text(value, unit))
+    large = result["large_signal"]
+    shift = None
+    if large["IC_avg"] is not None and result["operating_point"]["IC"] is not None:
+        shift = large["IC_avg"] - result["operating_point"]["IC"]
+    if shift is not None:
+        sign = "+" if shift >= 0 else "−"
+        text = f"{display(large['IC_avg'], 'A')} ({sign}{display(abs(shift), 'A')} from DC)"
+        out["large_signal.IC_avg"] = _figure(large["IC_avg"], text)
+    valid = bool(large["valid"])
+    out["large_signal.valid"] = _figure(valid, "yes" if valid else "no: see the note")
+    reason = large["reason"] or ""
+    out["large_signal.reason"] = {**_figure(reason, reason), "hidden": valid or not reason}
+    out.update(stability_figures(result))
     startup = result["startup"]
     out["startup.margin"] = _figure(startup["margin"], display(startup["margin"], ""))
     out["startup.verdict"] = _figure(startup["verdict"], startup["label"])
     out["startup.threshold_param"] = _figure(startup["threshold_param"], startup["threshold_param"])
     return out
+
+
+def stability_figures(result: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
+    """The stability panel's figures: phase noise at the report offsets, the stability
+    figures, and the tank parts' stresses, keyed by result path."""
+    st = result["stability"]
+    out = {}
+    for i, point in enumerate(st["phase_noise"]):
+        path = f"stability.phase_noise.{i}.dBc_Hz"
+        out[path] = _figure(point["dBc_Hz"], display(point["dBc_Hz"], "dBc/Hz"))
+    for path, unit, _label in STABILITY_SHOWN:
+        value = lookup(result, path)
+        out[path] = _figure(value, _text(value, unit))
+    for i, part in enumerate(st["parts"]):
+        for key, unit in (("I_rms", "A"), ("V_peak", "V"), ("P", "W")):
+            out[f"stability.parts.{i}.{key}"] = _figure(part[key], display(part[key], unit))
+    return out
+
+
+def noise_offsets(result: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """The phase-noise report points as the sheet lists them: path, offset text."""
+    return [
+        {"path": f"stability.phase_noise.{i}.dBc_Hz", "offset": display(p["offset"], "Hz")}
+        for i, p in enumerate(result["stability"]["phase_noise"])
+    ]
+
+
+def part_rows(result: Mapping[str, Any], V_cap: float) -> list[dict[str, Any]]:
+    """The power-budget table: per tank part, its paths, and for a capacitor its peak
+    voltage as a share of the rating (flagged near the core's warning fraction)."""
+    rows = []
+    for i, part in enumerate(result["stability"]["parts"]):
+        is_cap = part["part"].startswith("C")
+        share = part["V_peak"] / V_cap if is_cap and part["V_peak"] is not None else None
+        rows.append(
+            {
+                "part": part["part"],
+                "prefix": f"stability.parts.{i}",
+                "rating": display(V_cap, "V") if is_cap else "—",
+                "share": "—" if share is None else f"{100.0 * share:.3g} %",
+                "close": share is not None and share > RATING_FRACTION,
+            }
+        )
+    return rows
+
+
+def run_view(sim: Mapping[str, Any]) -> dict[str, Any]:
+    """What the sheet shows of a time-domain run (the ``simulate`` result): its figures
+    by path, the harmonics, the notes and warnings, and the three plots' data."""
+    tr = sim["transient"]
+    shown = {}
+    for path, unit, _label in RUN_SHOWN:
+        value = lookup(sim, path)
+        shown[path] = _figure(value, _text(value, unit))
+    harmonics = []
+    for i, level in enumerate(tr["harmonics_dBc"]):
+        path = f"transient.harmonics_dBc.{i}"
+        shown[path] = _figure(level, display(level, "dBc"))
+        harmonics.append({"path": path, "label": f"{ORDINALS[i]} harmonic"})
+    return {
+        "shown": shown,
+        "harmonics": harmonics,
+        "notes": list(tr["notes"]),
+        "warnings": list(sim["warnings"]),
+        "output_node": sim["output_node"],
+        "curves": curves.run_curves(sim),
+    }
 
 
 def _figure(value: Any, text: str) -> dict[str, Any]:
@@ -153,7 +294,10 @@ def build_view(
         "problems": problems,
         "link_problems": link_problems or [],
         "result": None,
+        "design": None,
         "shown": None,
+        "noise_offsets": [],
+        "part_rows": [],
         "curves": None,
         "unused": [],
         "sweep_options": [],
@@ -195,7 +339,10 @@ def build_view(
     view.update(
         ok=True,
         result=result,
+        design=document(texts),
         shown=shown_figures(result),
+        noise_offsets=noise_offsets(result),
+        part_rows=part_rows(result, design.ratings.V_cap),
         unused=design.unused_parts() + _idle_parts(design),
         sweep_options=options,
         sweep_param=param,
@@ -206,6 +353,7 @@ def build_view(
             ),
             "sweep": what_if,
             "budget": curves.budget_bars(result["loop"]["budget"]),
+            "noise": curves.noise_curve(result["stability"]),
         },
     )
     return view

@@ -27,9 +27,9 @@ import secrets
 import threading
 import time
 from dataclasses import dataclass, field
-from typing import Any, Final, Literal
+from typing import Annotated, Any, Final, Literal
 
-from fastapi import APIRouter, Request
+from fastapi import APIRouter, Query, Request
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict, Field
 
@@ -43,6 +43,7 @@ from app.analysis.transient import (
 from app.design import Design
 from app.result import SimulationResult
 from app.web.errors import ApiError, error_body, invalid
+from app.web.view import run_view
 
 log = logging.getLogger("ringwise.web")
 
@@ -54,6 +55,10 @@ MIN_POINTS: Final = 100
 #: Cycles and points when the request does not say (the CLI's defaults).
 DEFAULT_CYCLES: Final = 300
 DEFAULT_POINTS: Final = 4000
+#: Points the sheet asks for: enough for its plots, a light answer.
+SHEET_POINTS: Final = 1500
+#: How often the sheet polls a running job, ms.
+POLL_MS: Final = 150
 #: Runs going at once, over the synchronous endpoint and the jobs together
 #: (the solver is CPU-bound Python; this machine has two cores).
 MAX_RUNNING: Final = 2
@@ -93,6 +98,9 @@ class JobOut(BaseModel):
     result: SimulationResult | None = Field(None, description="The run, once state is done")
     error: dict[str, Any] | None = Field(
         None, description="Why the run failed, in the API's error shape, once state is failed"
+    )
+    view: dict[str, Any] | None = Field(
+        None, description="With ?view=true, once done: the sheet's figures and plot data"
     )
 
 
@@ -145,10 +153,12 @@ class Job:
     cancel: threading.Event = field(default_factory=threading.Event)
     finished: threading.Event = field(default_factory=threading.Event)
 
-    def out(self) -> dict[str, Any]:
+    def out(self, with_view: bool = False) -> dict[str, Any]:
         body: dict[str, Any] = {"id": self.id, "state": self.state, "progress": self.progress}
         if self.state == "done":
             body["result"] = self.result
+            if with_view and self.result is not None:
+                body["view"] = run_view(self.result)
         if self.state == "failed":
             body["error"] = self.error
         return body
@@ -265,9 +275,15 @@ def post_job(req: SimulateRequest, request: Request) -> JSONResponse:
 
 
 @router.get("/simulate/jobs/{job_id}", response_model=JobOut, responses=JOB_ERRORS)
-def get_job(job_id: str, request: Request) -> JSONResponse:
+def get_job(
+    job_id: str,
+    request: Request,
+    view: Annotated[
+        bool, Query(description="Add what the sheet shows of the result (texts, plot data)")
+    ] = False,
+) -> JSONResponse:
     """A job's state and progress, and its result once done."""
-    return JSONResponse(jobs_of(request).get(_checked(job_id)).out())
+    return JSONResponse(jobs_of(request).get(_checked(job_id)).out(view))
 
 
 @router.delete("/simulate/jobs/{job_id}", response_model=JobOut, responses=JOB_ERRORS)
