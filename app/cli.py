@@ -15,6 +15,7 @@ from typing import Any
 from pydantic import ValidationError
 
 from app.analysis.analyze import analyze
+from app.analysis.reconcile import ReconcileError, reconcile
 from app.analysis.sensitivity import sensitivities
 from app.analysis.spread import SpreadError, spread_result
 from app.analysis.synthesis import SynthesisError, synthesize
@@ -173,6 +174,33 @@ def cmd_synthesize(args: argparse.Namespace) -> None:
         print(f"ringwise: {reason}", file=sys.stderr)
 
 
+def cmd_reconcile(args: argparse.Namespace) -> None:
+    design = _load(args.design)
+    threshold = None
+    if args.threshold:
+        part, sep, text = args.threshold.partition("=")
+        if not sep:
+            raise BadInputError("--threshold: write PART=VALUE, e.g. RC=180")
+        threshold = (part.strip(), _value(text, "--threshold"))
+    amplitude = _value(args.amplitude, "--amplitude") if args.amplitude else None
+    try:
+        r = reconcile(design, _value(args.f_measured, "--f-measured"), threshold, amplitude)
+    except ReconcileError as err:
+        raise BadInputError(str(err)) from err
+    _print(
+        {
+            "fitted": [vars(f) for f in r.fitted],
+            "readings": {
+                k: {"bench": b, "nominal_model": n, "as_built_model": a}
+                for k, (b, n, a) in r.readings.items()
+            },
+            "explanation": r.explanation,
+            "evidence_dAIC": r.evidence,
+            "as_built": r.as_built.model_dump(mode="json"),
+        }
+    )
+
+
 def cmd_serve(args: argparse.Namespace) -> None:
     from app.web.server import serve  # imported here: the core needs no web stack
 
@@ -239,6 +267,13 @@ def parser() -> argparse.ArgumentParser:
     y.add_argument("--L", default=None, help="inductor to use, e.g. 10u")
     y.add_argument("--ratio", type=float, default=None, help="C1/C2 to use instead of tuning")
     y.set_defaults(run=cmd_synthesize)
+
+    c = sub.add_parser("reconcile", help="fit the model to what the bench showed")
+    c.add_argument("design")
+    c.add_argument("--f-measured", required=True, help="measured frequency, e.g. 1.012M")
+    c.add_argument("--threshold", help="part value at which it started, e.g. RC=180")
+    c.add_argument("--amplitude", help="measured amplitude at the output node, V")
+    c.set_defaults(run=cmd_reconcile)
 
     v = sub.add_parser("serve", help="serve the design sheet on this computer")
     v.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")

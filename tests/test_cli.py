@@ -116,3 +116,13 @@ def test_synthesize_prints_a_design_with_reasons(capsys) -> None:
     assert "RE =" in err and "C1/C2" in err
     code, _, err = _run(capsys, "synthesize", "--f", "1M", "--Vcc", "1", "--IC", "1m")
     assert code == EXIT_BAD_INPUT and "headroom" in err
+
+
+def test_reconcile_prints_the_fit(capsys) -> None:
+    code, data, _ = _run(capsys, "reconcile", str(sample_paths()[0]), "--f-measured", "1.0M")
+    assert code == 0 and data["as_built"]["format"] == "ringwise.design"
+    assert {f["name"] for f in data["fitted"]} == {"C_scale", "Q_L", "beta"}
+    code, _, err = _run(
+        capsys, "reconcile", str(sample_paths()[0]), "--f-measured", "1M", "--threshold", "RC"
+    )
+    assert code == EXIT_BAD_INPUT and "PART=VALUE" in err
