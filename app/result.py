@@ -252,6 +252,13 @@ class SensitivityOut(_Out):
     gain_spread: Num = Field(description="|S_gain|·tolerance: its share of the gain spread")
 
 
+class TemperaturePointOut(_Out):
+    T_C: Num
+    p5: Num = Field(description="5th percentile of f_osc at this temperature, Hz")
+    p50: Num
+    p95: Num
+
+
 class SpreadOut(_Out):
     samples: int
     seed: int
@@ -267,6 +274,9 @@ class SpreadOut(_Out):
     f_histogram: HistogramOut
     gain_histogram: HistogramOut
     worst_cases: list[WorstCaseOut]
+    f_vs_temperature: list[TemperaturePointOut] = Field(
+        description="f_osc band (5/50/95 %) across the temperature range"
+    )
     sensitivities: list[SensitivityOut] = Field(description="Ranked: what to tighten first")
 
 

@@ -58,6 +58,10 @@ DC_STEP_LIMIT: Final = 0.1
 DC_TOL: Final = 1e-11
 DC_MAX_ITER: Final = 100
 PERCENTILES: Final = (1, 5, 50, 95, 99)
+#: The frequency-against-temperature band: this many temperatures across the
+#: range, each with up to TEMPERATURE_BAND_SAMPLES samples.
+TEMPERATURE_STEPS: Final = 7
+TEMPERATURE_BAND_SAMPLES: Final = 400
 HISTOGRAM_BINS: Final = 40
 WORST_CASES: Final = 5
 RESISTORS: Final = ("RB1", "RB2", "RC", "RE", "R_load")
@@ -223,6 +227,7 @@ class Spread:
     f_histogram: tuple[list[float], list[int]]
     gain_histogram: tuple[list[float], list[int]]
     worst_cases: list[dict]
+    f_vs_temperature: list[tuple[float, float, float, float]]  # (T_C, p5, p50, p95)
     batches: list[Batch] = field(repr=False)
 
 
@@ -275,6 +280,15 @@ def monte_carlo(
                 "parts": {p: float(v[i]) for p, v in draws.values.items()},
             }
         )
+    band_draws = draw(design, min(samples, TEMPERATURE_BAND_SAMPLES), seed)
+    band = []
+    lo, hi = design.tolerances.T_min, design.tolerances.T_max
+    for T in np.linspace(lo, hi, TEMPERATURE_STEPS if hi > lo else 1):
+        b = analyse_batch(design, values_at(design, band_draws, float(T)), float(T))
+        f = b.f_osc[np.isfinite(b.f_osc)]
+        if f.size:
+            p5, p50, p95 = np.percentile(f, (5, 50, 95))
+            band.append((float(T), float(p5), float(p50), float(p95)))
     return Spread(
         samples=samples,
         seed=seed,
@@ -292,6 +306,7 @@ def monte_carlo(
         f_histogram=_histogram(freqs.ravel()),
         gain_histogram=_histogram(gains.ravel()),
         worst_cases=worst,
+        f_vs_temperature=band,
         batches=batches,
     )
 
@@ -311,6 +326,7 @@ def spread_result(
         SensitivityOut,
         SpreadOut,
         SpreadResult,
+        TemperaturePointOut,
         WorstCaseOut,
     )
 
@@ -354,6 +370,9 @@ def spread_result(
             f_histogram=HistogramOut(edges=r.f_histogram[0], counts=r.f_histogram[1]),
             gain_histogram=HistogramOut(edges=r.gain_histogram[0], counts=r.gain_histogram[1]),
             worst_cases=[WorstCaseOut(**w) for w in r.worst_cases],
+            f_vs_temperature=[
+                TemperaturePointOut(T_C=T, p5=a, p50=b, p95=c) for T, a, b, c in r.f_vs_temperature
+            ],
             sensitivities=sens,
         ),
     )

@@ -117,3 +117,11 @@ def test_caps_and_bad_windows() -> None:
         monte_carlo(design, samples=200_001)
     with pytest.raises(SpreadError, match="window"):
         monte_carlo(design, samples=10, window=(2e6, 1e6))
+
+
+def test_frequency_against_temperature_band() -> None:
+    design = load_sample(sample_paths()[0])
+    r = monte_carlo(design, samples=200, seed=1)
+    temps = [t for t, *_ in r.f_vs_temperature]
+    assert temps[0] == design.tolerances.T_min and temps[-1] == design.tolerances.T_max
+    assert all(a <= b <= c for _t, a, b, c in r.f_vs_temperature)
