@@ -1,0 +1,169 @@
+"""Spread and synthesis endpoints: thin routes over the core's spread analyses.
+
+Plain ``def`` routes, so FastAPI runs them in its thread pool: a Monte Carlo
+run does not hold up the event loop (and so other tabs' sheets).
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal
+
+from fastapi import APIRouter
+from pydantic import BaseModel, ConfigDict, Field
+
+from app.analysis.reconcile import reconcile
+from app.analysis.spread import DEFAULT_SAMPLES, MAX_SAMPLES, spread_result
+from app.analysis.startup import MARGINAL_BELOW
+from app.analysis.synthesis import DEFAULT_GAIN, synthesize
+from app.design import PARAMETERS, Design, Topology
+from app.preferred import SERIES, snap_design
+from app.result import SpreadResult
+
+router = APIRouter(prefix="/api", tags=["spread"])
+
+ERRORS: dict[int | str, dict[str, Any]] = {
+    422: {"description": "Invalid input: every problem names its field"},
+}
+
+
+class _In(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class Window(_In):
+    low: float = Field(gt=0, le=1e10, description="Lowest acceptable f_osc, Hz")
+    high: float = Field(gt=0, le=1e10, description="Highest acceptable f_osc, Hz")
+
+
+class SpreadRequest(_In):
+    design: Design
+    samples: int = Field(
+        default=DEFAULT_SAMPLES, ge=1, le=MAX_SAMPLES, description=f"Samples, at most {MAX_SAMPLES}"
+    )
+    seed: int = Field(default=1, ge=0, le=2**32 - 1, description="Random seed (reproducible)")
+    margin: float = Field(
+        default=MARGINAL_BELOW, gt=1, le=100, description="Loop gain the margin yield asks for"
+    )
+    window: Window | None = None
+
+
+@router.post("/spread", response_model=SpreadResult, responses=ERRORS)
+def post_spread(req: SpreadRequest) -> SpreadResult:
+    """Monte Carlo over tolerances and temperature: yield, percentiles, sensitivities."""
+    window = (req.window.low, req.window.high) if req.window else None
+    return spread_result(req.design, req.samples, req.seed, req.margin, window)
+
+
+class SnapRequest(_In):
+    design: Design
+    series: Literal[tuple(SERIES)] = Field(default="E24", description="IEC 60063 series")  # type: ignore[valid-type]
+
+
+class PartChange(_In):
+    part: str
+    before: float
+    after: float
+
+
+class SnapOut(_In):
+    design: Design
+    changes: list[PartChange]
+    f_before: float | None
+    f_after: float | None
+    gain_before: float
+    gain_after: float
+
+
+@router.post("/snap", response_model=SnapOut, responses=ERRORS)
+def post_snap(req: SnapRequest) -> SnapOut:
+    """Every part moved to the nearest standard value, with the effect on f_osc and gain."""
+    r = snap_design(req.design, req.series)
+    return SnapOut(
+        design=r.design,
+        changes=[PartChange(part=p, before=a, after=b) for p, a, b in r.changes],
+        f_before=r.f_before,
+        f_after=r.f_after,
+        gain_before=r.gain_before,
+        gain_after=r.gain_after,
+    )
+
+
+class SynthesizeRequest(_In):
+    topology: Topology = Topology.CE
+    f: Annotated[float, Field(ge=1e3, le=1e9, description="Target frequency, Hz")]
+    Vcc: Annotated[float, Field(ge=0.5, le=1000, description="Supply, V")]
+    IC: Annotated[float, Field(ge=1e-6, le=1.0, description="Collector current, A")]
+    gain: float = Field(default=DEFAULT_GAIN, gt=1, le=20, description="Target loop gain")
+    L: float | None = Field(default=None, ge=1e-12, le=1e3, description="Inductor to use, H")
+    ratio: float | None = Field(default=None, ge=0.01, le=100, description="C1/C2 to use")
+
+
+class SynthesisOut(_In):
+    design: Design
+    f_osc: float | None
+    gain: float
+    reasons: list[str]
+
+
+@router.post("/synthesize", response_model=SynthesisOut, responses=ERRORS)
+def post_synthesize(req: SynthesizeRequest) -> SynthesisOut:
+    """A buildable design from targets, in standard values, with a reason per choice."""
+    r = synthesize(
+        req.topology.value, req.f, req.Vcc, req.IC, gain=req.gain, L=req.L, ratio=req.ratio
+    )
+    return SynthesisOut(design=r.design, f_osc=r.f_osc, gain=r.gain, reasons=r.reasons)
+
+
+class ThresholdReading(_In):
+    param: Literal[tuple(PARAMETERS)]  # type: ignore[valid-type]
+    value: float = Field(gt=0, le=1e12, description="Value at which it started (SI)")
+
+
+class ReconcileRequest(_In):
+    design: Design
+    f_measured: float = Field(gt=0, le=1e10, description="Measured frequency, Hz")
+    threshold: ThresholdReading | None = None
+    amplitude: float | None = Field(
+        default=None, gt=0, le=1e4, description="Measured amplitude at the output node, V"
+    )
+
+
+class FittedOut(_In):
+    name: str
+    nominal: float
+    fitted: float
+    change: float
+    sigma: float
+    prior: float
+    determined: bool
+
+
+class ReadingOut(_In):
+    bench: float
+    nominal_model: float
+    as_built_model: float
+
+
+class ReconcileOut(_In):
+    fitted: list[FittedOut]
+    readings: dict[str, ReadingOut]
+    explanation: str
+    evidence_dAIC: float | None
+    as_built: Design
+
+
+@router.post("/reconcile", response_model=ReconcileOut, responses=ERRORS)
+def post_reconcile(req: ReconcileRequest) -> ReconcileOut:
+    """Fit capacitance, coil Q and β to bench readings; the as-built design."""
+    th = (req.threshold.param, req.threshold.value) if req.threshold else None
+    r = reconcile(req.design, req.f_measured, th, req.amplitude)
+    return ReconcileOut(
+        fitted=[FittedOut(**vars(f)) for f in r.fitted],
+        readings={
+            k: ReadingOut(bench=b, nominal_model=n, as_built_model=a)
+            for k, (b, n, a) in r.readings.items()
+        },
+        explanation=r.explanation,
+        evidence_dAIC=r.evidence,
+        as_built=r.as_built,
+    )
