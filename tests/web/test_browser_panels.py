@@ -1,0 +1,154 @@
+"""The swing, stability and time-domain panels of the sheet in a real Chromium.
+
+Expected figures come from the same server's API, never from numbers typed
+into the test.  Transient runs use few cycles to keep the suite fast.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from app.analysis.transient import MIN_CYCLES
+from app.web.routers.simulate import SHEET_POINTS
+from tests.web.test_browser import Sheet, expected, settle, wait_for
+
+pytestmark = pytest.mark.browser
+
+RUN = "[data-role='run']"
+#: Cycles of the short runs (a 60-cycle run takes about 0.2 s of server time).
+CYCLES = 60
+
+#: Records the run panel's state and progress as they change, from before the click.
+WATCH_RUN = """() => {
+  window.runLog = [];
+  const panel = document.querySelector("[data-role='run']");
+  const bar = document.querySelector("#run-progress");
+  const note = () => window.runLog.push([panel.dataset.run, bar.value]);
+  new MutationObserver(note).observe(panel, { attributes: true, attributeFilter: ["data-run"] });
+  new MutationObserver(note).observe(bar, { attributes: true, attributeFilter: ["value"] });
+}"""
+
+
+def _run_state(sheet: Sheet, state: str) -> None:
+    sheet.page.wait_for_function(
+        "s => document.querySelector(\"[data-role='run']\").dataset.run === s",
+        arg=state,
+        timeout=30_000,
+    )
+
+
+def test_stability_panel_shows_the_four_offsets(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    want = expected(client, sheet.inputs())
+    points = want["result"]["stability"]["phase_noise"]
+    assert [p["offset"] for p in points] == [100.0, 1e3, 10e3, 100e3]
+    for i in range(len(points)):
+        path = f"stability.phase_noise.{i}.dBc_Hz"
+        selector = f".stability-panel [data-field='{path}']"
+        assert sheet.attr(selector) == want["shown"][path]["raw"] == repr(points[i]["dBc_Hz"])
+        assert sheet.page.text_content(selector) == want["shown"][path]["text"]
+    for path in ("stability.Q_loaded", "stability.P_signal", "stability.pushing_Hz_per_V"):
+        assert sheet.attr(f"[data-field='{path}']") == want["shown"][path]["raw"]
+    rows = sheet.page.locator("[data-role='stress-rows'] tr")
+    assert rows.count() == len(want["result"]["stability"]["parts"])
+    note = sheet.page.text_content(".stability-panel")
+    assert "original single-sideband form" in note
+    assert "signal power dissipated in the resonator's loss" in note
+    # the Leeson plot draws once it is on screen
+    sheet.page.locator("#plot-noise").scroll_into_view_if_needed()
+    sheet.page.wait_for_selector("#plot-noise .main-svg")
+    assert sheet.page.locator("#plot-noise .shapelayer path").count() >= 3  # the regions
+    # live: a higher noise factor raises every offset's figure
+    sheet.page.fill("[name='F_dB']", "12")
+    settle(sheet, client)
+    again = expected(client, sheet.inputs())
+    path = "stability.phase_noise.1.dBc_Hz"
+    wait_for(sheet, f".stability-panel [data-field='{path}']", again["shown"][path]["raw"])
+    assert float(again["shown"][path]["raw"]) > float(want["shown"][path]["raw"])
+    assert sheet.errors == []
+
+
+def test_swing_panel_shows_the_describing_function(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")
+    want = expected(client, sheet.inputs())
+    for path in (
+        "large_signal.amp_out",
+        "large_signal.amp_be",
+        "large_signal.IC_avg",
+        "large_signal.P_tank",
+        "large_signal.output_node",
+    ):
+        assert sheet.attr(f".outcome [data-field='{path}']") == want["shown"][path]["raw"]
+        assert (
+            sheet.page.text_content(f".outcome [data-field='{path}']")
+            == (want["shown"][path]["text"])
+        )
+    assert "from DC" in sheet.page.text_content(".outcome [data-field='large_signal.IC_avg']")
+    reason = sheet.page.locator(".swing-note")
+    assert reason.is_hidden() == want["result"]["large_signal"]["valid"]
+    assert sheet.errors == []
+
+
+def test_run_shows_progress_then_plots_and_figures(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.evaluate(WATCH_RUN)
+    sheet.page.fill("#run-cycles", str(CYCLES))
+    sheet.page.click("#run-start")
+    _run_state(sheet, "done")
+    log = sheet.page.evaluate("window.runLog")
+    assert ["running", 0] in log
+    assert log[-1] == ["done", 1]
+    # the figures are the API's own for the same design and request
+    design = expected(client, sheet.inputs())["design"]
+    sim = client.post(
+        "/api/simulate", json={"design": design, "cycles": CYCLES, "points": SHEET_POINTS}
+    ).json()
+    f_meas = sheet.attr("[data-field='transient.f_meas']")
+    assert f_meas == repr(sim["transient"]["f_meas"])
+    assert sheet.page.text_content("[data-field='transient.f_meas']").endswith("Hz")
+    assert sheet.attr("[data-field='transient.harmonics_dBc.0']") == repr(
+        sim["transient"]["harmonics_dBc"][0]
+    )
+    assert sheet.page.locator("[data-field='transient.notes'] li").count() >= 1
+    for plot in ("#plot-wave", "#plot-envelope", "#plot-spectrum"):
+        sheet.page.locator(plot).scroll_into_view_if_needed()
+        sheet.page.wait_for_selector(f"{plot} .main-svg")
+    assert sheet.page.locator("#plot-spectrum .bars path").count() >= 2
+    # an edit after the run marks its figures as of an earlier design
+    assert sheet.page.locator(".run-stale").is_hidden()
+    sheet.page.fill("[name='C2']", "3n3")
+    sheet.page.locator(".run-stale").wait_for(state="visible")
+    assert sheet.errors == []
+
+
+def test_stop_cancels_a_run(context, live_server):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.fill("#run-cycles", "5000")  # long enough to stop half-way
+    sheet.page.click("#run-start")
+    sheet.page.wait_for_function("() => document.querySelector('#run-progress').value > 0")
+    assert sheet.page.is_enabled("#run-stop")
+    sheet.page.click("#run-stop")
+    _run_state(sheet, "cancelled")
+    assert sheet.page.get_attribute(RUN, "data-run") == "cancelled"
+    assert sheet.page.evaluate("document.querySelector('#run-progress').value") < 1
+    assert sheet.page.text_content("#run-status") == "Stopped"
+    assert sheet.page.locator(".run-body").is_hidden()  # no figures from a stopped run
+    # the slot is free again: a short run goes through
+    sheet.page.fill("#run-cycles", str(MIN_CYCLES))
+    sheet.page.click("#run-start")
+    _run_state(sheet, "done")
+    assert sheet.attr("[data-field='transient.f_meas']") != ""
+    assert sheet.errors == []
+
+
+def test_bad_cycles_say_why_and_keep_the_text(context, live_server):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.fill("#run-cycles", "5")
+    sheet.page.click("#run-start")
+    _run_state(sheet, "failed")
+    error = sheet.page.locator("#run-error")
+    assert error.is_visible()
+    assert f"must be at least {MIN_CYCLES}" in error.text_content()
+    assert sheet.page.input_value("#run-cycles") == "5"
+    # Chromium logs the 422 answer itself; nothing else may be logged
+    assert all("status of 422" in e for e in sheet.errors), sheet.errors
