@@ -298,7 +298,7 @@ const observer = new IntersectionObserver(
       } else lazy.seen.delete(id);
     }
   },
-  { rootMargin: "300px 0px" },
+  { rootMargin: "40px 0px" },
 );
 
 function plotWhenSeen(sel, data, draw) {

@@ -15,6 +15,7 @@ import json
 import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Annotated, Any, Final
 
 from pydantic import BaseModel, TypeAdapter, ValidationError
@@ -68,6 +69,9 @@ class FormField:
 
 
 #: Input groups in page order: key, heading.
+#: Distinct (value, unit) pairs whose display text is kept (a few answers' worth).
+DISPLAY_CACHE: Final = 4096
+
 GROUPS: Final = (
     ("identity", "Design"),
     ("tank", "Tank"),
@@ -197,7 +201,17 @@ def check_field(field: FormField, text: str) -> FieldState:
 
 
 def display(value: float | None, unit: str) -> str:
-    """Engineering text for a value: SI prefixes for quantities, 4 digits for plain ratios."""
+    """Engineering text for a value: SI prefixes for quantities, 4 digits for plain ratios.
+
+    Cached: formatting is a noticeable part of each answer of the live sheet,
+    and most values (the inputs, the defaults) repeat from edit to edit.
+    (−0 shows as 0, so that the two zeros, equal as cache keys, read the same.)
+    """
+    return _display(0.0 if value == 0 else value, unit)
+
+
+@lru_cache(maxsize=DISPLAY_CACHE)
+def _display(value: float | None, unit: str) -> str:
     if value is None:
         return "—"
     if unit in ("", "dB"):
