@@ -24,6 +24,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
 from pydantic import ValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.routing import Match
 
 from app.errors import describe_validation_error
 
@@ -79,8 +80,10 @@ def error_body(status: int, message: str, problems: list[dict]) -> dict[str, Any
     }
 
 
-def _respond(err: ApiError) -> JSONResponse:
-    return JSONResponse(error_body(err.status, err.message, err.problems), status_code=err.status)
+def _respond(err: ApiError, headers: dict[str, str] | None = None) -> JSONResponse:
+    return JSONResponse(
+        error_body(err.status, err.message, err.problems), status_code=err.status, headers=headers
+    )
 
 
 class _RequestErrors:
@@ -111,6 +114,20 @@ def _request_problems(exc: RequestValidationError) -> list[dict]:
     return problems
 
 
+#: Methods probed when a 405 lists what the path allows.
+_METHODS = ("GET", "HEAD", "POST", "PUT", "PATCH", "DELETE")
+
+
+def _methods_at(request: Request) -> list[str]:
+    """The methods some route of the app answers at the request's path."""
+    found = []
+    for method in _METHODS:
+        probe = {**request.scope, "method": method}
+        if any(route.matches(probe)[0] == Match.FULL for route in request.app.router.routes):
+            found.append(method)
+    return found
+
+
 def install(app: FastAPI) -> None:
     """Register the handlers that give every error the one shape."""
 
@@ -136,7 +153,15 @@ def install(app: FastAPI) -> None:
         detail = exc.detail if isinstance(exc.detail, str) else HTTPStatus(exc.status_code).phrase
         if exc.status_code == 404 and detail == "Not Found":
             detail = f"nothing here: {request.url.path}"
-        return _respond(ApiError(exc.status_code, detail))
+        if exc.status_code == 400 and isinstance(exc.__cause__, UnicodeDecodeError):
+            # bytes that are not UTF-8 are not JSON either: the same answer as bad JSON
+            return _respond(invalid("body", "is not valid JSON (not UTF-8 text)", "json_invalid"))
+        headers = dict(getattr(exc, "headers", None) or {})
+        if exc.status_code == 405:
+            # Allow lists the methods of every route at this path, not only the first one's
+            headers["Allow"] = ", ".join(_methods_at(request) or [headers.get("Allow", "")])
+        problems = [problem("body", detail, "too_large")] if exc.status_code == 413 else []
+        return _respond(ApiError(exc.status_code, detail, problems), headers)
 
     @app.exception_handler(Exception)
     async def _bug(request: Request, exc: Exception) -> JSONResponse:  # pragma: no cover

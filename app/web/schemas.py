@@ -69,6 +69,21 @@ class SheetSweepRequest(_In):
     )
 
 
+class ProblemOut(BaseModel):
+    field: str = Field(description="Dotted path of the field in the request (tank.C2, points)")
+    message: str = Field(description="What is wrong and what is allowed")
+    type: str = Field(description="Machine-readable kind (greater_than_equal, too_large, ...)")
+
+
+class ErrorOut(BaseModel):
+    """The one shape of every error answer (app/web/errors.py)."""
+
+    status: int = Field(description="The HTTP status again")
+    error: str = Field(description="Its name: invalid-input, not-found, too-large, ...")
+    message: str = Field(description="The first problem, in one line")
+    problems: list[ProblemOut]
+
+
 class SampleOut(BaseModel):
     name: str = Field(description="Key of the sample: GET /api/designs/{name}")
     title: str

@@ -5,17 +5,20 @@ from __future__ import annotations
 import ipaddress
 import sys
 from collections.abc import Awaitable, Callable
-from typing import Final
+from typing import Any, Final
 
 from fastapi import FastAPI, Request, Response
-from fastapi.responses import FileResponse
+from fastapi.responses import FileResponse, JSONResponse
 from fastapi.staticfiles import StaticFiles
+from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from app.web import errors
 from app.web.assets import IMMUTABLE_MAX_AGE, plotly_js
 from app.web.paths import STATIC_DIR
-from app.web.routers import api, pages, simulate
+from app.web.routers import api, pages, simulate, spread
 from app.web.samples import DEFAULT_SAMPLE, samples
+from app.web.schemas import ErrorOut
 
 #: Scripts, styles, fonts and connections only from this server.  Plotly sets
 #: inline styles on the SVG it draws, hence 'unsafe-inline' for styles only.
@@ -40,6 +43,109 @@ SECURITY_HEADERS: Final = {
 }
 
 
+#: Largest request body the server reads, bytes.  A design file or a sheet
+#: request is 1-2 kB (the design name is at most 200 characters); 64 KiB
+#: leaves ample room while a runaway upload is refused before it is read into
+#: memory (common practice, no source).
+MAX_BODY_BYTES: Final = 64 * 1024
+TOO_LARGE: Final = f"the request body is over the cap of {MAX_BODY_BYTES} bytes (MAX_BODY_BYTES)"
+
+
+class BodyLimit:
+    """Refuse request bodies over ``limit`` bytes with 413 in the API's error shape.
+
+    A declared ``Content-Length`` over the cap is answered at once, unread; a
+    body without one (chunked) is counted as it arrives and refused as soon
+    as it passes the cap.
+    """
+
+    def __init__(self, app: ASGIApp, limit: int = MAX_BODY_BYTES) -> None:
+        self.app = app
+        self.limit = limit
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["type"] != "http":
+            await self.app(scope, receive, send)
+            return
+        declared = dict(scope["headers"]).get(b"content-length")
+        if declared is not None and (not declared.isdigit() or int(declared) > self.limit):
+            body = errors.error_body(
+                413, TOO_LARGE, [errors.problem("body", TOO_LARGE, "too_large")]
+            )
+            await JSONResponse(body, status_code=413)(scope, receive, send)
+            return
+        seen = 0
+
+        async def counted() -> Message:
+            nonlocal seen
+            message = await receive()
+            if message["type"] == "http.request":
+                seen += len(message.get("body", b""))
+                if seen > self.limit:
+                    # re-raised by FastAPI's body reader, answered by errors.install's handler
+                    raise StarletteHTTPException(413, TOO_LARGE)
+            return message
+
+        await self.app(scope, counted, send)
+
+
+def _document_errors(app: FastAPI) -> None:
+    """Every error answer in the OpenAPI schema has the one error shape, every
+    operation that takes a body documents the body cap (413), and every field
+    bound is written with JSON Schema's keywords."""
+    build = app.openapi
+
+    def openapi() -> dict[str, Any]:
+        if app.openapi_schema:
+            return app.openapi_schema
+        schema = build()
+        found = ErrorOut.model_json_schema(ref_template="#/components/schemas/{model}")
+        shared = schema.setdefault("components", {}).setdefault("schemas", {})
+        shared.update(found.pop("$defs", {}))
+        shared["ErrorOut"] = found
+        content = {"application/json": {"schema": {"$ref": "#/components/schemas/ErrorOut"}}}
+        for operations in schema["paths"].values():
+            for operation in operations.values():
+                responses = operation.setdefault("responses", {})
+                if "requestBody" in operation:
+                    responses["400"] = {"description": "The body could not be read"}
+                    responses["413"] = {"description": TOO_LARGE[0].upper() + TOO_LARGE[1:]}
+                for code, response in responses.items():
+                    if code[0] in "45":
+                        response["content"] = content
+        for unused in ("HTTPValidationError", "ValidationError"):
+            shared.pop(unused, None)
+        _standard_bounds(schema)
+        app.openapi_schema = schema
+        return schema
+
+    app.openapi = openapi  # type: ignore[method-assign]
+
+
+#: pydantic writes a bound it cannot fold into the JSON schema (one behind a
+#: BeforeValidator, as on the design's quantities) under its own names.
+_BOUND_KEYWORDS: Final = {
+    "ge": "minimum",
+    "le": "maximum",
+    "gt": "exclusiveMinimum",
+    "lt": "exclusiveMaximum",
+}
+
+
+def _standard_bounds(node: Any) -> None:
+    """Rename pydantic's ``ge``/``le``/``gt``/``lt`` to JSON Schema's bound keywords, in place."""
+    if isinstance(node, dict):
+        if node.get("type") in ("number", "integer"):
+            for ours, standard in _BOUND_KEYWORDS.items():
+                if ours in node and standard not in node:
+                    node[standard] = node.pop(ours)
+        for value in node.values():
+            _standard_bounds(value)
+    elif isinstance(node, list):
+        for value in node:
+            _standard_bounds(value)
+
+
 def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
     """The web app; ``default_design`` is the sample the sheet opens on."""
     if default_design not in samples():
@@ -58,6 +164,7 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
     errors.install(app)
     app.include_router(api.router)
     app.include_router(simulate.router)
+    app.include_router(spread.router)
     app.include_router(pages.router)
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     vendored = plotly_js()
@@ -65,6 +172,9 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
     @app.get(vendored.url, include_in_schema=False)
     def plotly() -> FileResponse:
         return FileResponse(vendored.path, media_type="text/javascript")
+
+    # added before the headers middleware, so it runs inside it: refused bodies get the headers
+    app.add_middleware(BodyLimit, limit=MAX_BODY_BYTES)
 
     @app.middleware("http")
     async def headers(
@@ -79,6 +189,7 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
             response.headers["Cache-Control"] = f"public, max-age={IMMUTABLE_MAX_AGE}, immutable"
         return response
 
+    _document_errors(app)
     return app
 
 
