@@ -123,7 +123,7 @@ class Device(_Part):
     def _fill_from_preset(cls, data: Any) -> Any:
         if isinstance(data, dict) and data.get("preset") is not None:
             name = data["preset"]
-            if name not in DEVICE_PRESETS:
+            if not isinstance(name, str) or name not in DEVICE_PRESETS:
                 known = ", ".join(sorted(DEVICE_PRESETS))
                 raise ValueError(f"unknown transistor preset {name!r}; known: {known}")
             return {**DEVICE_PRESETS[name], **data}

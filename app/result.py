@@ -174,19 +174,19 @@ class Result(_Out):
 
 
 class WaveformOut(_Out):
-    t: list[float] = Field(description="Time of the last cycles, s")
-    v_out: list[float] = Field(description="Output tank node voltage, V")
-    v_be: list[float] = Field(description="Base-emitter voltage, V")
+    t: list[Num] = Field(description="Time of the last cycles, s")
+    v_out: list[Num] = Field(description="Output tank node voltage, V")
+    v_be: list[Num] = Field(description="Base-emitter voltage, V")
 
 
 class EnvelopeOut(_Out):
-    t: list[float] = Field(description="Time, s")
-    v: list[float] = Field(description="Half peak-to-peak of each period at the output node, V")
+    t: list[Num] = Field(description="Time, s")
+    v: list[Num] = Field(description="Half peak-to-peak of each period at the output node, V")
 
 
 class SpectrumOut(_Out):
-    f: list[float] = Field(description="Frequency, Hz")
-    dBc: list[float] = Field(description="Level relative to the fundamental, dB")
+    f: list[Num] = Field(description="Frequency, Hz")
+    dBc: list[Num] = Field(description="Level relative to the fundamental, dB")
 
 
 class TransientOut(_Out):

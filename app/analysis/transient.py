@@ -67,6 +67,7 @@ NEWTON_CLAMP: Final = 0.1
 #: Bounds on the work one request may ask for.
 MAX_CYCLES: Final = 20000
 MIN_CYCLES: Final = 20
+MIN_POINTS: Final = 100
 MAX_POINTS: Final = 20000
 #: Fraction of the run (at the end) used for the steady-state figures, and its
 #: minimum length in cycles.
@@ -250,7 +251,7 @@ class SimulationCancelledError(Exception):
 
 
 #: The progress callback is called about this often, in steps.
-PROGRESS_EVERY: Final = 2000
+PROGRESS_EVERY: Final = 256
 
 
 def run(
@@ -267,8 +268,8 @@ def run(
     """
     if not MIN_CYCLES <= cycles <= MAX_CYCLES:
         raise SimulationError(f"cycles must be between {MIN_CYCLES} and {MAX_CYCLES}, got {cycles}")
-    if not 100 <= points <= MAX_POINTS:
-        raise SimulationError(f"points must be between 100 and {MAX_POINTS}, got {points}")
+    if not MIN_POINTS <= points <= MAX_POINTS:
+        raise SimulationError(f"points must be between {MIN_POINTS} and {MAX_POINTS}, got {points}")
     solved = solve(design)
     system, x0 = transient_system(solved)
     f_ref = solved.f_osc or solved.tank.f_ideal
