@@ -41,9 +41,17 @@ VE_MIN: Final = 1.0
 DIVIDER_STIFFNESS: Final = 10.0
 #: Gain resistor over the reactance of the tank capacitor it loads.
 LOAD_OVER_REACTANCE: Final = 10.0
+#: Tank capacitors over the transistor's junction capacitances.
+TANK_OVER_PARASITIC: Final = 20.0
 #: Coupling and bypass reactance over what they couple.
 COUPLING_RATIO: Final = 50.0
 RATIO_ITERATIONS: Final = 12
+#: When the loop gain falls short of the target by more than this fraction, the
+#: tank impedance is raised along Z0_STEPS (more gain, more parasitic pull).
+GAIN_SHORTFALL: Final = 0.1
+Z0_STEPS: Final = (1.0, 1.6, 2.5, 4.0, 6.3)
+#: Rounds of trimming the series capacitance for the target frequency.
+FREQUENCY_TRIMS: Final = 4
 #: The gain resistor is first sized for this multiple of the target hand gain,
 #: leaving room for the losses the full model then counts.
 LOSS_ALLOWANCE: Final = 2.0
@@ -122,98 +130,132 @@ def synthesize(
         )
         reasons.append(f"RC = {format_si(RC, 'Ω')}: {why}")
     R_gain = RC if RC is not None else RE
-    if L is None:
-        # X_C1 = Z0/(1 + n) in a tank of characteristic impedance Z0 = √(L/Cs).
-        Z0 = (1.0 + n) * R_gain / LOAD_OVER_REACTANCE
-        L = nearest(Z0 / w, "E12")
-        reasons.append(
-            f"L = {format_si(L, 'H')}: a tank impedance that keeps the gain resistor "
-            f"{LOAD_OVER_REACTANCE:g}× the reactance it loads"
+    L_given, n0 = L, n
+
+    def build_tank(z_scale: float):
+        n = n0
+        if L_given is None:
+            # X_C1 = Z0/(1 + n) in a tank of characteristic impedance Z0 = √(L/Cs);
+            # and the tank capacitors at least TANK_OVER_PARASITIC times the
+            # transistor's own C_π + C_μ, so these do not set the frequency.
+            C_par = gm / (2.0 * math.pi * dev["fT"]) + dev["C_mu"]
+            Z0 = z_scale * min(
+                (1.0 + n) * R_gain / LOAD_OVER_REACTANCE,
+                (1.0 + n) / (TANK_OVER_PARASITIC * w * C_par),
+            )
+            L = nearest(Z0 / w, "E12")
+            why_L = (
+                f"L = {format_si(L, 'H')}: a tank impedance that keeps the gain resistor "
+                f"{LOAD_OVER_REACTANCE:g}× the reactance it loads and the tank capacitors "
+                f"{TANK_OVER_PARASITIC:g}× the transistor's own"
+            )
+            if z_scale > 1:
+                why_L += f", raised {z_scale:g}× so that the target loop gain can be reached"
+        else:
+            L = L_given
+            why_L = f"L = {format_si(L, 'H')} as given"
+        notes = [why_L]
+        Cs = 1.0 / (w * w * L)
+        R_in = min(dev["beta"] / gm, RB1 * RB2 / (RB1 + RB2))
+        # Cc2 feeds the base (resistance R_in) or, in the common-base form, the
+        # emitter, whose input resistance is about 1/g_m.
+        Cc2 = nearest(COUPLING_RATIO * (gm if form is Topology.CB else 1.0 / R_in) / w, "E12")
+        data = {
+            "format": "ringwise.design",
+            "version": 1,
+            "name": name or f"{form.value} source, {format_si(f, 'Hz')}",
+            "topology": form.value,
+            "supply": {"Vcc": Vcc},
+            "bias": {
+                "RB1": RB1, "RB2": RB2, "RC": RC, "RE": RE,
+                "CE": nearest(COUPLING_RATIO * gm / w, "E12") if form is Topology.CE else None,
+                # the base bypass: its reactance, seen at the emitter divided by β + 1,
+                # kept below 1/g_m
+                "CB": nearest(gm / w, "E12") if form is Topology.CB else None,
+            },
+            "tank": {"L": L, "Q_L": Q_L, "C1": Cs * (1 + n), "C2": Cs * (1 + n) / n, "C3": None},
+            "coupling": {"Cc1": Cs * (1 + n) * COUPLING_RATIO, "Cc2": Cc2},
+            "load": {"R_load": None},
+            "device": {"preset": preset, **dev},
+        }  # fmt: skip
+        design = Design.model_validate(data)
+        design = with_param(design, "Cc1", nearest(design.tank.C1 * COUPLING_RATIO, "E12"))
+        notes.append(
+            f"Cc1, Cc2{', CE' if form is Topology.CE else ', CB' if form is Topology.CB else ''}: "
+            f"reactance at f at most 1/{COUPLING_RATIO:g} of what each couples, and no larger"
         )
-    else:
-        reasons.append(f"L = {format_si(L, 'H')} as given")
-    Cs = 1.0 / (w * w * L)
-    R_in = min(dev["beta"] / gm, RB1 * RB2 / (RB1 + RB2))
-    # Cc2 feeds the base (resistance R_in) or, in the common-base form, the
-    # emitter, whose input resistance is about 1/g_m.
-    Cc2 = nearest(COUPLING_RATIO * (gm if form is Topology.CB else 1.0 / R_in) / w, "E12")
-    data = {
-        "format": "ringwise.design",
-        "version": 1,
-        "name": name or f"{form.value} source, {format_si(f, 'Hz')}",
-        "topology": form.value,
-        "supply": {"Vcc": Vcc},
-        "bias": {
-            "RB1": RB1, "RB2": RB2, "RC": RC, "RE": RE,
-            "CE": nearest(COUPLING_RATIO * gm / w, "E12") if form is Topology.CE else None,
-            # the base bypass: its reactance, seen at the emitter divided by β + 1,
-            # kept below 1/g_m
-            "CB": nearest(gm / w, "E12") if form is Topology.CB else None,
-        },
-        "tank": {"L": L, "Q_L": Q_L, "C1": Cs * (1 + n), "C2": Cs * (1 + n) / n, "C3": None},
-        "coupling": {"Cc1": Cs * (1 + n) * COUPLING_RATIO, "Cc2": Cc2},
-        "load": {"R_load": None},
-        "device": {"preset": preset, **dev},
-    }  # fmt: skip
-    design = Design.model_validate(data)
-    design = with_param(design, "Cc1", nearest(design.tank.C1 * COUPLING_RATIO, "E12"))
-    reasons.append(
-        f"Cc1, Cc2{', CE' if form is Topology.CE else ', CB' if form is Topology.CB else ''}: "
-        f"reactance at f at most 1/{COUPLING_RATIO:g} of what each couples, and no larger"
-    )
-    design, n, achieved = _tune_ratio(design, Cs, n, gain, fixed=ratio is not None)
-    reasons.append(
-        f"C1 = {format_si(design.tank.C1, 'F')}, C2 = {format_si(design.tank.C2, 'F')}: "
-        f"C1/C2 = {design.tank.C1 / design.tank.C2:.3g} gives a loop gain of {achieved:.3g} "
-        f"(target {gain:g}) with every loss included, in E24 values"
-    )
+        # The transistor's own capacitances and the loading pull the frequency: trim
+        # the tank's series capacitance until the full model oscillates at f.
+        for _ in range(FREQUENCY_TRIMS):
+            n = _ratio_for_gain(design, Cs, n, gain, fixed=ratio is not None)
+            s_now = solve(_with_tank(design, Cs, n))
+            if s_now.f_osc is None or abs(s_now.f_osc / f - 1.0) < 1e-4:
+                break
+            Cs *= (s_now.f_osc / f) ** 2
+        design, n, achieved = _tune_ratio(design, Cs, n, gain, f)
+        notes.append(
+            f"C1 = {format_si(design.tank.C1, 'F')}, C2 = {format_si(design.tank.C2, 'F')}: "
+            f"C1/C2 = {design.tank.C1 / design.tank.C2:.3g} gives a loop gain of {achieved:.3g} "
+            f"(target {gain:g}) with every loss included, in E24 values"
+        )
+        return design, achieved, notes
+
+    for z_scale in Z0_STEPS if L_given is None else (1.0,):
+        design, achieved, notes = build_tank(z_scale)
+        if achieved >= (1.0 - GAIN_SHORTFALL) * gain:
+            break
+    reasons += notes
     s = solve(design)
     return Synthesis(design=design, f_osc=s.f_osc, gain=s.gain, reasons=reasons)
 
 
-def _tune_ratio(
-    design: Design, Cs: float, n: float, target: float, fixed: bool
-) -> tuple[Design, float, float]:
-    """Adjust C1/C2 (at constant Cs) until the full loop gain is the target, in E24 values."""
+def _with_tank(design: Design, Cs: float, k: float, snap: bool = False) -> Design:
+    """``design`` with C1/C2 = k at series capacitance Cs (optionally in E24 values)."""
+    C1, C2 = Cs * (1 + k), Cs * (1 + k) / k
+    if snap:
+        C1, C2 = nearest(C1, "E24"), nearest(C2, "E24")
+    return with_param(with_param(design, "C1", C1), "C2", C2)
 
-    def with_ratio(k: float, snap: bool) -> Design:
-        C1, C2 = Cs * (1 + k), Cs * (1 + k) / k
-        if snap:
-            C1, C2 = nearest(C1, "E24"), nearest(C2, "E24")
-        return with_param(with_param(design, "C1", C1), "C2", C2)
 
+def _ratio_for_gain(design: Design, Cs: float, n: float, target: float, fixed: bool) -> float:
+    """C1/C2 (at constant Cs) for which the full loop gain is the target."""
+    if fixed:
+        return n
     common_base = design.topology is Topology.CB
-    if not fixed:
-        for _ in range(RATIO_ITERATIONS):
-            g = solve(with_ratio(n, snap=False)).gain
-            if g <= 0:
-                n = min(n * 2.0, 1.0 if common_base else RATIO_BOUNDS[1])
-                continue
-            step = target / g
-            if common_base:
-                # the gain goes as k = n/(1+n)², largest (1/4) at n = 1: tune k, keep n ≤ 1
-                k = min(n / (1 + n) ** 2 * step, 0.25)
-                n_new = 1.0 if k >= 0.25 else ((1 - 2 * k) - math.sqrt(1 - 4 * k)) / (2 * k)
-            else:
-                n_new = n * step
-            n = min(max(n_new, RATIO_BOUNDS[0]), RATIO_BOUNDS[1])
-            if abs(step - 1.0) < 1e-3:
-                break
-    # Pick the snapped neighbour pair closest to the target gain and frequency.
-    best, best_score = with_ratio(n, snap=True), math.inf
-    base = with_ratio(n, snap=False)
-    f_goal = solve(base).f_osc
+    for _ in range(RATIO_ITERATIONS):
+        g = solve(_with_tank(design, Cs, n)).gain
+        if g <= 0:
+            n = min(n * 2.0, 1.0 if common_base else RATIO_BOUNDS[1])
+            continue
+        step = target / g
+        if common_base:
+            # the gain goes as k = n/(1+n)², largest (1/4) at n = 1: tune k, keep n ≤ 1
+            k = min(n / (1 + n) ** 2 * step, 0.25)
+            n_new = 1.0 if k >= 0.25 else ((1 - 2 * k) - math.sqrt(1 - 4 * k)) / (2 * k)
+        else:
+            n_new = n * step
+        n = min(max(n_new, RATIO_BOUNDS[0]), RATIO_BOUNDS[1])
+        if abs(step - 1.0) < 1e-3:
+            break
+    return n
+
+
+def _tune_ratio(
+    design: Design, Cs: float, n: float, target: float, f_target: float
+) -> tuple[Design, float, float]:
+    """The E24 pair of C1, C2 next to (Cs, n) closest to the target gain and frequency."""
+    start = _with_tank(design, Cs, n, snap=True)
+    best, best_score = start, math.inf
     for dC1 in (-1, 0, 1):
         for dC2 in (-1, 0, 1):
-            cand = _step(_step(best, "C1", dC1), "C2", dC2)
+            cand = _step(_step(start, "C1", dC1), "C2", dC2)
             s = solve(cand)
-            if s.f_osc is None or f_goal is None:
+            if s.f_osc is None or s.gain <= 0:
                 continue
-            score = abs(math.log(s.gain / target)) + 4.0 * abs(math.log(s.f_osc / f_goal))
+            score = abs(math.log(s.gain / target)) + 4.0 * abs(math.log(s.f_osc / f_target))
             if score < best_score:
-                best_pick, best_score = cand, score
-    chosen = best_pick if best_score < math.inf else best
-    return chosen, n, solve(chosen).gain
+                best, best_score = cand, score
+    return best, n, solve(best).gain
 
 
 def _step(design: Design, part: str, k: int) -> Design:

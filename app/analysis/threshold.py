@@ -30,7 +30,10 @@ from pydantic import ValidationError
 from scipy.optimize import brentq
 
 from app.analysis.dc import DCConvergenceError
+from app.analysis.loop import find_oscillation
 from app.analysis.operating import Solved, solve
+from app.circuit.mna import restamp, small_signal
+from app.circuit.netlist import Resistor
 from app.design import Design, get_param, with_param
 from app.errors import DesignError
 
@@ -60,6 +63,9 @@ LINEAR_PARAMS: Final = frozenset({"temperature_C"})
 #: Parameters whose increase raises the loop gain on the branch that matters:
 #: their threshold is the lowest value at which the loop gain reaches one.
 RISING_PARAMS: Final = frozenset({"RC", "Q_L", "R_load", "beta", "VA", "fT"})
+#: Resistors that move the bias only through V_CE (the Early effect): their
+#: threshold is first found with the bias held, then polished.
+GUIDED_PARAMS: Final = frozenset({"RC", "R_load"})
 #: Step used to read the local slope of ln(gain), in ln(value).
 SLOPE_STEP: Final = math.log(1.05)
 
@@ -100,6 +106,30 @@ class _Trials:
         return result
 
 
+@dataclass
+class _FixedBiasTrials:
+    """Cheap trials for a resistor: its stamp changed, the operating point held.
+
+    Only a guide for the full search (which re-solves the bias): a resistor
+    that also moves the bias is then corrected in one or two full trials.
+    """
+
+    solved: Solved
+    param: str
+    seen: dict[float, float] = field(default_factory=dict)
+
+    def log_gain(self, log_value: float) -> float:
+        if log_value in self.seen:
+            return self.seen[log_value]
+        s = self.solved
+        system = restamp(s.system, s.netlist, {self.param: {"R": math.exp(log_value)}})
+        loop = find_oscillation(small_signal(system, s.hybrid), s.tank.f_ideal, s.f_osc)
+        g = float(loop.gain)
+        result = math.log(g) if math.isfinite(g) and g > 0 else NO_LOOP
+        self.seen[log_value] = result
+        return result
+
+
 @dataclass(frozen=True)
 class Threshold:
     """Where the loop gain is one; ``value`` is ``None`` when no crossing was found."""
@@ -131,9 +161,10 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
     trials.seen[x0] = g0
     if abs(g0) <= LOG_GAIN_TOL:
         return Threshold(param, value, value)
-    if param in RISING_PARAMS:
+    root = _guided_root(trials, start, param, x0, g0)
+    if root is None and param in RISING_PARAMS:
         root = _rising_root(trials, x0, g0)
-    else:
+    elif root is None:
         root = _secant(trials, x0, g0)
         if root is None:
             root = _bracket(trials, x0)
@@ -161,13 +192,43 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
     return Threshold(param, math.exp(root), value)
 
 
+def _guided_root(
+    trials: _Trials, start: Solved | None, param: str, x0: float, g0: float
+) -> float | None:
+    """For a resistor: locate the crossing with the bias held, then polish it with full solves."""
+    if start is None or start.f_osc is None or param not in GUIDED_PARAMS:
+        return None
+    if param not in start.netlist or not isinstance(start.netlist[param], Resistor):
+        return None
+    fast = _FixedBiasTrials(start, param)
+    fast.seen[x0] = g0
+    guess = _rising_root(fast, x0, g0) if param in RISING_PARAMS else _secant(fast, x0, g0)
+    if guess is None:
+        return None
+    g = trials.log_gain(guess)
+    if not _usable(g):
+        return None
+    if abs(g) <= LOG_GAIN_TOL:
+        return guess
+    found = _secant_slope(trials, guess, g, min_step=0.0)
+    if found is None:
+        return None
+    root, slope = found
+    near = abs(root - guess) < math.log(2.0)
+    if near and (param not in RISING_PARAMS or slope > 0):
+        return root
+    return None
+
+
 def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
     """Root of ln(gain) by damped secant steps from x0; see :func:`_secant_slope`."""
     found = _secant_slope(trials, x0, g0)
     return None if found is None else found[0]
 
 
-def _secant_slope(trials: _Trials, x0: float, g0: float) -> tuple[float, float] | None:
+def _secant_slope(
+    trials, x0: float, g0: float, min_step: float = math.log(FIRST_STEP)
+) -> tuple[float, float] | None:
     """Damped secant on ln(gain) against ln(value): at most a decade per step,
     halved back toward the last good point when a trial has no loop.
 
@@ -177,8 +238,8 @@ def _secant_slope(trials: _Trials, x0: float, g0: float) -> tuple[float, float] 
     # First trial: where the root would be if gain were proportional to the value
     # (exact for the gain-setting resistor of a lossless circuit).
     x1 = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
-    if abs(x1 - x0) < math.log(FIRST_STEP):
-        x1 = x0 + math.log(FIRST_STEP)
+    if abs(x1 - x0) < min_step:
+        x1 = x0 + min_step
     g1 = trials.log_gain(x1)
     for _retreat in range(RETREATS):
         if _usable(g1):
