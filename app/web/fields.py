@@ -20,7 +20,18 @@ from typing import Annotated, Any, Final
 
 from pydantic import BaseModel, TypeAdapter, ValidationError
 
-from app.design import FORMAT, PARAMETERS, VERSION, Design, Topology
+from app.design import (
+    CAPACITOR_PARTS,
+    DEFAULT_DIELECTRIC,
+    FORMAT,
+    PARAMETERS,
+    TOLERANCED_PARTS,
+    VERSION,
+    Design,
+    Fraction,
+    Tolerances,
+    Topology,
+)
 from app.errors import describe_validation_error
 from app.presets import DEVICE_PRESET_LABELS, DEVICE_PRESETS
 from app.units import format_si
@@ -40,17 +51,31 @@ class FormField:
     unit: str = ""
     slider: bool = False
     kind: str = "quantity"  # "quantity", "text" or "choice"
+    #: Where the field lives in the design document when its form name differs
+    #: (the tolerances: form ``tol_L`` is ``tolerances.L``, ``diel_C1`` is
+    #: ``tolerances.dielectric.C1``): section, key, and the mapping it sits in.
+    doc_section: str | None = None
+    doc_key: str | None = None
+    doc_sub: str | None = None
 
     @property
     def section(self) -> str | None:
         """The design section holding the field (``None`` for top-level fields)."""
+        if self.doc_section is not None:
+            return self.doc_section
         if self.name == "preset":
             return "device"
         return PARAMETERS.get(self.name)
 
     @property
+    def key(self) -> str:
+        """The field's key in its section (or in its mapping) of the design document."""
+        return self.doc_key or self.name
+
+    @property
     def path(self) -> str:
-        return f"{self.section}.{self.name}" if self.section else self.name
+        parts = [self.section, self.doc_sub, self.key]
+        return ".".join(p for p in parts if p)
 
     @property
     def optional(self) -> bool:
@@ -79,7 +104,31 @@ GROUPS: Final = (
     ("transistor", "Transistor"),
     ("load", "Coupling and load"),
     ("conditions", "Conditions"),
+    ("tolerances", "Tolerances and temperature range (for the spread)"),
 )
+
+#: Form name of the per-part tolerance overrides (``tolerances.per_part``), kept as
+#: one text such as ``C1=0.02; L=0.05``.
+PER_PART: Final = "tol_parts"
+#: Separator of the per-part entries in that text.
+PER_PART_SEP: Final = "; "
+
+
+def _tol(name: str, key: str, label: str, unit: str = "") -> FormField:
+    return FormField(name, "tolerances", label, unit, doc_section="tolerances", doc_key=key)
+
+
+def _dielectric(part: str) -> FormField:
+    return FormField(
+        f"diel_{part}",
+        "tolerances",
+        f"{part} dielectric",
+        kind="choice",
+        doc_section="tolerances",
+        doc_key=part,
+        doc_sub="dielectric",
+    )
+
 
 #: Every input, in page order (the share link lists them in this order too).
 FIELDS: Final[tuple[FormField, ...]] = (
@@ -110,9 +159,29 @@ FIELDS: Final[tuple[FormField, ...]] = (
     FormField("Vcc", "conditions", "Vcc, supply", "V"),
     FormField("temperature_C", "conditions", "Temperature", "°C"),
     FormField("V_cap", "conditions", "Capacitor voltage rating (blank: default)", "V"),
+    _tol("tol_R", "R", "Resistors, ± fraction (blank: default)"),
+    _tol("tol_C", "C", "Capacitors, ± fraction (blank: default)"),
+    _tol("tol_L", "L", "Inductor, ± fraction (blank: default)"),
+    _tol("tol_Q_L", "Q_L", "Coil's Q, ± fraction (blank: default)"),
+    _tol("beta_ratio", "beta_ratio", "β range, highest over lowest (blank: default)"),
+    _tol("IS_ratio", "IS_ratio", "I_S range, highest over lowest (blank: default)"),
+    _tol("L_tempco_ppm", "L_tempco_ppm", "Inductor tempco, ppm/°C (blank: default)"),
+    _tol("T_min", "T_min", "Lowest operating temperature (blank: default)", "°C"),
+    _tol("T_max", "T_max", "Highest operating temperature (blank: default)", "°C"),
+    *(_dielectric(part) for part in CAPACITOR_PARTS),
+    FormField(
+        PER_PART,
+        "tolerances",
+        "Per-part tolerances, e.g. C1=0.02; L=0.05 (blank: none)",
+        kind="text",
+        doc_section="tolerances",
+        doc_key="per_part",
+    ),
 )
 
 BY_NAME: Final = {f.name: f for f in FIELDS}
+#: Fields by their path in the design document (``tolerances.L`` is ``tol_L``).
+BY_PATH: Final = {f.path: f for f in FIELDS}
 #: Query parameter that opens a sample design (fields given beside it override it).
 SAMPLE_PARAM: Final = "design"
 
@@ -132,13 +201,17 @@ _SECTIONS: Final = tuple(
 
 
 def _field_info(field: FormField):
+    if field.doc_sub is not None:
+        return Tolerances.model_fields[field.doc_sub]
     if field.section is None:
         return Design.model_fields[field.name]
     section_model = Design.model_fields[field.section].annotation
-    return section_model.model_fields[field.name]
+    return section_model.model_fields[field.key]
 
 
 def _adapter(field: FormField) -> TypeAdapter:
+    if field.doc_sub == "dielectric" or field.name == PER_PART:
+        return TypeAdapter(str)  # checked in check_field
     info = _field_info(field)
     if not info.metadata:
         return TypeAdapter(info.annotation)
@@ -146,6 +219,9 @@ def _adapter(field: FormField) -> TypeAdapter:
 
 
 _ADAPTERS: Final = {f.name: _adapter(f) for f in FIELDS if f.name != "preset"}
+_FRACTION: Final = TypeAdapter(Fraction)
+#: The dielectric classes a capacitor may be given.
+DIELECTRICS: Final = {"C0G": "C0G, class 1", "X7R": "X7R, class 2"}
 
 
 def choices(field: FormField) -> list[tuple[str, str]]:
@@ -154,7 +230,32 @@ def choices(field: FormField) -> list[tuple[str, str]]:
         return [(t.value, TOPOLOGY_LABELS[t.value]) for t in Topology]
     if field.name == "preset":
         return [("", "custom values"), *DEVICE_PRESET_LABELS.items()]
+    if field.doc_sub == "dielectric":
+        default = DEFAULT_DIELECTRIC[field.key]
+        return [("", f"default ({default})"), *DIELECTRICS.items()]
     raise KeyError(field.name)
+
+
+def parse_per_part(text: str) -> dict[str, str]:
+    """The per-part tolerance text (``C1=0.02; L=0.05``) as {part: value text}.
+
+    Raises ValueError naming the entry that is not ``part=value`` with a known part.
+    """
+    out: dict[str, str] = {}
+    for entry in re.split(r"[;,]", text):
+        entry = entry.strip()
+        if not entry:
+            continue
+        part, eq, value = entry.partition("=")
+        part, value = part.strip(), value.strip()
+        if not eq or not value:
+            raise ValueError(f"{entry!r} is not part=value (for example C1=0.02)")
+        if part not in TOLERANCED_PARTS:
+            raise ValueError(f"{part!r} is not a part; parts: {', '.join(TOLERANCED_PARTS)}")
+        if part in out:
+            raise ValueError(f"{part} is given twice")
+        out[part] = value
+    return out
 
 
 def preset_texts() -> dict[str, dict[str, str]]:
@@ -182,6 +283,22 @@ def check_field(field: FormField, text: str) -> FieldState:
             known = ", ".join(sorted(DEVICE_PRESETS))
             return FieldState(text, None, "", f"unknown transistor preset {text!r}; known: {known}")
         return FieldState(text, text or None, DEVICE_PRESET_LABELS.get(text, ""), None)
+    if field.doc_sub == "dielectric":
+        if text and text not in DIELECTRICS:
+            return FieldState(text, None, "", f"must be one of {', '.join(DIELECTRICS)}")
+        return FieldState(text, text or None, text or DEFAULT_DIELECTRIC[field.key], None)
+    if field.name == PER_PART:
+        try:
+            parts = parse_per_part(text)
+            for part, value in parts.items():
+                try:
+                    _FRACTION.validate_python(value)
+                except ValidationError as err:
+                    message = describe_validation_error(err)[0]["message"]
+                    raise ValueError(f"{part}: {message}") from None
+        except ValueError as err:
+            return FieldState(text, None, "", str(err))
+        return FieldState(text, text or None, text or "none", None)
     if text.strip() == "" and field.kind == "quantity":
         if field.nullable:
             shown = "none"
@@ -253,10 +370,19 @@ def document(texts: Mapping[str, str], *, for_file: bool = False) -> dict[str, A
                 sections[f.section][f.name] = None  # type: ignore[index]
             continue
         value: Any = _json_value(text) if for_file and f.kind == "quantity" else text
+        if f.name == PER_PART:
+            try:
+                parts = parse_per_part(text)
+            except ValueError:
+                value = text  # the core reports it (it is marked beside its field too)
+            else:
+                value = {k: _json_value(v) if for_file else v for k, v in parts.items()}
         if f.section is None:
             doc[f.name] = value
+        elif f.doc_sub is not None:
+            sections[f.section].setdefault(f.doc_sub, {})[f.key] = value
         else:
-            sections[f.section][f.name] = value
+            sections[f.section][f.key] = value
     out: dict[str, Any] = {}
     for key, info in Design.model_fields.items():
         if key in _SECTIONS:
@@ -304,8 +430,11 @@ def texts_from_document(doc: Any) -> dict[str, str]:
                 problems.append(_p(key, "must be an object", "dict_type"))
                 continue
             for name, inner in value.items():
-                field = BY_NAME.get(name)
-                if field is None or field.section != key:
+                if key == "tolerances" and name in ("dielectric", "per_part"):
+                    _put_mapping(texts, name, inner, problems)
+                    continue
+                field = BY_PATH.get(f"{key}.{name}")
+                if field is None:
                     problems.append(
                         _p(
                             f"{key}.{name}",
@@ -322,6 +451,35 @@ def texts_from_document(doc: Any) -> dict[str, str]:
     if problems:
         raise DocumentError(problems)
     return texts
+
+
+def _put_mapping(texts: dict[str, str], name: str, value: Any, problems: list[dict]) -> None:
+    """``tolerances.dielectric`` into the dielectric choices, ``tolerances.per_part``
+    into the per-part text."""
+    path = f"tolerances.{name}"
+    if not isinstance(value, dict):
+        problems.append(_p(path, "must be an object", "dict_type"))
+        return
+    entries: list[str] = []
+    for part, inner in value.items():
+        if name == "dielectric":
+            field = BY_PATH.get(f"{path}.{part}")
+            if field is None:
+                problems.append(_p(f"{path}.{part}", "is not a capacitor", "extra_forbidden"))
+            else:
+                _put(texts, field, inner, problems)
+            continue
+        bad = not isinstance(part, str) or re.search(r"[;,=]", part) or part != part.strip()
+        if bad or part not in TOLERANCED_PARTS:
+            problems.append(_p(f"{path}.{part}", "is not a part", "extra_forbidden"))
+        elif isinstance(inner, int | float) and not isinstance(inner, bool):
+            entries.append(f"{part}={json.dumps(inner)}")
+        elif isinstance(inner, str) and inner.strip() and not re.search(r"[;,=]", inner):
+            entries.append(f"{part}={inner.strip()}")
+        else:
+            problems.append(_p(f"{path}.{part}", "must be a number or text", "value_type"))
+    if name == "per_part":
+        texts[PER_PART] = PER_PART_SEP.join(entries)
 
 
 def _put(texts: dict[str, str], field: FormField, value: Any, problems: list[dict]) -> None:
@@ -401,6 +559,13 @@ _LEADING_PATH: Final = re.compile(r"^(\w+)\.(\w+)\b")
 def field_of_problem(problem: Mapping[str, str]) -> str | None:
     """The form field a design problem belongs to, when it can be told."""
     path = problem["field"]
+    for prefix in (path, path.rsplit(".", 1)[0]):
+        if prefix in BY_PATH:
+            return BY_PATH[prefix].name
+    if path.startswith("tolerances.per_part"):
+        return PER_PART
+    if path.startswith("tolerances"):
+        return None
     if path == "design":
         m = _LEADING_PATH.match(problem["message"])
         if m and m.group(2) in BY_NAME:

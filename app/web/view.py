@@ -24,6 +24,7 @@ from app.errors import describe_validation_error
 from app.web import curves
 from app.web.fields import (
     BY_NAME,
+    BY_PATH,
     FIELDS,
     check_fields,
     display,
@@ -259,12 +260,12 @@ def query_string(texts: Mapping[str, str]) -> str:
 
 
 def _problem(path: str, message: str, kind: str) -> dict[str, Any]:
-    name = path.rsplit(".", 1)[-1]
+    field = BY_PATH.get(path)
     return {
         "field": path,
         "message": message,
         "type": kind,
-        "input": name if name in BY_NAME else None,
+        "input": field.name if field else None,
     }
 
 

@@ -125,3 +125,60 @@ def test_blank_field_with_a_default_uses_the_core_default():
     doc = document({**texts, "F_dB": "8"})
     assert doc["noise"] == {"F_dB": "8"}
     assert Design.model_validate(doc).noise.F_dB == 8.0
+
+
+#: A tolerances section with every kind of entry (values made up for the round trip).
+TOLERANCES = {
+    "R": 0.02,
+    "C": "30m",
+    "L": 0.05,
+    "Q_L": 0.1,
+    "beta_ratio": 2.5,
+    "IS_ratio": 1.5,
+    "per_part": {"C1": 0.01, "L": "20m"},
+    "dielectric": {"C1": "X7R", "CE": "C0G"},
+    "L_tempco_ppm": 50,
+    "T_min": -20,
+    "T_max": 70,
+}
+
+
+def test_tolerances_round_trip_through_form_link_and_file():
+    doc = {**samples()[DEFAULT_SAMPLE].document, "tolerances": TOLERANCES}
+    texts = texts_from_document(doc)
+    assert texts["tol_C"] == "30m" and texts["diel_C1"] == "X7R"
+    assert texts["tol_parts"] == "C1=0.01; L=20m"
+    query = urlencode(to_query(texts))
+    back, problems = from_query(parse_qsl(query, keep_blank_values=True), SAMPLES, DEFAULT_SAMPLE)
+    assert problems == [] and back == texts
+    assert document(back, for_file=True)["tolerances"] == TOLERANCES
+    design = Design.model_validate(document(back))
+    assert design.tolerances.of("L") == 0.02 and design.tolerances.dielectric_of("CE") == "C0G"
+
+
+def test_blank_tolerances_leave_the_section_out():
+    assert "tolerances" not in document(SAMPLES[DEFAULT_SAMPLE])
+
+
+@pytest.mark.parametrize(
+    ("name", "text", "needle"),
+    [
+        ("tol_parts", "C9=0.1", "'C9' is not a part"),
+        ("tol_parts", "C1", "is not part=value"),
+        ("tol_parts", "C1=0.9", "C1:"),
+        ("diel_C2", "Y5V", "must be one of C0G, X7R"),
+        ("tol_R", "0.7", "0.5"),
+    ],
+)
+def test_tolerance_fields_report(name, text, needle):
+    assert needle in check_field(BY_NAME[name], text).error
+
+
+def test_tolerance_problem_goes_to_its_own_input_not_the_tank():
+    from app.web.view import build_view
+
+    texts = {**SAMPLES[DEFAULT_SAMPLE], "T_min": "90", "T_max": "80"}
+    view = build_view(texts, with_sweep=False)
+    assert not view["ok"]
+    assert view["fields"]["L"]["error"] is None
+    assert any("T_min" in p["message"] for p in view["problems"])
