@@ -34,6 +34,10 @@ const SEL = {
     wave: "#plot-wave",
     envelope: "#plot-envelope",
     spectrum: "#plot-spectrum",
+    fHist: "#plot-f-hist",
+    gainHist: "#plot-gain-hist",
+    sens: "#plot-sens",
+    temp: "#plot-temp",
   },
   run: {
     panel: "[data-role='run']",
@@ -56,9 +60,19 @@ const EVENTS = {
   rendered: "ringwise:rendered", // results, indicator, schematic and plots a, c, d drawn
   swept: "ringwise:swept", // the what-if plot drawn
   ran: "ringwise:ran", // a time-domain run ended (detail.state: done, cancelled, failed)
+  tool: "ringwise:tool", // an on-demand panel answered (detail.tool: spread, snap, synth, bench; detail.state)
 };
 
-const API = { sheet: "/api/sheet", sweep: "/api/sheet/sweep", importFile: "/api/import", jobs: "/api/simulate/jobs" };
+const API = {
+  sheet: "/api/sheet",
+  sweep: "/api/sheet/sweep",
+  importFile: "/api/import",
+  jobs: "/api/simulate/jobs",
+  spread: "/api/sheet/spread",
+  snap: "/api/sheet/snap",
+  synth: "/api/sheet/synthesize",
+  bench: "/api/sheet/reconcile",
+};
 const DEBOUNCE_MS = 60;
 const PRESET_FIELDS = ["beta", "IS", "VA", "fT", "C_mu"];
 
@@ -197,6 +211,7 @@ function render(view) {
   }
   renderStress(view);
   markRunStale(view);
+  markToolsStale(view);
   const verdict = view.shown["startup.verdict"];
   $(SEL.verdictLabel).textContent = verdict.text;
   $(SEL.glyph).setAttribute("href", `#glyph-${verdict.value}`);
@@ -660,6 +675,287 @@ function markRunStale(view) {
   if (run.query !== null) $(SEL.run.stale).hidden = view.query === run.query;
 }
 
+// ---- the on-demand panels: spread, standard values, from targets, bench ------
+//
+// Each panel posts the form texts (and its own inputs, as typed) and renders the
+// server's answer: figures by data-field from answer.shown, rows, plots.  A newer
+// request supersedes an older one (its answer is dropped, its request aborted).
+
+const tools = {};
+for (const name of ["spread", "snap", "synth", "bench"]) tools[name] = { seq: 0, abort: null, query: null, answer: null, undo: null };
+
+const panel = (name) => $(`[data-role='${name}']`);
+const val = (id) => $(id).value;
+
+function toolState(name, stateName, text = "") {
+  const p = panel(name);
+  p.dataset.tool = stateName;
+  $(`#${name}-status`).textContent = text;
+  const busy = $(`#${name}-busy`);
+  if (busy) busy.hidden = stateName !== "busy";
+}
+
+function toolError(name, err) {
+  const box = $(`#${name}-error`);
+  if (!err) {
+    box.hidden = true;
+    box.textContent = "";
+    return;
+  }
+  const problems = err.body?.problems?.length ? err.body.problems : [{ field: "", message: err.message }];
+  box.textContent = problems.map((p) => (p.field ? `${p.field}: ${p.message}` : p.message)).join("; ");
+  box.hidden = false;
+}
+
+function fill(root, shown) {
+  for (const el of $$("[data-field]", root)) {
+    const figure = shown[el.dataset.field];
+    if (!figure) continue;
+    el.dataset.value = figure.raw;
+    el.textContent = figure.text;
+  }
+}
+
+function shownCell(tag, shown, path) {
+  const el = document.createElement(tag);
+  const figure = shown[path];
+  el.dataset.field = path;
+  el.dataset.value = figure ? figure.raw : "";
+  el.textContent = figure ? figure.text : "—";
+  return el;
+}
+
+function rows(tbody, bases, columns, shown) {
+  tbody.replaceChildren(
+    ...bases.map((base) => {
+      const tr = document.createElement("tr");
+      tr.append(...columns.map((col, i) => shownCell(i === 0 ? "th" : "td", shown, `${base}.${col}`)));
+      return tr;
+    }),
+  );
+}
+
+async function ask(name, url, body) {
+  const t = tools[name];
+  const seq = ++t.seq;
+  t.abort?.abort();
+  t.abort = new AbortController();
+  toolError(name, null);
+  toolState(name, "busy", "Working…");
+  try {
+    const answer = await post(url, body, t.abort.signal);
+    if (seq !== t.seq) return null;
+    toolState(name, "done", "");
+    return answer;
+  } catch (err) {
+    if (err.name === "AbortError" || seq !== t.seq) return null;
+    toolState(name, "failed", "Not computed");
+    toolError(name, err);
+    document.dispatchEvent(new CustomEvent(EVENTS.tool, { detail: { tool: name, state: "failed" } }));
+    return null;
+  }
+}
+
+function toolDone(name, query) {
+  tools[name].query = query;
+  const stale = $(".tool-stale", panel(name));
+  if (stale) stale.hidden = true;
+  $(".tool-body", panel(name)).hidden = false;
+  document.dispatchEvent(new CustomEvent(EVENTS.tool, { detail: { tool: name, state: "done" } }));
+}
+
+function markToolsStale(view) {
+  for (const name of ["spread", "snap", "bench"]) {
+    const t = tools[name];
+    if (t.query === null) continue;
+    const stale = t.query !== view.query;
+    $(".tool-stale", panel(name)).hidden = !stale;
+    if (name === "snap") $("#snap-apply").disabled = stale || !t.answer?.changed.length;
+    if (name === "bench") $("#bench-load").disabled = stale || !t.answer;
+  }
+}
+
+async function runSpread() {
+  const texts = formTexts();
+  const body = { fields: texts, samples: val("#spread-samples"), seed: val("#spread-seed"), margin: val("#spread-margin"), window_low: val("#spread-low"), window_high: val("#spread-high") };
+  const a = await ask("spread", API.spread, body);
+  if (!a) return;
+  const p = panel("spread");
+  $("[data-role='spread-temps']", p).replaceChildren(
+    ...a.temperatures.map((t) => {
+      const div = document.createElement("div");
+      div.className = "fig";
+      const dt = document.createElement("dt");
+      dt.textContent = `at ${t} °C`;
+      div.append(dt, shownCell("dd", a.shown, `spread.yield_by_temperature.${t}`));
+      return div;
+    }),
+  );
+  fill(p, a.shown);
+  rows($("[data-role='spread-sens']", p), a.sensitivity_rows, ["part", "value", "tolerance", "S_f", "S_gain", "f_spread", "gain_spread"], a.shown);
+  rows($("[data-role='spread-worst']", p), a.worst_rows, ["sample", "T_C", "gain", "f_osc"], a.shown);
+  tools.spread.answer = a;
+  toolDone("spread", a.query);
+  toolState("spread", "done", `Done: ${a.shown["spread.samples"].text} samples`);
+  plotHist(SEL.plots.fHist, a.curves.f_hist, "f_osc (Hz)", a.curves.f_hist.window || [], "Hz");
+  plotHist(SEL.plots.gainHist, a.curves.gain_hist, "loop gain", [1, a.curves.gain_hist.margin], "");
+  plotSens(a.curves.sensitivity);
+  plotTemp(a.curves.temperature);
+}
+
+function plotHist(sel, h, title, lines, unit) {
+  plotWhenSeen(sel, [h, lines], (el) =>
+    Plotly.react(
+      el,
+      [{ type: "bar", x: h.x, y: h.count, width: h.width, marker: { color: INK }, hovertemplate: `%{x:.4s}${unit}  %{y} samples<extra></extra>` }],
+      layout({
+        showlegend: false,
+        margin: { l: 52, r: 16, t: 8, b: 40 },
+        bargap: 0,
+        xaxis: { title: { text: title }, exponentformat: "SI" },
+        yaxis: { title: { text: "samples" } },
+        shapes: lines.map((x) => vline(x, "dash", ACCENT)),
+      }),
+      PLOT_CONFIG,
+    ),
+  );
+}
+
+function plotSens(s) {
+  plotWhenSeen(SEL.plots.sens, s, (el) =>
+    Plotly.react(
+      el,
+      [
+        { type: "bar", orientation: "h", y: s.parts, x: s.f_spread, name: "f_osc spread (%)", marker: { color: ACCENT }, hovertemplate: "%{y}: %{x:.3f} % of f<extra></extra>" },
+        { type: "bar", orientation: "h", y: s.parts, x: s.gain_spread, name: "loop-gain spread (%)", marker: { color: INK }, hovertemplate: "%{y}: %{x:.3f} % of gain<extra></extra>" },
+      ],
+      layout({
+        barmode: "group",
+        margin: { l: 70, r: 16, t: 24, b: 40 },
+        xaxis: { title: { text: "|S|·tolerance (%)" } },
+        yaxis: { autorange: "reversed", automargin: true },
+      }),
+      PLOT_CONFIG,
+    ),
+  );
+}
+
+function plotTemp(t) {
+  plotWhenSeen(SEL.plots.temp, t, (el) =>
+    Plotly.react(
+      el,
+      [
+        { x: t.T_C, y: t.p95, name: "95 %", line: { color: "#5d6a70", width: 1, dash: "dot" }, hovertemplate: "%{x} °C  %{y:.5s}Hz<extra></extra>" },
+        { x: t.T_C, y: t.p5, name: "5 %", fill: "tonexty", fillcolor: "rgba(162, 82, 31, 0.12)", line: { color: "#5d6a70", width: 1, dash: "dot" }, hovertemplate: "%{x} °C  %{y:.5s}Hz<extra></extra>" },
+        { x: t.T_C, y: t.p50, name: "median", line: { color: INK, width: 2 }, hovertemplate: "%{x} °C  %{y:.5s}Hz<extra></extra>" },
+      ],
+      layout({
+        margin: { l: 58, r: 16, t: 24, b: 40 },
+        xaxis: { title: { text: "temperature (°C)" } },
+        yaxis: { title: { text: "f_osc (Hz)" }, exponentformat: "SI" },
+      }),
+      PLOT_CONFIG,
+    ),
+  );
+}
+
+// Loading texts from a panel: the texts as they were are kept for that panel's undo.
+function loadTexts(fields) {
+  const before = formTexts();
+  for (const [name, text] of Object.entries(fields)) setField(name, text);
+  schedule();
+  return before;
+}
+
+async function previewSnap() {
+  const a = await ask("snap", API.snap, { fields: formTexts(), series: val("#snap-series") });
+  if (!a) return;
+  const p = panel("snap");
+  fill(p, a.shown);
+  rows($("[data-role='snap-rows']", p), a.rows, ["part", "before", "after"], a.shown);
+  tools.snap.answer = a;
+  toolDone("snap", a.query);
+  $("#snap-apply").disabled = a.changed.length === 0;
+  toolState("snap", "done", a.changed.length ? `${a.changed.length} inputs would change` : "Every part is already a standard value");
+}
+
+function applySnap() {
+  const a = tools.snap.answer;
+  if (!a) return;
+  tools.snap.undo = loadTexts(a.fields);
+  tools.snap.query = null; // the preview is now the sheet itself
+  $("#snap-apply").disabled = true;
+  $("#snap-undo").disabled = false;
+  toolState("snap", "applied", `Applied: ${a.changed.join(", ")}`);
+}
+
+function undo(name) {
+  const before = tools[name].undo;
+  if (!before) return;
+  tools[name].undo = null;
+  loadTexts(before);
+  $(`#${name}-undo`).disabled = true;
+  toolState(name, "undone", "Restored the texts as they were");
+}
+
+async function runSynth() {
+  const body = { fields: formTexts(), topology: val("#synth-topology") };
+  for (const key of ["f", "Vcc", "IC", "gain", "L", "ratio"]) body[key] = val(`#synth-${key}`);
+  const a = await ask("synth", API.synth, body);
+  if (!a) return;
+  const p = panel("synth");
+  fill(p, a.shown);
+  listItems($("[data-field='reasons']", p), a.result.reasons, (r) => r);
+  tools.synth.undo = loadTexts(a.fields);
+  $("#synth-undo").disabled = false;
+  toolDone("synth", null);
+  toolState("synth", "done", "The sheet now holds the synthesised design");
+}
+
+async function runBench() {
+  const body = { fields: formTexts(), f_measured: val("#bench-f"), threshold_param: val("#bench-param"), threshold_value: val("#bench-value"), amplitude: val("#bench-amp") };
+  const a = await ask("bench", API.bench, body);
+  if (!a) return;
+  const p = panel("bench");
+  fill(p, a.shown);
+  rows($("[data-role='bench-fitted']", p), a.rows, ["name", "nominal", "fitted", "change", "determined"], a.shown);
+  const readings = $("[data-role='bench-readings']", p);
+  readings.replaceChildren(
+    ...a.readings.map((r) => {
+      const tr = document.createElement("tr");
+      const th = document.createElement("th");
+      th.scope = "row";
+      th.textContent = r.label;
+      tr.append(th, ...["bench", "nominal_model", "as_built_model"].map((c) => shownCell("td", a.shown, `${r.path}.${c}`)));
+      return tr;
+    }),
+  );
+  tools.bench.answer = a;
+  toolDone("bench", a.query);
+  $("#bench-load").disabled = false;
+}
+
+function loadAsBuilt() {
+  const a = tools.bench.answer;
+  if (!a) return;
+  loadTexts(a.fields);
+  tools.bench.query = null;
+  $("#bench-load").disabled = true;
+  toolState("bench", "loaded", "The sheet now holds the as-built design");
+}
+
+function wireTools() {
+  $("#spread-start").addEventListener("click", runSpread);
+  for (const id of ["#spread-samples", "#spread-seed", "#spread-margin", "#spread-low", "#spread-high"]) $(id).addEventListener("keydown", (e) => e.key === "Enter" && runSpread());
+  $("#snap-preview").addEventListener("click", previewSnap);
+  $("#snap-apply").addEventListener("click", applySnap);
+  $("#snap-undo").addEventListener("click", () => undo("snap"));
+  $("#synth-run").addEventListener("click", runSynth);
+  $("#synth-undo").addEventListener("click", () => undo("synth"));
+  $("#bench-run").addEventListener("click", runBench);
+  $("#bench-load").addEventListener("click", loadAsBuilt);
+}
+
 // ---- import, export, copy --------------------------------------------------
 
 async function importText(text) {
@@ -718,6 +1014,7 @@ function start() {
   $(SEL.run.start).addEventListener("click", startRun);
   $(SEL.run.stop).addEventListener("click", () => stopRun());
   $(SEL.run.cycles).addEventListener("keydown", (e) => e.key === "Enter" && startRun());
+  wireTools();
   window.addEventListener("pagehide", () => {
     if (run.id) fetch(`${API.jobs}/${encodeURIComponent(run.id)}`, { method: "DELETE", keepalive: true });
   });

@@ -16,6 +16,7 @@ from app.web.ladders import SPANS, ladder
 from app.web.paths import TEMPLATES_DIR
 from app.web.routers.simulate import DEFAULT_CYCLES, POLL_MS, SHEET_POINTS
 from app.web.samples import samples
+from app.web.tools import tool_context
 from app.web.view import (
     ORDINALS,
     PANELS,
@@ -74,6 +75,7 @@ def _static_context() -> dict[str, Any]:
             for i in range(HARMONICS - 1)
         ],
         "run": {"cycles": DEFAULT_CYCLES},
+        "tools": tool_context(),
         "config": {
             "run": {
                 "points": SHEET_POINTS,

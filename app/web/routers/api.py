@@ -176,3 +176,10 @@ def get_export(request: Request) -> JSONResponse:
         doc,
         headers={"Content-Disposition": f'attachment; filename="ringwise-{slug[:60]}.json"'},
     )
+
+
+# The sheet's on-demand panels (spread, snap, synthesize, reconcile) under /api/sheet/.
+# Imported here, at the end, because they reuse this module's helpers.
+from app.web.routers import tools as _tools  # noqa: E402
+
+router.include_router(_tools.router)

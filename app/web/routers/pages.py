@@ -11,6 +11,7 @@ from fastapi.responses import HTMLResponse
 from app.web.dependencies import texts_for
 from app.web.plotsvg import loop_plot
 from app.web.templating import page_context, templates
+from app.web.tools import summary_spread
 from app.web.view import build_view
 
 router = APIRouter(tags=["pages"])
@@ -41,6 +42,8 @@ def summary(request: Request) -> HTMLResponse:
     context = page_context(request, view)
     context["today"] = date.today().isoformat()
     context["plot"] = loop_plot(view["curves"]["loop"]) if view["ok"] else None
+    texts = {name: f["text"] for name, f in view["fields"].items()}
+    context["spread"] = summary_spread(texts) if view["ok"] else None
     return templates.TemplateResponse(request, "summary.html", context)
 
 

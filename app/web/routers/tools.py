@@ -1,0 +1,88 @@
+"""The sheet's on-demand panels: spread and yield, standard values, design from
+targets, bench readings.  Form texts in, the API's answer plus its display texts
+out (app/web/tools.py).  Plain ``def`` routes: they run in the thread pool."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter
+from pydantic import BaseModel, ConfigDict, Field
+
+from app.web import tools
+from app.web.routers.api import ERRORS, _texts
+
+router = APIRouter(prefix="/sheet", tags=["sheet tools"])
+
+#: Longest text accepted in a panel's own inputs.
+TEXT_MAX = 200
+
+
+class _In(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class SheetSpreadRequest(_In):
+    fields: dict[str, str] = Field(description="Form texts by field name, as typed")
+    samples: str = Field(default="2000", max_length=TEXT_MAX, description="Samples (whole number)")
+    seed: str = Field(default="1", max_length=TEXT_MAX, description="Random seed (whole number)")
+    margin: str = Field(
+        default="", max_length=TEXT_MAX, description="Margin loop gain (blank: default)"
+    )
+    window_low: str = Field(
+        default="", max_length=TEXT_MAX, description="Window low end, e.g. 990k"
+    )
+    window_high: str = Field(
+        default="", max_length=TEXT_MAX, description="Window high end, e.g. 1.01M"
+    )
+
+
+@router.post("/spread", responses=ERRORS)
+def post_sheet_spread(req: SheetSpreadRequest) -> dict[str, Any]:
+    """Monte Carlo for the sheet's texts: the spread answer, figure texts and plot data."""
+    return tools.spread_view(
+        _texts(req.fields), req.samples, req.seed, req.margin, req.window_low, req.window_high
+    )
+
+
+class SheetSnapRequest(_In):
+    fields: dict[str, str]
+    series: str = Field(default="E24", max_length=TEXT_MAX, description="E6, E12, E24, E48 or E96")
+
+
+@router.post("/snap", responses=ERRORS)
+def post_sheet_snap(req: SheetSnapRequest) -> dict[str, Any]:
+    """Standard values preview for the sheet's texts, with the snapped form texts."""
+    return tools.snap_view(_texts(req.fields), req.series)
+
+
+class SheetSynthesizeRequest(_In):
+    fields: dict[str, str] = Field(default_factory=dict, description="The sheet's texts now")
+    topology: str = Field(default="common-emitter", max_length=TEXT_MAX)
+    f: str = Field(default="", max_length=TEXT_MAX, description="Target frequency, e.g. 1M")
+    Vcc: str = Field(default="", max_length=TEXT_MAX, description="Supply, e.g. 12")
+    IC: str = Field(default="", max_length=TEXT_MAX, description="Collector current, e.g. 1m")
+    gain: str = Field(default="", max_length=TEXT_MAX, description="Target loop gain (blank: 3)")
+    L: str = Field(default="", max_length=TEXT_MAX, description="Inductor to use (optional)")
+    ratio: str = Field(default="", max_length=TEXT_MAX, description="C1/C2 to use (optional)")
+
+
+@router.post("/synthesize", responses=ERRORS)
+def post_sheet_synthesize(req: SheetSynthesizeRequest) -> dict[str, Any]:
+    """A design from targets, as form texts for the sheet, with its reasons."""
+    targets = req.model_dump(exclude={"fields"})
+    return tools.synthesize_view(_texts(req.fields), targets)
+
+
+class SheetReconcileRequest(_In):
+    fields: dict[str, str]
+    f_measured: str = Field(default="", max_length=TEXT_MAX, description="Bench frequency")
+    threshold_param: str = Field(default="", max_length=TEXT_MAX, description="Part varied")
+    threshold_value: str = Field(default="", max_length=TEXT_MAX, description="Its value at start")
+    amplitude: str = Field(default="", max_length=TEXT_MAX, description="Bench amplitude")
+
+
+@router.post("/reconcile", responses=ERRORS)
+def post_sheet_reconcile(req: SheetReconcileRequest) -> dict[str, Any]:
+    """Bench readings against the sheet's design: fitted unknowns and the as-built texts."""
+    return tools.reconcile_view(_texts(req.fields), req.model_dump(exclude={"fields"}))

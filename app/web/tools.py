@@ -1,0 +1,444 @@
+"""What the sheet's on-demand panels show: spread and yield, standard values,
+design from targets and bench readings.
+
+Each function takes the form's texts (and the panel's own texts, SI text as
+typed), checks them naming the field, calls the same route functions as the
+JSON API (``app/web/routers/spread.py``, so the answers are the API's) and
+returns that answer together with every displayed figure's text (``shown``,
+keyed by the figure's path in the answer, as the sheet's main view does),
+the plot data and, where a design comes back, the form texts that load it.
+The browser formats and computes nothing.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Mapping
+from itertools import pairwise
+from typing import Any, Final
+
+from pydantic import ValidationError
+
+from app.design import Design
+from app.errors import describe_validation_error
+from app.units import UnitError, format_si, parse_quantity
+from app.web.errors import ApiError
+from app.web.fields import BY_NAME, FIELDS, choices, display, document
+from app.web.routers.spread import (
+    ReconcileRequest,
+    SnapRequest,
+    SpreadRequest,
+    SynthesizeRequest,
+    post_reconcile,
+    post_snap,
+    post_spread,
+    post_synthesize,
+)
+from app.web.view import _figure, query_string
+
+#: Groups of the form that describe the spread, not the circuit: a design that
+#: comes back from the core (synthesis, as-built) leaves their texts as typed.
+KEPT_GROUPS: Final = ("tolerances",)
+#: Significant digits tried, fewest first, for the text of a value the core chose.
+MAX_DIGITS: Final = 17
+#: Sensitivities listed on the sheet (ranked; the plot shows them all).
+SENSITIVITY_ROWS: Final = 8
+#: Worst cases listed on the sheet.
+WORST_ROWS: Final = 3
+
+
+# ---- shared ---------------------------------------------------------------------
+
+
+def _problem(field: str, message: str, kind: str = "value_error") -> dict[str, str]:
+    return {"field": field, "message": message, "type": kind}
+
+
+def _fail(problems: list[dict[str, str]]) -> ApiError:
+    first = problems[0]
+    return ApiError(422, f"{first['field']}: {first['message']}", problems)
+
+
+def _design(texts: Mapping[str, str]) -> Design:
+    """The design of the form texts, or a 422 naming each marked field."""
+    try:
+        return Design.model_validate(document(texts))
+    except ValidationError as err:
+        problems = [
+            _problem(f"fields.{p['field']}", p["message"], p["type"])
+            for p in describe_validation_error(err)
+        ]
+        raise _fail(problems) from err
+
+
+def _quantity(
+    name: str, text: str, unit: str, problems: list, *, optional: bool = False
+) -> float | None:
+    if text.strip() == "":
+        if not optional:
+            problems.append(_problem(name, "is required", "missing"))
+        return None
+    try:
+        return parse_quantity(text, unit)
+    except UnitError as err:
+        problems.append(_problem(name, str(err)))
+        return None
+
+
+def _integer(name: str, text: str, problems: list) -> int | None:
+    try:
+        return int(text.strip())
+    except ValueError:
+        problems.append(_problem(name, f"{text!r} is not a whole number"))
+        return None
+
+
+def _validated(model: type, problems: list, **values: Any) -> Any:
+    """``model(**values)`` with its problems (bounds) added to ``problems``."""
+    if problems:
+        raise _fail(problems)
+    try:
+        return model(**values)
+    except ValidationError as err:
+        raise _fail(
+            [_problem(p["field"], p["message"], p["type"]) for p in describe_validation_error(err)]
+        ) from err
+
+
+def _core(call: Any, *args: Any) -> Any:
+    try:
+        return call(*args)
+    except (ValueError, ArithmeticError) as err:
+        raise _fail([_problem("design", str(err), "domain_error")]) from err
+
+
+def _percent(value: float | None) -> str:
+    return "—" if value is None else f"{100 * value:.1f} %"
+
+
+def _signed(value: float | None) -> str:
+    return "—" if value is None else f"{value:+.3f}"
+
+
+def _hundred(value: float | None) -> float | None:
+    return None if value is None else 100 * value
+
+
+def value_text(value: float) -> str:
+    """Compact SI text for a value the core chose (``2.2n``, ``180k``) that reads back exactly."""
+    for digits in range(3, MAX_DIGITS + 1):
+        text = format_si(value, "", digits=digits).replace(" ", "")
+        try:
+            if parse_quantity(text) == value:
+                return text
+        except UnitError:
+            break
+    return repr(value)
+
+
+def _at(doc: Mapping[str, Any], path: str) -> Any:
+    node: Any = doc
+    for key in path.split("."):
+        if not isinstance(node, Mapping) or key not in node:
+            return None
+        node = node[key]
+    return node
+
+
+def texts_for_design(design: Design, texts: Mapping[str, str]) -> dict[str, str]:
+    """Form texts that load ``design``: a field whose value does not change keeps its
+    text as typed; the tolerance inputs are kept as they are."""
+    new = design.model_dump(mode="json")
+    try:
+        old: dict[str, Any] | None = Design.model_validate(document(texts)).model_dump(mode="json")
+    except ValidationError:
+        old = None
+    out = {f.name: texts.get(f.name, "") for f in FIELDS}
+    for f in FIELDS:
+        if f.group in KEPT_GROUPS:
+            continue
+        value = _at(new, f.path)
+        if old is not None and _at(old, f.path) == value:
+            continue
+        if value is None:
+            out[f.name] = ""
+        elif isinstance(value, float | int) and not isinstance(value, bool):
+            out[f.name] = value_text(float(value))
+        else:
+            out[f.name] = str(value)
+    return out
+
+
+def _changed(before: Mapping[str, str], after: Mapping[str, str]) -> list[str]:
+    return [f.name for f in FIELDS if before.get(f.name, "") != after.get(f.name, "")]
+
+
+# ---- spread and yield -------------------------------------------------------------
+
+
+def _centres(h: Mapping[str, list]) -> dict[str, list[float]]:
+    edges = h["edges"]
+    return {
+        "x": [(a + b) / 2 for a, b in pairwise(edges)],
+        "width": [b - a for a, b in pairwise(edges)],
+        "count": h["counts"],
+    }
+
+
+def spread_view(
+    texts: Mapping[str, str], samples: str, seed: str, margin: str, low: str, high: str
+) -> dict[str, Any]:
+    """The spread panel: the API's answer, the figures' texts and the four plots."""
+    design = _design(texts)
+    problems: list[dict[str, str]] = []
+    n = _integer("samples", samples, problems)
+    s = _integer("seed", seed, problems)
+    m = _quantity("margin", margin, "", problems, optional=True)
+    lo = _quantity("window_low", low, "Hz", problems, optional=True)
+    hi = _quantity("window_high", high, "Hz", problems, optional=True)
+    if (lo is None) != (hi is None) and not problems:
+        missing = "window_high" if hi is None else "window_low"
+        problems.append(_problem(missing, "give both ends of the window, or neither", "missing"))
+    if lo is not None and hi is not None and lo >= hi and not problems:
+        problems.append(_problem("window_high", "must be above the window's low end"))
+    values: dict[str, Any] = {"design": design, "samples": n, "seed": s}
+    if m is not None:
+        values["margin"] = m
+    if lo is not None and hi is not None:
+        values["window"] = {"low": lo, "high": hi}
+    req = _validated(SpreadRequest, problems, **values)
+    answer = _core(post_spread, req).model_dump(mode="json")
+    sp = answer["spread"]
+    shown: dict[str, dict[str, Any]] = {}
+
+    def put(path: str, value: Any, text: str) -> None:
+        shown[path] = _figure(value, text)
+
+    for key in ("yield_start", "yield_margin", "in_window"):
+        put(f"spread.{key}", sp[key], _percent(sp[key]))
+    put("spread.samples", sp["samples"], str(sp["samples"]))
+    put("spread.seed", sp["seed"], str(sp["seed"]))
+    put("spread.margin", sp["margin"], display(sp["margin"], ""))
+    for t, y in sp["yield_by_temperature"].items():
+        put(f"spread.yield_by_temperature.{t}", y, _percent(y))
+    for p, v in sp["f_osc"].items():
+        put(f"spread.f_osc.{p}", v, display(v, "Hz"))
+    for p, v in sp["gain"].items():
+        put(f"spread.gain.{p}", v, display(v, ""))
+    window = sp["window"]
+    window_text = f"{display(window[0], 'Hz')} to {display(window[1], 'Hz')}" if window else ""
+    put("spread.window", window, window_text or "none given (every start counts)")
+    shown["spread.window"]["raw"] = json.dumps(window) if window else ""
+    sens_rows = []
+    for i, row in enumerate(sp["sensitivities"][:SENSITIVITY_ROWS]):
+        base = f"spread.sensitivities.{i}"
+        unit = BY_NAME[row["part"]].unit if row["part"] in BY_NAME else ""
+        put(f"{base}.part", row["part"], row["part"])
+        put(f"{base}.value", row["value"], display(row["value"], unit))
+        put(f"{base}.tolerance", row["tolerance"], f"± {_percent(row['tolerance'])}")
+        put(f"{base}.S_f", row["S_f"], _signed(row["S_f"]))
+        put(f"{base}.S_gain", row["S_gain"], _signed(row["S_gain"]))
+        put(f"{base}.f_spread", row["f_spread"], _percent(row["f_spread"]))
+        put(f"{base}.gain_spread", row["gain_spread"], _percent(row["gain_spread"]))
+        sens_rows.append(base)
+    worst_rows = []
+    for i, row in enumerate(sp["worst_cases"][:WORST_ROWS]):
+        base = f"spread.worst_cases.{i}"
+        put(f"{base}.sample", row["sample"], str(row["sample"]))
+        put(f"{base}.T_C", row["T_C"], display(row["T_C"], "°C"))
+        put(f"{base}.gain", row["gain"], display(row["gain"], ""))
+        put(f"{base}.f_osc", row["f_osc"], display(row["f_osc"], "Hz"))
+        worst_rows.append(base)
+    sens = sp["sensitivities"]
+    curves = {
+        "f_hist": {**_centres(sp["f_histogram"]), "window": window},
+        "gain_hist": {**_centres(sp["gain_histogram"]), "margin": sp["margin"]},
+        "sensitivity": {
+            "parts": [r["part"] for r in sens],
+            "f_spread": [_hundred(r["f_spread"]) for r in sens],
+            "gain_spread": [_hundred(r["gain_spread"]) for r in sens],
+        },
+        "temperature": {
+            "T_C": [p["T_C"] for p in sp["f_vs_temperature"]],
+            "p5": [p["p5"] for p in sp["f_vs_temperature"]],
+            "p50": [p["p50"] for p in sp["f_vs_temperature"]],
+            "p95": [p["p95"] for p in sp["f_vs_temperature"]],
+        },
+    }
+    return {
+        "result": answer,
+        "shown": shown,
+        "temperatures": list(sp["yield_by_temperature"]),
+        "sensitivity_rows": sens_rows,
+        "worst_rows": worst_rows,
+        "curves": curves,
+        "query": query_string(texts),
+    }
+
+
+# ---- standard values --------------------------------------------------------------
+
+
+def snap_view(texts: Mapping[str, str], series: str) -> dict[str, Any]:
+    """The standard-values preview: each part before → after, f and gain change, and the
+    form texts with the snapped values."""
+    design = _design(texts)
+    req = _validated(SnapRequest, [], design=design, series=series)
+    answer = _core(post_snap, req).model_dump(mode="json")
+    shown: dict[str, dict[str, Any]] = {}
+    rows = []
+    for i, c in enumerate(answer["changes"]):
+        unit = BY_NAME[c["part"]].unit if c["part"] in BY_NAME else ""
+        base = f"changes.{i}"
+        shown[f"{base}.part"] = _figure(c["part"], c["part"])
+        shown[f"{base}.before"] = _figure(c["before"], display(c["before"], unit))
+        shown[f"{base}.after"] = _figure(c["after"], display(c["after"], unit))
+        rows.append(base)
+    for key in ("f_before", "f_after"):
+        shown[key] = _figure(answer[key], display(answer[key], "Hz"))
+    for key in ("gain_before", "gain_after"):
+        shown[key] = _figure(answer[key], display(answer[key], ""))
+    f0, f1 = answer["f_before"], answer["f_after"]
+    df = (f1 / f0 - 1) if f0 and f1 else None
+    shown["f_change"] = _figure(df, "—" if df is None else f"{100 * df:+.2f} %")
+    dg = answer["gain_after"] / answer["gain_before"] - 1 if answer["gain_before"] else None
+    shown["gain_change"] = _figure(dg, "—" if dg is None else f"{100 * dg:+.2f} %")
+    snapped = Design.model_validate(answer["design"])
+    new_texts = texts_for_design(snapped, texts)
+    return {
+        "result": answer,
+        "shown": shown,
+        "rows": rows,
+        "fields": new_texts,
+        "changed": _changed(texts, new_texts),
+        "query": query_string(texts),
+    }
+
+
+# ---- design from targets ----------------------------------------------------------
+
+
+def synthesize_view(texts: Mapping[str, str], targets: Mapping[str, str]) -> dict[str, Any]:
+    """A design from targets: the API's answer and the form texts that load it."""
+    problems: list[dict[str, str]] = []
+    values: dict[str, Any] = {"topology": targets.get("topology", "") or "common-emitter"}
+    for name, unit, optional in (
+        ("f", "Hz", False),
+        ("Vcc", "V", False),
+        ("IC", "A", False),
+        ("gain", "", True),
+        ("L", "H", True),
+        ("ratio", "", True),
+    ):
+        v = _quantity(name, targets.get(name, ""), unit, problems, optional=optional)
+        if v is not None:
+            values[name] = v
+    req = _validated(SynthesizeRequest, problems, **values)
+    answer = _core(post_synthesize, req).model_dump(mode="json")
+    design = Design.model_validate(answer["design"])
+    shown = {
+        "f_osc": _figure(answer["f_osc"], display(answer["f_osc"], "Hz")),
+        "gain": _figure(answer["gain"], display(answer["gain"], "")),
+    }
+    return {
+        "result": answer,
+        "shown": shown,
+        "fields": texts_for_design(design, texts),
+    }
+
+
+# ---- bench readings ---------------------------------------------------------------
+
+
+def reconcile_view(texts: Mapping[str, str], bench: Mapping[str, str]) -> dict[str, Any]:
+    """The bench-readings panel: fitted unknowns, readings nominal vs as built, the
+    explanation, and the form texts of the as-built design."""
+    design = _design(texts)
+    problems: list[dict[str, str]] = []
+    f = _quantity("f_measured", bench.get("f_measured", ""), "Hz", problems)
+    amp = _quantity("amplitude", bench.get("amplitude", ""), "V", problems, optional=True)
+    param = bench.get("threshold_param", "").strip()
+    values: dict[str, Any] = {"design": design, "f_measured": f, "amplitude": amp}
+    value_text_ = bench.get("threshold_value", "")
+    if param:
+        unit = BY_NAME[param].unit if param in BY_NAME else ""
+        v = _quantity("threshold_value", value_text_, unit, problems)
+        values["threshold"] = {"param": param, "value": v}
+    elif value_text_.strip():
+        problems.append(_problem("threshold_param", "choose the part the value is for", "missing"))
+    req = _validated(ReconcileRequest, problems, **values)
+    answer = _core(post_reconcile, req).model_dump(mode="json")
+    shown: dict[str, dict[str, Any]] = {}
+    rows = []
+    for i, p in enumerate(answer["fitted"]):
+        base = f"fitted.{i}"
+        shown[f"{base}.name"] = _figure(p["name"], p["name"])
+        shown[f"{base}.nominal"] = _figure(p["nominal"], display(p["nominal"], ""))
+        shown[f"{base}.fitted"] = _figure(p["fitted"], display(p["fitted"], ""))
+        shown[f"{base}.change"] = _figure(
+            p["change"], f"{100 * p['change']:+.2f} % ± {100 * p['sigma']:.2f} %"
+        )
+        shown[f"{base}.determined"] = _figure(
+            p["determined"], "determined" if p["determined"] else "not determined by these readings"
+        )
+        rows.append(base)
+    reading_rows = []
+    for key, r in answer["readings"].items():
+        unit = {"f": "Hz", "amplitude": "V"}.get(key, BY_NAME[key].unit if key in BY_NAME else "")
+        base = f"readings.{key}"
+        for col in ("bench", "nominal_model", "as_built_model"):
+            shown[f"{base}.{col}"] = _figure(r[col], display(r[col], unit))
+        reading_rows.append({"path": base, "label": key})
+    shown["explanation"] = _figure(answer["explanation"], answer["explanation"])
+    d = answer["evidence_dAIC"]
+    shown["evidence_dAIC"] = _figure(d, "—" if d is None else f"{d:.1f}")
+    as_built = Design.model_validate(answer["as_built"])
+    return {
+        "result": answer,
+        "shown": shown,
+        "rows": rows,
+        "readings": reading_rows,
+        "fields": texts_for_design(as_built, texts),
+        "query": query_string(texts),
+    }
+
+
+def tool_context() -> dict[str, Any]:
+    """What the panels' inputs offer (choices, defaults shown as placeholders)."""
+    from app.analysis.spread import DEFAULT_SAMPLES
+    from app.analysis.startup import MARGINAL_BELOW
+    from app.analysis.synthesis import DEFAULT_GAIN
+    from app.design import PARAMETERS
+    from app.preferred import SERIES
+
+    return {
+        "samples": DEFAULT_SAMPLES,
+        "margin": display(MARGINAL_BELOW, ""),
+        "gain": display(DEFAULT_GAIN, ""),
+        "percentiles": ["p1", "p5", "p50", "p95", "p99"],
+        "series": list(SERIES),
+        "topologies": choices(BY_NAME["topology"]),
+        "params": list(PARAMETERS),
+    }
+
+
+#: The summary page's spread: a modest run, always the same seed (so a printed
+#: summary is reproducible), and how many ranked sensitivities it lists.
+SUMMARY_SAMPLES: Final = 500
+SUMMARY_SEED: Final = 1
+SUMMARY_TOP: Final = 3
+
+
+def summary_spread(texts: Mapping[str, str]) -> dict[str, Any] | None:
+    """The short spread section of the summary (``None`` when the design cannot be run)."""
+    try:
+        v = spread_view(texts, str(SUMMARY_SAMPLES), str(SUMMARY_SEED), "", "", "")
+    except ApiError:
+        return None
+    sp = v["result"]["spread"]
+    temps = sp["temperatures_C"]
+    return {
+        "shown": v["shown"],
+        "range": f"{display(min(temps), '°C')} to {display(max(temps), '°C')}",
+        "top": v["sensitivity_rows"][:SUMMARY_TOP],
+    }

@@ -1,0 +1,136 @@
+"""The sheet's on-demand panels over HTTP (app/web/routers/tools.py, app/web/tools.py):
+the answers are the JSON API's, with display texts, and bad input names its field."""
+
+from __future__ import annotations
+
+import pytest
+
+from app.design import Design
+from app.web.fields import document
+from app.web.samples import DEFAULT_SAMPLE, sample_texts
+from app.web.tools import texts_for_design, value_text
+
+TEXTS = sample_texts()[DEFAULT_SAMPLE]
+#: Few samples: these tests check the plumbing, not the statistics.
+SAMPLES = 200
+
+
+def test_spread_is_the_api_answer_with_texts(client):
+    r = client.post(
+        "/api/sheet/spread",
+        json={"fields": TEXTS, "samples": str(SAMPLES), "seed": "7", "window_low": "950k",
+              "window_high": "1.05M"},
+    )  # fmt: skip
+    assert r.status_code == 200
+    got = r.json()
+    api = client.post(
+        "/api/spread",
+        json={"design": document(TEXTS), "samples": SAMPLES, "seed": 7,
+              "window": {"low": 950e3, "high": 1.05e6}},
+    ).json()  # fmt: skip
+    assert got["result"] == api
+    shown = got["shown"]
+    assert shown["spread.yield_start"]["raw"] == repr(api["spread"]["yield_start"])
+    assert shown["spread.yield_start"]["text"].endswith(" %")
+    assert shown["spread.f_osc.p50"]["text"].endswith("Hz")
+    assert set(got["temperatures"]) == set(api["spread"]["yield_by_temperature"])
+    h = got["curves"]["f_hist"]
+    assert len(h["x"]) == len(h["count"]) == len(api["spread"]["f_histogram"]["counts"])
+    assert h["window"] == [950e3, 1.05e6]
+    assert got["curves"]["sensitivity"]["parts"][0] == api["spread"]["sensitivities"][0]["part"]
+
+
+@pytest.mark.parametrize(
+    ("body", "field"),
+    [
+        ({"samples": "lots"}, "samples"),
+        ({"samples": "0"}, "samples"),
+        ({"samples": "100001"}, "samples"),
+        ({"seed": "-1"}, "seed"),
+        ({"window_low": "1M"}, "window_high"),
+        ({"window_low": "2M", "window_high": "1M"}, "window_high"),
+        ({"window_low": "1 kF", "window_high": "2M"}, "window_low"),
+        ({"margin": "0.5"}, "margin"),
+    ],
+)
+def test_spread_bad_input_names_its_field(client, body, field):
+    r = client.post("/api/sheet/spread", json={"fields": TEXTS, **body})
+    assert r.status_code == 422
+    assert r.json()["problems"][0]["field"] == field
+
+
+def test_a_design_with_problems_is_refused_naming_the_field(client):
+    r = client.post("/api/sheet/spread", json={"fields": {**TEXTS, "L": "47uF"}})
+    assert r.status_code == 422
+    assert r.json()["problems"][0]["field"] == "fields.tank.L"
+
+
+def test_snap_previews_and_gives_texts(client):
+    texts = {**TEXTS, "RC": "1234"}
+    r = client.post("/api/sheet/snap", json={"fields": texts, "series": "E12"})
+    assert r.status_code == 200
+    got = r.json()
+    assert "RC" in got["changed"]
+    assert got["fields"]["RC"] == "1.2k"  # IEC 60063 E12: 1.0 1.2 1.5 ...
+    kept = [k for k in texts if k not in got["changed"]]
+    assert all(got["fields"][k] == texts[k] for k in kept)  # the rest as typed
+    assert got["result"]["f_after"] == pytest.approx(
+        client.post("/api/analyze", json=document(got["fields"])).json()["loop"]["f_osc"],
+        rel=1e-12,
+    )
+    bad = client.post("/api/sheet/snap", json={"fields": TEXTS, "series": "E7"})
+    assert bad.status_code == 422 and bad.json()["problems"][0]["field"] == "series"
+
+
+def test_synthesize_gives_form_texts_of_the_design(client):
+    r = client.post(
+        "/api/sheet/synthesize",
+        json={"fields": TEXTS, "topology": "common-emitter", "f": "1M", "Vcc": "12", "IC": "1m"},
+    )
+    assert r.status_code == 200
+    got = r.json()
+    design = Design.model_validate(document(got["fields"]))
+    assert design == Design.model_validate(got["result"]["design"])
+    assert got["result"]["reasons"]
+    for body, field in (({"f": "1 MF", "Vcc": "12", "IC": "1m"}, "f"), ({"f": "1M"}, "Vcc")):
+        bad = client.post("/api/sheet/synthesize", json={"fields": TEXTS, **body})
+        assert bad.status_code == 422 and bad.json()["problems"][0]["field"] == field
+
+
+def test_reconcile_gives_explanation_and_as_built_texts(client):
+    r = client.post("/api/sheet/reconcile", json={"fields": TEXTS, "f_measured": "1.03M"})
+    assert r.status_code == 200
+    got = r.json()
+    assert got["shown"]["explanation"]["text"] == got["result"]["explanation"]
+    built = Design.model_validate(document(got["fields"]))
+    assert built == Design.model_validate(got["result"]["as_built"])
+    for body, field in (
+        ({"f_measured": ""}, "f_measured"),
+        ({"f_measured": "1M", "threshold_param": "RC"}, "threshold_value"),
+        ({"f_measured": "1M", "threshold_value": "180"}, "threshold_param"),
+        ({"f_measured": "1M", "threshold_param": "XY", "threshold_value": "1"}, "threshold.param"),
+    ):
+        bad = client.post("/api/sheet/reconcile", json={"fields": TEXTS, **body})
+        assert bad.status_code == 422, body
+        assert bad.json()["problems"][0]["field"] == field
+
+
+@pytest.mark.parametrize("value", [2.2e-9, 180e3, 1e-14, 6.734e-15, 0.1, 123456.789, 25.0])
+def test_value_text_reads_back_exactly(value):
+    from app.units import parse_quantity
+
+    assert parse_quantity(value_text(value)) == value
+
+
+def test_texts_for_design_keeps_unchanged_texts_and_tolerances():
+    texts = {**TEXTS, "tol_R": "0.02", "L": "10 uH"}
+    design = Design.model_validate(document(texts))
+    assert texts_for_design(design, texts) == texts
+
+
+def test_a_design_that_does_not_start_still_answers(client):
+    r = client.post(
+        "/api/sheet/spread", json={"fields": {**TEXTS, "RC": "10"}, "samples": str(SAMPLES)}
+    )
+    assert r.status_code == 200
+    assert r.json()["shown"]["spread.yield_start"]["raw"] == "0.0"
