@@ -833,7 +833,7 @@ function plotSens(s) {
         barmode: "group",
         margin: { l: 70, r: 16, t: 24, b: 40 },
         xaxis: { title: { text: "|S|·tolerance (%)" } },
-        yaxis: { autorange: "reversed", automargin: true },
+        yaxis: { type: "category", dtick: 1, autorange: "reversed", automargin: true },
       }),
       PLOT_CONFIG,
     ),

@@ -43,6 +43,8 @@ KEPT_GROUPS: Final = ("tolerances",)
 MAX_DIGITS: Final = 17
 #: Sensitivities listed on the sheet (ranked; the plot shows them all).
 SENSITIVITY_ROWS: Final = 8
+#: Parts in the sensitivity plot (the largest shares; the rest are too small to see).
+SENSITIVITY_PLOT: Final = 10
 #: Worst cases listed on the sheet.
 WORST_ROWS: Final = 3
 
@@ -249,7 +251,7 @@ def spread_view(
         put(f"{base}.gain", row["gain"], display(row["gain"], ""))
         put(f"{base}.f_osc", row["f_osc"], display(row["f_osc"], "Hz"))
         worst_rows.append(base)
-    sens = sp["sensitivities"]
+    sens = sp["sensitivities"][:SENSITIVITY_PLOT]
     curves = {
         "f_hist": {**_centres(sp["f_histogram"]), "window": window},
         "gain_hist": {**_centres(sp["gain_histogram"]), "margin": sp["margin"]},

@@ -134,3 +134,24 @@ def test_a_design_that_does_not_start_still_answers(client):
     )
     assert r.status_code == 200
     assert r.json()["shown"]["spread.yield_start"]["raw"] == "0.0"
+
+
+def test_summary_has_the_spread_section(client):
+    from app.web.tools import SUMMARY_SAMPLES, SUMMARY_SEED
+
+    page = client.get("/summary?design=clapp-clock-1M")
+    assert page.status_code == 200
+    want = client.post(
+        "/api/sheet/spread",
+        json={
+            "fields": sample_texts()["clapp-clock-1M"],
+            "samples": str(SUMMARY_SAMPLES),
+            "seed": str(SUMMARY_SEED),
+        },
+    ).json()["shown"]
+    for path in ("spread.yield_start", "spread.f_osc.p5", "spread.sensitivities.2.part"):
+        assert f'data-field="{path}" data-value="{want[path]["raw"]}"' in page.text
+    assert "spread.sensitivities.3.part" not in page.text  # the top three only
+    # a design that cannot be computed has no spread section, and no error
+    bad = client.get("/summary?design=clapp-clock-1M&L=47uF")
+    assert bad.status_code == 200 and "spread.yield_start" not in bad.text
