@@ -7,7 +7,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed-stamp
 
-.PHONY: run test bench format lint clean
+.PHONY: run test bench fuzz load format lint clean
 
 $(STAMP): pyproject.toml
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -27,6 +27,17 @@ test: $(STAMP)
 ## Speed figures (medians and ratios to the targets); prints, never fails on time.
 bench: $(STAMP)
 	$(BIN)/python -m app.bench
+
+## The fuzz tests with a larger budget: Schemathesis with every field's boundary
+## cases and 200 examples per operation, Hypothesis at 10x (several minutes).
+fuzz: $(STAMP)
+	RINGWISE_FUZZ_EXAMPLES=200 RINGWISE_FUZZ_COVERAGE=1 RINGWISE_FUZZ_SCALE=10 \
+		$(BIN)/python -m pytest -q tests/web/test_fuzz_api.py tests/web/test_fuzz_core.py
+
+## Load benchmark on 127.0.0.1: 200 clients for 30 s with heavy requests mixed in;
+## prints requests/s, p50/p99 of analyze and the errors (a benchmark, never fails on time).
+load: $(STAMP)
+	$(BIN)/python -m app.web.load
 
 ## Rewrite the code in the project's format and apply safe lint fixes.
 format: $(STAMP)
