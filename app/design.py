@@ -337,6 +337,40 @@ def _section_of(name: str) -> str:
         raise ValueError(f"unknown parameter {name!r}; known: {known}") from None
 
 
+def _upgrade_v1(data: dict[str, Any]) -> dict[str, Any]:
+    """Version 1 is the current format: nothing to change."""
+    return data
+
+
+#: One step per version, each turning a document of that version into the next
+#: (the last one into the current format).  A new version adds a step here and
+#: keeps every older file loading.
+UPGRADES: Final = {1: _upgrade_v1}
+
+
+class FormatVersionError(ValueError):
+    """A design document of a version this program does not know."""
+
+
 def load_design(data: dict[str, Any]) -> Design:
-    """Validate a design document (any supported version) into a :class:`Design`."""
+    """Validate a design document of any supported version into a :class:`Design`."""
+    version = data.get("version", VERSION) if isinstance(data, dict) else None
+    if version not in UPGRADES:
+        known = ", ".join(str(v) for v in UPGRADES)
+        raise ValidationError.from_exception_data(
+            "Design",
+            [
+                InitErrorDetails(
+                    type=PydanticCustomError(
+                        "unknown_version",
+                        "version {version!r} is not a known format version ({known})",
+                        {"version": version, "known": known},
+                    ),
+                    loc=("version",),
+                    input=version,
+                )
+            ],
+        )
+    for step in sorted(v for v in UPGRADES if v >= version):
+        data = UPGRADES[step](data)
     return Design.model_validate(data)

@@ -117,3 +117,16 @@ def test_sample_export_import_roundtrip(path) -> None:
     again = Design.model_validate(json.loads(d.model_dump_json()))
     assert again == d
     assert again.model_dump_json() == d.model_dump_json()
+
+
+def test_versioned_loader_reads_version_1_and_names_unknown_versions() -> None:
+    from app.design import load_design
+
+    data = copy.deepcopy(BASE_CE)
+    data["version"] = 1
+    assert load_design(data) == Design.model_validate(data)
+    data["version"] = 99
+    with pytest.raises(ValidationError) as info:
+        load_design(data)
+    [problem] = describe_validation_error(info.value)
+    assert problem["field"] == "version" and "99" in problem["message"]

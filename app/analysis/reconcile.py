@@ -50,6 +50,8 @@ Q_PRIOR: Final = 0.3
 #: fraction of its prior.
 DETERMINED: Final = 0.5
 UNKNOWNS: Final = ("C_scale", "Q_L", "beta")
+#: Smallest frequency reading accepted, Hz (far below any design here).
+MIN_READING_HZ: Final = 1.0
 #: Explanations tried (indices into UNKNOWNS).
 SUBSETS: Final = ((0,), (0, 1), (0, 2), (0, 1, 2))
 #: Akaike's penalty per fitted unknown; ΔAIC over 10 is strong evidence, 4-10
@@ -121,8 +123,8 @@ def reconcile(
     amplitude: float | None = None,
 ) -> Reconciled:
     """Fit C scale, Q_L and β to the bench readings; the as-built design and the verdict."""
-    if not f_measured > 0:
-        raise ReconcileError(f"f_measured must be positive, got {f_measured}")
+    if not f_measured >= MIN_READING_HZ:
+        raise ReconcileError(f"f_measured must be at least {MIN_READING_HZ:g} Hz, got {f_measured}")
     th_param = threshold[0] if threshold else None
     if th_param is not None:
         try:

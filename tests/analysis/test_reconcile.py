@@ -40,7 +40,7 @@ def test_frequency_alone_is_explained_by_capacitance() -> None:
 
 def test_bad_readings_are_refused() -> None:
     design = _clapp()
-    with pytest.raises(ReconcileError, match="positive"):
+    with pytest.raises(ReconcileError, match="at least 1 Hz"):
         reconcile(design, -1.0)
     with pytest.raises(ReconcileError, match="unknown parameter 'C3x'"):
         reconcile(design, 1e6, ("C3x", 1.0))

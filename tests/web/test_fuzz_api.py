@@ -114,11 +114,6 @@ def test_non_text_preset_is_422(client, sample, preset):
     assert client.post("/api/analyze", json=sample).status_code == 422
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="web/core: ReconcileRequest.f_measured has gt=0 but no finite lower bound; a "
-    "subnormal value reaches scipy's least squares (RuntimeWarning, then a scipy message)",
-)
 def test_subnormal_f_measured_is_refused(client, sample):
     r = client.post("/api/reconcile", json={"design": sample, "f_measured": 5e-324})
     assert r.status_code == 422

@@ -31,8 +31,8 @@ class _In(BaseModel):
 
 
 class Window(_In):
-    low: float = Field(gt=0, le=1e10, description="Lowest acceptable f_osc, Hz")
-    high: float = Field(gt=0, le=1e10, description="Highest acceptable f_osc, Hz")
+    low: float = Field(ge=1e-3, le=1e10, description="Lowest acceptable f_osc, Hz")
+    high: float = Field(ge=1e-3, le=1e10, description="Highest acceptable f_osc, Hz")
 
 
 class SpreadRequest(_In):
@@ -116,15 +116,15 @@ def post_synthesize(req: SynthesizeRequest) -> SynthesisOut:
 
 class ThresholdReading(_In):
     param: Literal[tuple(PARAMETERS)]  # type: ignore[valid-type]
-    value: float = Field(gt=0, le=1e12, description="Value at which it started (SI)")
+    value: float = Field(ge=1e-15, le=1e12, description="Value at which it started (SI)")
 
 
 class ReconcileRequest(_In):
     design: Design
-    f_measured: float = Field(gt=0, le=1e10, description="Measured frequency, Hz")
+    f_measured: float = Field(ge=1.0, le=1e10, description="Measured frequency, Hz")
     threshold: ThresholdReading | None = None
     amplitude: float | None = Field(
-        default=None, gt=0, le=1e4, description="Measured amplitude at the output node, V"
+        default=None, ge=1e-6, le=1e4, description="Measured amplitude at the output node, V"
     )
 
 
