@@ -41,6 +41,10 @@ from app.web.view import _figure, query_string
 KEPT_GROUPS: Final = ("tolerances",)
 #: Significant digits tried, fewest first, for the text of a value the core chose.
 MAX_DIGITS: Final = 17
+#: Smallest magnitude a panel's quantity may have: below every real reading or
+#: part (I_S is some 1e-15 A) and far above the subnormal floats that make the
+#: core's divisions overflow.
+SMALLEST: Final = 1e-30
 #: Sensitivities listed on the sheet (ranked; the plot shows them all).
 SENSITIVITY_ROWS: Final = 8
 #: Parts in the sensitivity plot (the largest shares; the rest are too small to see).
@@ -81,10 +85,14 @@ def _quantity(
             problems.append(_problem(name, "is required", "missing"))
         return None
     try:
-        return parse_quantity(text, unit)
+        value = parse_quantity(text, unit)
     except UnitError as err:
         problems.append(_problem(name, str(err)))
         return None
+    if 0 < abs(value) < SMALLEST:
+        problems.append(_problem(name, f"{text!r} is too small (below {SMALLEST:g})"))
+        return None
+    return value
 
 
 def _integer(name: str, text: str, problems: list) -> int | None:

@@ -155,3 +155,17 @@ def test_summary_has_the_spread_section(client):
     # a design that cannot be computed has no spread section, and no error
     bad = client.get("/summary?design=clapp-clock-1M&L=47uF")
     assert bad.status_code == 200 and "spread.yield_start" not in bad.text
+
+
+@pytest.mark.parametrize(
+    ("url", "body", "field"),
+    [
+        ("/api/sheet/reconcile", {"f_measured": "5e-324"}, "f_measured"),
+        ("/api/sheet/reconcile", {"f_measured": "1M", "amplitude": "1e-320"}, "amplitude"),
+        ("/api/sheet/spread", {"window_low": "1e-320", "window_high": "1M"}, "window_low"),
+    ],
+)
+def test_subnormal_texts_are_refused_naming_the_field(client, url, body, field):
+    r = client.post(url, json={"fields": TEXTS, **body})
+    assert r.status_code == 422
+    assert r.json()["problems"][0]["field"] == field
