@@ -141,7 +141,8 @@ def test_job_runs_to_done_with_progress(client, sample):
     )
     assert r.status_code == 202
     job = r.json()
-    assert job["state"] == "running" and job["progress"] == 0.0
+    # just started: the solver may already have reported a little progress
+    assert job["state"] == "running" and 0.0 <= job["progress"] < 1.0
     assert len(job["id"]) >= 24  # 18 random bytes, URL-safe base64
     done = _wait(client, job["id"])
     assert done["state"] == "done" and done["progress"] == 1.0
