@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import functools
+from typing import Final
+
 from app.analysis.budget import loop_budget
 from app.analysis.checks import Finding, rule_checks, squegging_risk
 from app.analysis.describing import describing_function
@@ -31,9 +34,31 @@ from app.result import (
     WarningOut,
 )
 
+#: Analyses remembered, keyed by the design's canonical JSON: the sheet asks
+#: again for designs it has just seen (a slider moved back, an undo, another tab).
+CACHE_SIZE: Final = 256
+
 
 def analyze(design: Design) -> Result:
-    """Operating point, loop, poles, budget, threshold, verdict and warnings."""
+    """Operating point, loop, poles, budget, threshold, verdict and warnings.
+
+    The analysis is a pure function of the design, so results are remembered
+    for the last ``CACHE_SIZE`` designs; each caller gets its own copy.
+    """
+    return _analyze_json(design.model_dump_json()).model_copy(deep=True)
+
+
+def forget() -> None:
+    """Drop the remembered analyses (benchmarks measure the work itself)."""
+    _analyze_json.cache_clear()
+
+
+@functools.lru_cache(maxsize=CACHE_SIZE)
+def _analyze_json(design_json: str) -> Result:
+    return _analyze(Design.model_validate_json(design_json))
+
+
+def _analyze(design: Design) -> Result:
     s = solve(design)
     op, hp = s.op, s.hybrid
     f_osc = s.f_osc

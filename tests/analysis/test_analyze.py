@@ -49,3 +49,11 @@ def test_ideal_gain_exceeds_full_gain_with_losses(base_ce) -> None:
     r = analyze(base_ce)
     assert r.loop.gain < r.loop.gain_ideal
     assert r.loop.Q_loaded > 0 and r.loop.phase_slope < 0
+
+
+def test_remembered_results_are_equal_and_independent(base_ce) -> None:
+    a = analyze(base_ce)
+    b = analyze(base_ce)
+    assert a == b and a is not b
+    a.loop.budget.clear()  # a caller changing its copy changes nothing remembered
+    assert analyze(base_ce) == b
