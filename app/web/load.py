@@ -28,6 +28,7 @@ import time
 from dataclasses import dataclass, field
 from typing import Any, Final
 
+from app.units import parse_quantity
 from app.web.paths import ROOT, SAMPLES_DIR
 
 DEFAULT_CLIENTS: Final = 200
@@ -170,6 +171,7 @@ async def _run(url: str, clients: int, seconds: float, max_requests: int, heavy:
     import httpx
 
     design = json.loads((SAMPLES_DIR / f"{SAMPLE}.json").read_text(encoding="utf-8"))
+    base_RC = parse_quantity(design["bias"]["RC"], "Ω")
     sweep = {"design": design, "param": "RC", "start": 10, "stop": 1e4}
     sweep["points"] = HEAVY_SWEEP_POINTS
     simulate = {"design": design, "cycles": HEAVY_CYCLES, "points": HEAVY_POINTS}
@@ -190,7 +192,12 @@ async def _run(url: str, clients: int, seconds: float, max_requests: int, heavy:
 
         async def light() -> None:
             while more():
-                await _one(client, stats, "analyze", "/api/analyze", design)
+                # Every request a design not seen before (RC moved a little), as
+                # many users editing would send: the server's memory of recent
+                # analyses must not flatter the figures.
+                edited = json.loads(json.dumps(design))
+                edited["bias"]["RC"] = base_RC * (1.0 + 1e-4 * sent)
+                await _one(client, stats, "analyze", "/api/analyze", edited)
 
         async def heavy_client() -> None:
             while more():
