@@ -30,10 +30,11 @@ import numpy as np
 from scipy import constants
 
 from app.analysis.loop import find_oscillation
-from app.analysis.operating import solve
+from app.analysis.operating import Solved, solve
 from app.analysis.startup import MARGINAL_BELOW
 from app.circuit.mna import (
     LinearSystem,
+    Patterns,
     assemble_batch,
     incidence,
     linear_patterns,
@@ -144,12 +145,25 @@ class Batch:
     converged: np.ndarray
 
 
-def analyse_batch(design: Design, vals: dict[str, np.ndarray], T_C: float) -> Batch:
+@dataclass(frozen=True)
+class _Prepared:
+    """What every batch of one design shares: the nominal solve and the unit stamps."""
+
+    nominal: Solved
+    patterns: Patterns
+
+
+def _prepare(design: Design) -> _Prepared:
+    return _Prepared(solve(design), linear_patterns(build(design)))
+
+
+def analyse_batch(
+    design: Design, vals: dict[str, np.ndarray], T_C: float, prepared: _Prepared | None = None
+) -> Batch:
     """The small-signal analysis of every sample at ``T_C``, in one batch."""
     n_samples = len(vals["L"])
-    nominal = solve(design)
-    netlist = build(design)
-    pat = linear_patterns(netlist)
+    prepared = prepared or _prepare(design)
+    nominal, pat = prepared.nominal, prepared.patterns
     C_s = 1.0 / sum(1.0 / vals[c] for c in ("C1", "C2", "C3") if c in vals)
     w0 = 1.0 / np.sqrt(vals["L"] * C_s)
     stamp: dict[tuple[str, str], np.ndarray] = {}
@@ -257,7 +271,10 @@ def monte_carlo(
     if window is not None and not 0 < window[0] < window[1]:
         raise SpreadError(f"the frequency window must satisfy 0 < low < high, got {window}")
     draws = draw(design, samples, seed)
-    batches = [analyse_batch(design, values_at(design, draws, T), T) for T in draws.temperatures]
+    prepared = _prepare(design)
+    batches = [
+        analyse_batch(design, values_at(design, draws, T), T, prepared) for T in draws.temperatures
+    ]
     gains = np.stack([b.gain for b in batches])  # (corners, samples)
     freqs = np.stack([b.f_osc for b in batches])
     active = np.stack([(b.VCE > 0.2) & (b.IC > 0) & b.converged for b in batches])
@@ -284,7 +301,7 @@ def monte_carlo(
     band = []
     lo, hi = design.tolerances.T_min, design.tolerances.T_max
     for T in np.linspace(lo, hi, TEMPERATURE_STEPS if hi > lo else 1):
-        b = analyse_batch(design, values_at(design, band_draws, float(T)), float(T))
+        b = analyse_batch(design, values_at(design, band_draws, float(T)), float(T), prepared)
         f = b.f_osc[np.isfinite(b.f_osc)]
         if f.size:
             p5, p50, p95 = np.percentile(f, (5, 50, 95))

@@ -44,7 +44,7 @@ from typing import Final
 import numpy as np
 
 from app.analysis.operating import Solved, solve
-from app.circuit.mna import LinearSystem, _stamp_pair
+from app.circuit.mna import LinearSystem, _stamp_pair, incidence
 from app.circuit.npn import junction_currents
 from app.circuit.topologies import T1
 from app.design import Design, Topology
@@ -164,12 +164,9 @@ class _Stepper:
         if missing:
             raise ValueError(f"transistor terminals at ground are not supported: {missing}")
         self.ic, self.ib, self.ie = lay.node[dev.c], lay.node[dev.b], lay.node[dev.e]
-        n = lay.size
-        self.P = np.zeros((n, 2))
-        self.P[self.ic, 0] += 1.0  # I_C into the collector
-        self.P[self.ie, 0] -= 1.0
-        self.P[self.ib, 1] += 1.0  # I_B into the base
-        self.P[self.ie, 1] -= 1.0
+        inc = incidence(lay, dev)
+        # columns: where I_C and I_B go (the same incidence as every other analysis)
+        self.P = np.column_stack((inc.P_C, inc.P_B))
         self._cache: dict[float, tuple] = {}
 
     def controls(self, x: np.ndarray) -> tuple[float, float]:
