@@ -26,7 +26,7 @@ test: $(STAMP)
 
 ## Speed figures (medians and ratios to the targets); prints, never fails on time.
 bench: $(STAMP)
-	$(BIN)/python -m app.bench
+	$(BIN)/python -m ringwise.bench
 
 ## The fuzz tests with a larger budget: Schemathesis with every field's boundary
 ## cases and 200 examples per operation, Hypothesis at 10x (several minutes).
@@ -37,7 +37,7 @@ fuzz: $(STAMP)
 ## Load benchmark on 127.0.0.1: 200 clients for 30 s with heavy requests mixed in;
 ## prints requests/s, p50/p99 of analyze and the errors (a benchmark, never fails on time).
 load: $(STAMP)
-	$(BIN)/python -m app.web.load
+	$(BIN)/python -m ringwise.web.load
 
 ## Rewrite the code in the project's format and apply safe lint fixes.
 format: $(STAMP)

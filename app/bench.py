@@ -1,4 +1,4 @@
-"""Speed figures: ``make bench`` or ``python -m app.bench``.
+"""Speed figures: ``make bench`` or ``python -m ringwise.bench``.
 
 Prints medians and their ratio to the project's targets. It never fails on
 time: speed goals are met here, not asserted in tests.
@@ -13,10 +13,10 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Final
 
-from app.analysis.analyze import _analyze, analyze
-from app.analysis.threshold import sweep
-from app.circuit.topologies import GAIN_SETTER
-from app.design import Design, get_param
+from ringwise.analysis.analyze import _analyze, analyze
+from ringwise.analysis.threshold import sweep
+from ringwise.circuit.topologies import GAIN_SETTER
+from ringwise.design import Design, get_param
 
 SAMPLES: Final = Path(__file__).resolve().parent.parent / "sample_designs"
 #: Targets, seconds.
@@ -56,12 +56,12 @@ def _line(label: str, seconds: float, target: float) -> str:
 
 
 def bench_core() -> list[str]:
-    from app.analysis.budget import loop_budget
-    from app.analysis.describing import describing_function
-    from app.analysis.operating import solve
-    from app.analysis.poles import natural_frequencies
-    from app.analysis.stability import stability
-    from app.analysis.threshold import find_threshold
+    from ringwise.analysis.budget import loop_budget
+    from ringwise.analysis.describing import describing_function
+    from ringwise.analysis.operating import solve
+    from ringwise.analysis.poles import natural_frequencies
+    from ringwise.analysis.stability import stability
+    from ringwise.analysis.threshold import find_threshold
 
     lines = ["analysis core (median CPU time of 30 runs each):"]
     designs = [
@@ -105,8 +105,8 @@ def bench_core() -> list[str]:
 
 def bench_transient() -> list[str]:
     """300-cycle transients of every sample against SciPy's Radau on the same equations."""
-    from app.analysis.reference import reference_run
-    from app.analysis.transient import _crossings, run
+    from ringwise.analysis.reference import reference_run
+    from ringwise.analysis.transient import _crossings, run
 
     lines = [
         f"transient, {TRANSIENT_CYCLES} cycles (wall time, one run each) vs scipy solve_ivp Radau "
@@ -136,8 +136,8 @@ def bench_transient() -> list[str]:
 
 def bench_spread() -> list[str]:
     """10 000 Monte Carlo samples at three temperature corners, against a Python loop."""
-    from app.analysis.operating import solve
-    from app.analysis.spread import draw, monte_carlo, sample_design
+    from ringwise.analysis.operating import solve
+    from ringwise.analysis.spread import draw, monte_carlo, sample_design
 
     d = Design.model_validate(
         json.loads(sorted(SAMPLES.glob("*.json"))[0].read_text(encoding="utf-8"))
@@ -166,7 +166,7 @@ def bench_spread() -> list[str]:
 
 def bench_web() -> list[str]:
     try:
-        from app.web.bench import bench_web as web
+        from ringwise.web.bench import bench_web as web
     except ImportError:
         return ["web layer: not present"]
     figures = web()

@@ -14,18 +14,18 @@ from typing import Any
 
 from pydantic import ValidationError
 
-from app.analysis.analyze import analyze
-from app.analysis.reconcile import ReconcileError, reconcile
-from app.analysis.sensitivity import sensitivities
-from app.analysis.spread import SpreadError, spread_result
-from app.analysis.synthesis import SynthesisError, synthesize
-from app.analysis.threshold import ParameterError, find_threshold, sweep
-from app.analysis.transient import MAX_CYCLES, SimulationError, simulate
-from app.circuit.topologies import GAIN_SETTER
-from app.design import Design, Topology
-from app.errors import describe_validation_error
-from app.preferred import SeriesError, snap_design
-from app.units import UnitError, format_si, parse_quantity
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.reconcile import ReconcileError, reconcile
+from ringwise.analysis.sensitivity import sensitivities
+from ringwise.analysis.spread import SpreadError, spread_result
+from ringwise.analysis.synthesis import SynthesisError, synthesize
+from ringwise.analysis.threshold import ParameterError, find_threshold, sweep
+from ringwise.analysis.transient import MAX_CYCLES, SimulationError, simulate
+from ringwise.circuit.topologies import GAIN_SETTER
+from ringwise.design import Design, Topology
+from ringwise.errors import describe_validation_error
+from ringwise.preferred import SeriesError, snap_design
+from ringwise.units import UnitError, format_si, parse_quantity
 
 EXIT_BAD_INPUT = 2
 
@@ -202,7 +202,7 @@ def cmd_reconcile(args: argparse.Namespace) -> None:
 
 
 def cmd_serve(args: argparse.Namespace) -> None:
-    from app.web.server import serve  # imported here: the core needs no web stack
+    from ringwise.web.server import serve  # imported here: the core needs no web stack
 
     serve(host=args.host, port=args.port, design=args.design)
 

@@ -3,7 +3,7 @@
 A design file is JSON (``"format": "ringwise.design"``, ``"version": 1``).
 Every value is stored in SI base units; on input a value may also be text with
 an SI prefix or an RKM code (``"2n2"``, ``"39k"``, ``"2.2 nF"``), parsed in
-:mod:`app.units`.  Physical bounds live on the fields, so a bad value is
+:mod:`ringwise.units`.  Physical bounds live on the fields, so a bad value is
 refused with a message that names the field, the value and the limit.
 """
 
@@ -22,8 +22,8 @@ from pydantic import (
 )
 from pydantic_core import InitErrorDetails, PydanticCustomError
 
-from app.presets import DEVICE_PRESETS
-from app.units import parse_quantity
+from ringwise.presets import DEVICE_PRESETS
+from ringwise.units import parse_quantity
 
 FORMAT: Final = "ringwise.design"
 VERSION: Final = 1

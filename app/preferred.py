@@ -13,8 +13,8 @@ from typing import Final
 
 import eseries
 
-from app.analysis.operating import solve
-from app.design import Design, get_param, with_param
+from ringwise.analysis.operating import solve
+from ringwise.design import Design, get_param, with_param
 
 SERIES: Final = {
     "E6": eseries.E6,

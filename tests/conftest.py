@@ -10,7 +10,7 @@ from typing import Any
 
 import pytest
 
-from app.design import Design
+from ringwise.design import Design
 
 SAMPLES = Path(__file__).resolve().parent.parent / "sample_designs"
 
@@ -69,8 +69,8 @@ def all_finite(value: Any) -> bool:
 
 def at_gain(design: Design, target: float, lo: float = 10.0, hi: float = 10e3) -> Design:
     """``design`` with RC bisected (on a log scale) to give the requested loop gain."""
-    from app.analysis.operating import solve
-    from app.design import with_param
+    from ringwise.analysis.operating import solve
+    from ringwise.design import with_param
 
     a, b = math.log(lo), math.log(hi)
     for _ in range(60):

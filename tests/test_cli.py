@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pytest
 
-from app.cli import EXIT_BAD_INPUT, main
+from ringwise.cli import EXIT_BAD_INPUT, main
 from tests.conftest import sample_paths
 
 

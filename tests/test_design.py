@@ -8,9 +8,9 @@ import json
 import pytest
 from pydantic import ValidationError
 
-from app.design import PARAMETERS, Design, get_param, with_param
-from app.errors import describe_validation_error
-from app.presets import DEVICE_PRESETS
+from ringwise.design import PARAMETERS, Design, get_param, with_param
+from ringwise.errors import describe_validation_error
+from ringwise.presets import DEVICE_PRESETS
 from tests.conftest import BASE_CE, load_sample, sample_paths
 
 
@@ -120,7 +120,7 @@ def test_sample_export_import_roundtrip(path) -> None:
 
 
 def test_versioned_loader_reads_version_1_and_names_unknown_versions() -> None:
-    from app.design import load_design
+    from ringwise.design import load_design
 
     data = copy.deepcopy(BASE_CE)
     data["version"] = 1

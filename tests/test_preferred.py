@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from app.preferred import SeriesError, nearest, snap_design, values
+from ringwise.preferred import SeriesError, nearest, snap_design, values
 from tests.conftest import load_sample, sample_paths
 
 # IEC 60063:2015, "Preferred number series for resistors and capacitors",

@@ -6,7 +6,7 @@ import json
 
 import pytest
 
-from app.analysis.analyze import analyze
+from ringwise.analysis.analyze import analyze
 from tests.conftest import all_finite, load_sample, sample_paths
 
 

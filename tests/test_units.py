@@ -6,7 +6,7 @@ import math
 
 import pytest
 
-from app.units import UnitError, format_si, parse_quantity
+from ringwise.units import UnitError, format_si, parse_quantity
 
 
 @pytest.mark.parametrize(

@@ -5,17 +5,17 @@ from __future__ import annotations
 import functools
 from typing import Final
 
-from app.analysis.budget import loop_budget
-from app.analysis.checks import Finding, rule_checks, squegging_risk
-from app.analysis.describing import describing_function
-from app.analysis.operating import Solved, solve
-from app.analysis.poles import natural_frequencies
-from app.analysis.stability import stability
-from app.analysis.startup import fixed_bias_drive, gm_ratio, verdict
-from app.analysis.threshold import find_threshold
-from app.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, ideal_gain
-from app.design import Design
-from app.result import (
+from ringwise.analysis.budget import loop_budget
+from ringwise.analysis.checks import Finding, rule_checks, squegging_risk
+from ringwise.analysis.describing import describing_function
+from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.poles import natural_frequencies
+from ringwise.analysis.stability import stability
+from ringwise.analysis.startup import fixed_bias_drive, gm_ratio, verdict
+from ringwise.analysis.threshold import find_threshold
+from ringwise.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, ideal_gain
+from ringwise.design import Design
+from ringwise.result import (
     BudgetLineOut,
     LargeSignalOut,
     LoopOut,

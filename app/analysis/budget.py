@@ -20,11 +20,11 @@ from typing import Final
 
 import numpy as np
 
-from app.analysis.loop import find_oscillation
-from app.analysis.operating import Solved
-from app.circuit.mna import SmallSignal, restamp, small_signal
-from app.circuit.netlist import Capacitor, Inductor, Netlist, Resistor
-from app.circuit.npn import HybridPi
+from ringwise.analysis.loop import find_oscillation
+from ringwise.analysis.operating import Solved
+from ringwise.circuit.mna import SmallSignal, restamp, small_signal
+from ringwise.circuit.netlist import Capacitor, Inductor, Netlist, Resistor
+from ringwise.circuit.npn import HybridPi
 
 #: A capacitor "made a short" is multiplied by this factor.
 SHORT_FACTOR: Final = 1e4

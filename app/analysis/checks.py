@@ -11,11 +11,11 @@ import math
 from dataclasses import dataclass
 from typing import Final
 
-from app.analysis.budget import BudgetLine
-from app.analysis.dc import Region
-from app.analysis.operating import Solved
-from app.analysis.poles import PoleFigures
-from app.units import format_si
+from ringwise.analysis.budget import BudgetLine
+from ringwise.analysis.dc import Region
+from ringwise.analysis.operating import Solved
+from ringwise.analysis.poles import PoleFigures
+from ringwise.units import format_si
 
 #: The divider current should be at least this multiple of the base current.
 STIFF_DIVIDER: Final = 10.0
@@ -190,7 +190,7 @@ def squegging_risk(s: Solved, poles: PoleFigures) -> list[Finding]:
     envelope grows (1/σ) and the margin is large, the regulation overshoots:
     the transistor is starved, the oscillation dies and restarts.
     """
-    from app.analysis.transient import bias_time_constant
+    from ringwise.analysis.transient import bias_time_constant
 
     dom = poles.dominant
     if dom is None or dom.sigma <= 0 or s.gain <= SQUEG_GAIN:

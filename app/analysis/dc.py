@@ -15,15 +15,15 @@ from typing import Final
 
 import numpy as np
 
-from app.circuit.mna import (
+from ringwise.circuit.mna import (
     LinearSystem,
     device_state,
     device_voltages,
     nonlinear_residual,
 )
-from app.circuit.netlist import NPN
-from app.circuit.npn import JunctionState
-from app.errors import DesignError
+from ringwise.circuit.netlist import NPN
+from ringwise.circuit.npn import JunctionState
+from ringwise.errors import DesignError
 
 #: Newton stops when no unknown moves more than this (V or A) ...
 STEP_TOL: Final = 1e-10

@@ -40,14 +40,14 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import i0e
 
-from app.analysis.dc import DCConvergenceError, operating_point, solve_dc
-from app.analysis.loop import find_oscillation
-from app.analysis.operating import Solved
-from app.analysis.startup import fixed_bias_drive, gm_ratio
-from app.circuit.mna import LinearSystem, small_signal
-from app.circuit.netlist import NPN
-from app.circuit.npn import hybrid_pi
-from app.circuit.topologies import T1
+from ringwise.analysis.dc import DCConvergenceError, operating_point, solve_dc
+from ringwise.analysis.loop import find_oscillation
+from ringwise.analysis.operating import Solved
+from ringwise.analysis.startup import fixed_bias_drive, gm_ratio
+from ringwise.circuit.mna import LinearSystem, small_signal
+from ringwise.circuit.netlist import NPN
+from ringwise.circuit.npn import hybrid_pi
+from ringwise.circuit.topologies import T1
 
 #: Smallest V_CE the swing may reach before the estimate is called invalid
 #: (the collector runs into saturation), V; common practice, no source.

@@ -15,7 +15,7 @@ The oscillation frequency is where the phase of T crosses zero (falling) near
 the tank's resonance; the loop gain is :math:`|T|` there; the loaded Q follows
 from the phase slope, :math:`Q_{L,loaded} = (\omega_0/2)\,|d\varphi/d\omega|`.
 
-Every function here works on a :class:`~app.circuit.mna.SmallSignal` whose
+Every function here works on a :class:`~ringwise.circuit.mna.SmallSignal` whose
 matrices may carry leading batch axes (many variants of one circuit at once),
 which is how budgets and Monte Carlo runs stay vectorised.
 
@@ -34,7 +34,7 @@ from typing import Final
 
 import numpy as np
 
-from app.circuit.mna import SmallSignal
+from ringwise.circuit.mna import SmallSignal
 
 #: The zero-phase crossing is sought between f_ref / SPAN and f_ref * SPAN.
 SEARCH_SPAN: Final = 3.0

@@ -10,13 +10,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from app.analysis.dc import OperatingPoint, operating_point, solve_dc
-from app.analysis.loop import LoopFigures, find_oscillation
-from app.circuit.mna import LinearSystem, SmallSignal, assemble, small_signal
-from app.circuit.netlist import Netlist
-from app.circuit.npn import HybridPi, hybrid_pi
-from app.circuit.topologies import TankFigures, build, tank_figures
-from app.design import Design
+from ringwise.analysis.dc import OperatingPoint, operating_point, solve_dc
+from ringwise.analysis.loop import LoopFigures, find_oscillation
+from ringwise.circuit.mna import LinearSystem, SmallSignal, assemble, small_signal
+from ringwise.circuit.netlist import Netlist
+from ringwise.circuit.npn import HybridPi, hybrid_pi
+from ringwise.circuit.topologies import TankFigures, build, tank_figures
+from ringwise.design import Design
 
 
 @dataclass(frozen=True)

@@ -27,8 +27,8 @@ from typing import Final
 import numpy as np
 import scipy.linalg
 
-from app.analysis.loop import return_ratio_slope
-from app.circuit.mna import SmallSignal
+from ringwise.analysis.loop import return_ratio_slope
+from ringwise.circuit.mna import SmallSignal
 
 #: Eigenvalues larger than this multiple of the reference frequency are the
 #: "infinite" ones of the singular C matrix (or far parasitics) and are dropped.

@@ -32,11 +32,11 @@ from typing import Final
 import numpy as np
 from scipy.optimize import least_squares
 
-from app.analysis.describing import describing_function
-from app.analysis.operating import solve
-from app.analysis.threshold import find_threshold
-from app.design import Design, get_param, with_param
-from app.errors import DesignError
+from ringwise.analysis.describing import describing_function
+from ringwise.analysis.operating import solve
+from ringwise.analysis.threshold import find_threshold
+from ringwise.design import Design, get_param, with_param
+from ringwise.errors import DesignError
 
 #: Reading uncertainties (relative), common practice, no source: a counter
 #: reading with the probe's loading, a decade box's step, a scope's amplitude.

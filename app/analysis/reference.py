@@ -1,6 +1,6 @@
 """The transient's equations handed to SciPy's general-purpose solver, as a reference.
 
-The DAE C·ẋ + f(x) = 0 of :mod:`app.analysis.transient` becomes an ODE once
+The DAE C·ẋ + f(x) = 0 of :mod:`ringwise.analysis.transient` becomes an ODE once
 the supply nodes and supply currents (fixed by the supply) are taken out: every
 other unknown of these circuits has a capacitor or the coil in its row, so
 the remaining block of C is invertible.  ``scipy.integrate.solve_ivp`` with
@@ -13,12 +13,12 @@ from __future__ import annotations
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from app.analysis.operating import solve
-from app.analysis.transient import transient_system
-from app.circuit.mna import nonlinear_residual
-from app.circuit.netlist import DCSupply
-from app.circuit.topologies import T1
-from app.design import Design
+from ringwise.analysis.operating import solve
+from ringwise.analysis.transient import transient_system
+from ringwise.circuit.mna import nonlinear_residual
+from ringwise.circuit.netlist import DCSupply
+from ringwise.circuit.topologies import T1
+from ringwise.design import Design
 
 
 def reference_run(

@@ -18,9 +18,9 @@ from typing import Final
 
 from pydantic import ValidationError
 
-from app.analysis.dc import DCConvergenceError
-from app.analysis.operating import Solved, solve
-from app.design import PARAMETERS, Design, get_param, with_param
+from ringwise.analysis.dc import DCConvergenceError
+from ringwise.analysis.operating import Solved, solve
+from ringwise.design import PARAMETERS, Design, get_param, with_param
 
 #: Relative step of the central differences.
 STEP: Final = 1e-3

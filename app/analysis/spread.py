@@ -4,8 +4,8 @@ Every sample is the full small-signal analysis of the one circuit model —
 DC operating point by Newton, hybrid-π, return ratio and its zero-phase
 crossing, and the dominant natural frequency — but computed for all samples
 and temperature corners at once: one batched assembly from the unit stamps
-(:func:`app.circuit.mna.linear_patterns`), a batched Newton on the nodal
-equations, and the batched loop search of :mod:`app.analysis.loop`.
+(:func:`ringwise.circuit.mna.linear_patterns`), a batched Newton on the nodal
+equations, and the batched loop search of :mod:`ringwise.analysis.loop`.
 
 Distributions (common practice, no source): each tolerance is the half-width
 of a uniform distribution; β and I_S are log-uniform between the limits of
@@ -29,10 +29,10 @@ from typing import Final
 import numpy as np
 from scipy import constants
 
-from app.analysis.loop import find_oscillation
-from app.analysis.operating import Solved, solve
-from app.analysis.startup import MARGINAL_BELOW
-from app.circuit.mna import (
+from ringwise.analysis.loop import find_oscillation
+from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.startup import MARGINAL_BELOW
+from ringwise.circuit.mna import (
     LinearSystem,
     Patterns,
     assemble_batch,
@@ -41,10 +41,10 @@ from app.circuit.mna import (
     nonlinear_residual_batch,
     small_signal,
 )
-from app.circuit.npn import BETA_REVERSE, HybridPi, saturation_current, thermal_voltage
-from app.circuit.topologies import build
-from app.design import CAPACITOR_PARTS, Design, with_param
-from app.errors import DesignError
+from ringwise.circuit.npn import BETA_REVERSE, HybridPi, saturation_current, thermal_voltage
+from ringwise.circuit.topologies import build
+from ringwise.design import CAPACITOR_PARTS, Design, with_param
+from ringwise.errors import DesignError
 
 DEFAULT_SAMPLES: Final = 2000
 MAX_SAMPLES: Final = 100_000
@@ -336,8 +336,8 @@ def spread_result(
     window: tuple[float, float] | None = None,
 ):
     """Monte Carlo and ranked sensitivities as the result contract (CLI and API)."""
-    from app.analysis.sensitivity import sensitivities
-    from app.result import (
+    from ringwise.analysis.sensitivity import sensitivities
+    from ringwise.result import (
         HistogramOut,
         PercentilesOut,
         SensitivityOut,

@@ -33,10 +33,10 @@ from typing import Final
 import numpy as np
 from scipy import constants
 
-from app.analysis.describing import LargeSignal
-from app.analysis.operating import Solved, solve
-from app.circuit.netlist import Capacitor, Inductor
-from app.design import with_param
+from ringwise.analysis.describing import LargeSignal
+from ringwise.analysis.operating import Solved, solve
+from ringwise.circuit.netlist import Capacitor, Inductor
+from ringwise.design import with_param
 
 #: Offsets reported and plotted, Hz.
 REPORT_OFFSETS: Final = (100.0, 1e3, 10e3, 100e3)

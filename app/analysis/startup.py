@@ -23,7 +23,7 @@ from typing import Final
 from scipy.optimize import brentq
 from scipy.special import i0e, i1e
 
-from app.analysis.dc import OperatingPoint, Region
+from ringwise.analysis.dc import OperatingPoint, Region
 
 MARGINAL_BELOW: Final = 2.0
 OVERDRIVEN_ABOVE: Final = 10.0

@@ -26,13 +26,13 @@ import math
 from dataclasses import dataclass
 from typing import Final
 
-from app.analysis.operating import solve
-from app.circuit.npn import T_NOMINAL, thermal_voltage
-from app.design import Design, Topology, with_param
-from app.errors import DesignError
-from app.preferred import nearest
-from app.presets import DEVICE_PRESETS
-from app.units import format_si
+from ringwise.analysis.operating import solve
+from ringwise.circuit.npn import T_NOMINAL, thermal_voltage
+from ringwise.design import Design, Topology, with_param
+from ringwise.errors import DesignError
+from ringwise.preferred import nearest
+from ringwise.presets import DEVICE_PRESETS
+from ringwise.units import format_si
 
 DEFAULT_GAIN: Final = 3.0
 DEFAULT_Q_L: Final = 80.0
@@ -260,7 +260,7 @@ def _tune_ratio(
 
 def _step(design: Design, part: str, k: int) -> Design:
     """Move ``part`` ``k`` steps along the E24 series."""
-    from app.preferred import values
+    from ringwise.preferred import values
 
     v = getattr(design.tank, part)
     decade = 10.0 ** math.floor(math.log10(v) - 1)

@@ -29,13 +29,13 @@ import numpy as np
 from pydantic import ValidationError
 from scipy.optimize import brentq
 
-from app.analysis.dc import DCConvergenceError
-from app.analysis.loop import find_oscillation
-from app.analysis.operating import Solved, solve
-from app.circuit.mna import restamp, small_signal
-from app.circuit.netlist import Resistor
-from app.design import Design, get_param, with_param
-from app.errors import DesignError
+from ringwise.analysis.dc import DCConvergenceError
+from ringwise.analysis.loop import find_oscillation
+from ringwise.analysis.operating import Solved, solve
+from ringwise.circuit.mna import restamp, small_signal
+from ringwise.circuit.netlist import Resistor
+from ringwise.design import Design, get_param, with_param
+from ringwise.errors import DesignError
 
 #: The threshold is sought within value / RANGE … value · RANGE.
 SEARCH_RANGE: Final = 1e4

@@ -1,6 +1,6 @@
 r"""Nonlinear transient of the whole circuit, from the DC point with a small kick.
 
-The equations are the MNA ones of :mod:`app.circuit.mna` — every capacitor
+The equations are the MNA ones of :mod:`ringwise.circuit.mna` — every capacitor
 (bypass and coupling included), the inductor with its loss, the transistor's
 transport model with both junctions (so saturation and cut-off are real) —
 plus the junction capacitances C_π and C_μ taken as linear at their
@@ -43,12 +43,12 @@ from typing import Final
 
 import numpy as np
 
-from app.analysis.operating import Solved, solve
-from app.circuit.mna import LinearSystem, _stamp_pair, incidence
-from app.circuit.npn import junction_currents
-from app.circuit.topologies import T1
-from app.design import Design, Topology
-from app.errors import DesignError
+from ringwise.analysis.operating import Solved, solve
+from ringwise.circuit.mna import LinearSystem, _stamp_pair, incidence
+from ringwise.circuit.npn import junction_currents
+from ringwise.circuit.topologies import T1
+from ringwise.design import Design, Topology
+from ringwise.errors import DesignError
 
 #: Steps per oscillation period at the nominal step size.
 STEPS_PER_CYCLE: Final = 128
@@ -485,8 +485,8 @@ def simulate(
     progress: Callable[[float], bool] | None = None,
 ):
     """The transient as the result contract (``ringwise simulate``, ``POST /api/simulate``)."""
-    from app.circuit.topologies import OUTPUT_NODE_LABEL
-    from app.result import (
+    from ringwise.circuit.topologies import OUTPUT_NODE_LABEL
+    from ringwise.result import (
         EnvelopeOut,
         SimulationResult,
         SpectrumOut,

@@ -8,7 +8,7 @@ and per supply.  The linear elements give
 with inductor rows :math:`v_a - v_b - (R_s + sL)\,i = 0` and supply rows
 :math:`v_+ = V`.  The transistors add their nonlinear currents
 :math:`i_{dev}(x)` for DC and transient work, or their hybrid-π stamps for
-small-signal work.  Every analysis in :mod:`app.analysis` uses these matrices;
+small-signal work.  Every analysis in :mod:`ringwise.analysis` uses these matrices;
 none writes circuit equations of its own.
 
 A conductance ``G_MIN`` from every node to ground (as in SPICE) keeps nodes
@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from app.circuit.netlist import (
+from ringwise.circuit.netlist import (
     GROUND,
     NPN,
     Capacitor,
@@ -37,7 +37,7 @@ from app.circuit.netlist import (
     Netlist,
     Resistor,
 )
-from app.circuit.npn import (
+from ringwise.circuit.npn import (
     HybridPi,
     JunctionState,
     exp_and_slope_array,

@@ -30,7 +30,7 @@ import math
 from dataclasses import dataclass
 from typing import Final
 
-from app.circuit.netlist import (
+from ringwise.circuit.netlist import (
     GROUND,
     NPN,
     Capacitor,
@@ -41,8 +41,8 @@ from app.circuit.netlist import (
     NPNParams,
     Resistor,
 )
-from app.circuit.npn import BETA_REVERSE, saturation_current, thermal_voltage
-from app.design import Design, Topology
+from ringwise.circuit.npn import BETA_REVERSE, saturation_current, thermal_voltage
+from ringwise.design import Design, Topology
 
 #: Node names shared by all forms.
 VCC, COLLECTOR, BASE, EMITTER = "vcc", "c", "b", "e"

@@ -15,7 +15,7 @@ from importlib.util import find_spec
 from pathlib import Path
 from typing import Final
 
-from app.web.paths import STATIC_DIR
+from ringwise.web.paths import STATIC_DIR
 
 #: Characters of the SHA-256 hex digest used in URLs (collisions are harmless here).
 HASH_CHARS: Final = 10

@@ -22,7 +22,7 @@ import threading
 import time
 from typing import Any, Final
 
-from app.web.paths import SAMPLES_DIR
+from ringwise.web.paths import SAMPLES_DIR
 
 ANALYZE_TARGET_S: Final = 0.010
 EDIT_TARGET_S: Final = 0.150
@@ -60,8 +60,8 @@ _EDIT_JS: Final = """async (text) => {
 def _api_median() -> float:
     from fastapi.testclient import TestClient
 
-    from app.analysis.analyze import forget
-    from app.web.server import create_app
+    from ringwise.analysis.analyze import forget
+    from ringwise.web.server import create_app
 
     docs = [json.loads(p.read_text(encoding="utf-8")) for p in sorted(SAMPLES_DIR.glob("*.json"))]
     times = []
@@ -82,7 +82,7 @@ def _browser_medians() -> tuple[float, float]:
     import uvicorn
     from playwright.sync_api import sync_playwright
 
-    from app.web.server import create_app
+    from ringwise.web.server import create_app
 
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))

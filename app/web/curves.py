@@ -1,7 +1,7 @@
 """Plot data for the sheet, computed on the server so the browser only draws.
 
 Nothing here writes a circuit equation: the loop curve evaluates the core's
-return ratio :func:`app.analysis.loop.return_ratio` over the core's solved
+return ratio :func:`ringwise.analysis.loop.return_ratio` over the core's solved
 small-signal circuit, the what-if curve is the core's sweep, and the
 reactance chart is the defining relation of an ideal part,
 :math:`X_L = \\omega L` and :math:`X_C = 1/(\\omega C)`.
@@ -14,11 +14,11 @@ from typing import Any, Final
 
 import numpy as np
 
-from app.analysis.loop import return_ratio
-from app.analysis.operating import Solved
-from app.analysis.threshold import LINEAR_PARAMS, sweep
-from app.design import PARAMETERS, Design, get_param
-from app.web.fields import BY_NAME
+from ringwise.analysis.loop import return_ratio
+from ringwise.analysis.operating import Solved
+from ringwise.analysis.threshold import LINEAR_PARAMS, sweep
+from ringwise.design import PARAMETERS, Design, get_param
+from ringwise.web.fields import BY_NAME
 
 TWO_PI: Final = 2.0 * math.pi
 #: The loop curve spans f_ideal / LOOP_SPAN ... f_ideal · LOOP_SPAN.

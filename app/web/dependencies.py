@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from fastapi import Request
 
-from app.web.fields import from_query
-from app.web.samples import DEFAULT_SAMPLE, sample_texts
+from ringwise.web.fields import from_query
+from ringwise.web.samples import DEFAULT_SAMPLE, sample_texts
 
 
 def default_sample(request: Request) -> str:

@@ -6,7 +6,7 @@ Every error answer of the API, whatever its cause, has exactly this body::
      "message": "tank.C2: must be greater than 0, got '-1'",
      "problems": [{"field": "tank.C2", "message": "must be ...", "type": "greater_than"}]}
 
-``problems`` uses :func:`app.errors.describe_validation_error`'s shape, so a
+``problems`` uses :func:`ringwise.errors.describe_validation_error`'s shape, so a
 field is named by its dotted path in the request body.  Domain errors of the
 core (``ValueError`` and ``ArithmeticError`` subclasses such as ``UnitError``,
 ``ParameterError`` or a DC solve that does not converge) are input the user
@@ -26,7 +26,7 @@ from pydantic import ValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.routing import Match
 
-from app.errors import describe_validation_error
+from ringwise.errors import describe_validation_error
 
 log = logging.getLogger("ringwise.web")
 

@@ -5,7 +5,7 @@ document is nested by section (``tank.L``).  This module maps between the
 two, between the form and the share-link query string, and checks each
 field on its own with the core's own validators (so a bad value is flagged
 beside its field even while another field is also wrong).  Which section a
-parameter lives in comes from :data:`app.design.PARAMETERS`; bounds, units
+parameter lives in comes from :data:`ringwise.design.PARAMETERS`; bounds, units
 of parsing and which parts are optional come from the core's models.
 """
 
@@ -20,7 +20,7 @@ from typing import Annotated, Any, Final
 
 from pydantic import BaseModel, TypeAdapter, ValidationError
 
-from app.design import (
+from ringwise.design import (
     CAPACITOR_PARTS,
     DEFAULT_DIELECTRIC,
     FORMAT,
@@ -32,9 +32,9 @@ from app.design import (
     Tolerances,
     Topology,
 )
-from app.errors import describe_validation_error
-from app.presets import DEVICE_PRESET_LABELS, DEVICE_PRESETS
-from app.units import format_si
+from ringwise.errors import describe_validation_error
+from ringwise.presets import DEVICE_PRESET_LABELS, DEVICE_PRESETS
+from ringwise.units import format_si
 
 
 @dataclass(frozen=True)

@@ -12,7 +12,7 @@ import math
 from functools import cache
 from typing import Final
 
-from app.units import format_si
+from ringwise.units import format_si
 
 #: The E24 series, IEC 60063.
 E24: Final = (

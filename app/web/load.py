@@ -28,8 +28,8 @@ import time
 from dataclasses import dataclass, field
 from typing import Any, Final
 
-from app.units import parse_quantity
-from app.web.paths import ROOT, SAMPLES_DIR
+from ringwise.units import parse_quantity
+from ringwise.web.paths import ROOT, SAMPLES_DIR
 
 DEFAULT_CLIENTS: Final = 200
 DEFAULT_SECONDS: Final = 30.0
@@ -112,7 +112,7 @@ class _Server:
             sys.executable,
             "-m",
             "uvicorn",
-            "app.web.server:create_app",
+            "ringwise.web.server:create_app",
             "--factory",
             "--host",
             "127.0.0.1",
@@ -253,7 +253,9 @@ def report(figures: dict[str, Any], clients: int) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
-    p = argparse.ArgumentParser(prog="python -m app.web.load", description=__doc__.splitlines()[0])
+    p = argparse.ArgumentParser(
+        prog="python -m ringwise.web.load", description=__doc__.splitlines()[0]
+    )
     p.add_argument("--clients", type=int, default=DEFAULT_CLIENTS)
     p.add_argument("--seconds", type=float, default=DEFAULT_SECONDS)
     p.add_argument("--max-requests", type=int, default=DEFAULT_MAX_REQUESTS)

@@ -1,6 +1,6 @@
 """The loop-gain plot of the printed summary, drawn as SVG on the server.
 
-Only geometry happens here: the curve is the one :mod:`app.web.curves`
+Only geometry happens here: the curve is the one :mod:`ringwise.web.curves`
 computes for the sheet; this maps it to a box (log frequency across, log
 magnitude and linear phase up) and chooses tick marks.  The template draws it.
 """
@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 from typing import Any, Final
 
-from app.units import format_si
+from ringwise.units import format_si
 
 WIDTH: Final = 330.0
 HEIGHT: Final = 170.0

@@ -11,8 +11,8 @@ from dataclasses import dataclass
 from functools import cache
 from typing import Any
 
-from app.web.fields import texts_from_document
-from app.web.paths import SAMPLES_DIR
+from ringwise.web.fields import texts_from_document
+from ringwise.web.paths import SAMPLES_DIR
 
 
 @dataclass(frozen=True)

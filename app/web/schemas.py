@@ -6,8 +6,8 @@ from typing import Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from app.analysis.threshold import MAX_SWEEP_POINTS
-from app.design import Design
+from ringwise.analysis.threshold import MAX_SWEEP_POINTS
+from ringwise.design import Design
 
 #: Points of a sweep when the request does not say.
 DEFAULT_SWEEP_POINTS = 50
@@ -19,7 +19,9 @@ class _In(BaseModel):
 
 class SweepRequest(_In):
     design: Design
-    param: str = Field(description="Part to vary, e.g. RC, RB2, C2 (see app.design.PARAMETERS)")
+    param: str = Field(
+        description="Part to vary, e.g. RC, RB2, C2 (see ringwise.design.PARAMETERS)"
+    )
     start: float | str = Field(description="First value, SI units or text such as 100, 2k2, 1n")
     stop: float | str = Field(description="Last value")
     points: int = Field(

@@ -13,12 +13,12 @@ from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from app.web import errors
-from app.web.assets import IMMUTABLE_MAX_AGE, plotly_js
-from app.web.paths import STATIC_DIR
-from app.web.routers import api, pages, simulate, spread
-from app.web.samples import DEFAULT_SAMPLE, samples
-from app.web.schemas import ErrorOut
+from ringwise.web import errors
+from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
+from ringwise.web.paths import STATIC_DIR
+from ringwise.web.routers import api, pages, simulate, spread
+from ringwise.web.samples import DEFAULT_SAMPLE, samples
+from ringwise.web.schemas import ErrorOut
 
 #: Scripts, styles, fonts and connections only from this server.  Plotly sets
 #: inline styles on the SVG it draws, hence 'unsafe-inline' for styles only.

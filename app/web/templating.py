@@ -8,16 +8,16 @@ from typing import Any
 from fastapi import Request
 from fastapi.templating import Jinja2Templates
 
-from app.analysis.stability import RATING_FRACTION, REPORT_OFFSETS
-from app.analysis.transient import HARMONICS, MAX_CYCLES, MIN_CYCLES
-from app.web.assets import plotly_js, static_url
-from app.web.fields import FIELDS, GROUPS, choices, display, preset_texts
-from app.web.ladders import SPANS, ladder
-from app.web.paths import TEMPLATES_DIR
-from app.web.routers.simulate import DEFAULT_CYCLES, POLL_MS, SHEET_POINTS
-from app.web.samples import samples
-from app.web.tools import tool_context
-from app.web.view import (
+from ringwise.analysis.stability import RATING_FRACTION, REPORT_OFFSETS
+from ringwise.analysis.transient import HARMONICS, MAX_CYCLES, MIN_CYCLES
+from ringwise.web.assets import plotly_js, static_url
+from ringwise.web.fields import FIELDS, GROUPS, choices, display, preset_texts
+from ringwise.web.ladders import SPANS, ladder
+from ringwise.web.paths import TEMPLATES_DIR
+from ringwise.web.routers.simulate import DEFAULT_CYCLES, POLL_MS, SHEET_POINTS
+from ringwise.web.samples import samples
+from ringwise.web.tools import tool_context
+from ringwise.web.view import (
     ORDINALS,
     PANELS,
     RUN_SHOWN,

@@ -19,12 +19,12 @@ from typing import Any, Final
 
 from pydantic import ValidationError
 
-from app.design import Design
-from app.errors import describe_validation_error
-from app.units import UnitError, format_si, parse_quantity
-from app.web.errors import ApiError
-from app.web.fields import BY_NAME, FIELDS, choices, display, document
-from app.web.routers.spread import (
+from ringwise.design import Design
+from ringwise.errors import describe_validation_error
+from ringwise.units import UnitError, format_si, parse_quantity
+from ringwise.web.errors import ApiError
+from ringwise.web.fields import BY_NAME, FIELDS, choices, display, document
+from ringwise.web.routers.spread import (
     ReconcileRequest,
     SnapRequest,
     SpreadRequest,
@@ -34,7 +34,7 @@ from app.web.routers.spread import (
     post_spread,
     post_synthesize,
 )
-from app.web.view import _figure, query_string
+from ringwise.web.view import _figure, query_string
 
 #: Groups of the form that describe the spread, not the circuit: a design that
 #: comes back from the core (synthesis, as-built) leaves their texts as typed.
@@ -415,11 +415,11 @@ def reconcile_view(texts: Mapping[str, str], bench: Mapping[str, str]) -> dict[s
 
 def tool_context() -> dict[str, Any]:
     """What the panels' inputs offer (choices, defaults shown as placeholders)."""
-    from app.analysis.spread import DEFAULT_SAMPLES
-    from app.analysis.startup import MARGINAL_BELOW
-    from app.analysis.synthesis import DEFAULT_GAIN
-    from app.design import PARAMETERS
-    from app.preferred import SERIES
+    from ringwise.analysis.spread import DEFAULT_SAMPLES
+    from ringwise.analysis.startup import MARGINAL_BELOW
+    from ringwise.analysis.synthesis import DEFAULT_GAIN
+    from ringwise.design import PARAMETERS
+    from ringwise.preferred import SERIES
 
     return {
         "samples": DEFAULT_SAMPLES,

@@ -15,14 +15,14 @@ from urllib.parse import urlencode
 
 from pydantic import ValidationError
 
-from app.analysis.analyze import analyze
-from app.analysis.operating import solve
-from app.analysis.stability import RATING_FRACTION
-from app.circuit.topologies import GAIN_SETTER
-from app.design import Design, Topology, get_param
-from app.errors import describe_validation_error
-from app.web import curves
-from app.web.fields import (
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.operating import solve
+from ringwise.analysis.stability import RATING_FRACTION
+from ringwise.circuit.topologies import GAIN_SETTER
+from ringwise.design import Design, Topology, get_param
+from ringwise.errors import describe_validation_error
+from ringwise.web import curves
+from ringwise.web.fields import (
     BY_NAME,
     BY_PATH,
     FIELDS,
@@ -32,7 +32,7 @@ from app.web.fields import (
     field_of_problem,
     to_query,
 )
-from app.web.ladders import nearest_step
+from ringwise.web.ladders import nearest_step
 
 #: Figures the sheet shows, in order: (result path, display unit, label, panel).
 #: The unit ``"param"`` means "the unit of the threshold's parameter".
@@ -372,7 +372,7 @@ def _idle_parts(design: Design) -> list[str]:
 
 def idle_by_topology() -> dict[str, list[str]]:
     """For each form, the bias parts it does not use (the core's ``unused_parts``)."""
-    from app.web.samples import DEFAULT_SAMPLE, samples
+    from ringwise.web.samples import DEFAULT_SAMPLE, samples
 
     base = Design.model_validate(samples()[DEFAULT_SAMPLE].document)
     bias = base.bias.model_copy(update={"RC": 1.0, "CE": 1.0, "CB": 1.0})

@@ -6,7 +6,7 @@ import json
 
 import pytest
 
-from app.analysis.analyze import analyze
+from ringwise.analysis.analyze import analyze
 from tests.conftest import BASE_CE, all_finite, design_from
 
 # (changes, region, expected warning codes, f_osc exists)

@@ -6,9 +6,9 @@ import math
 
 import pytest
 
-from app.analysis.budget import loop_budget
-from app.analysis.operating import solve
-from app.design import with_param
+from ringwise.analysis.budget import loop_budget
+from ringwise.analysis.operating import solve
+from ringwise.design import with_param
 from tests.conftest import BASE_CE, design_from
 
 

@@ -7,9 +7,9 @@ import math
 import pytest
 from scipy.optimize import brentq
 
-from app.analysis.dc import Region, operating_point, solve_dc
-from app.circuit.mna import assemble
-from app.circuit.topologies import build, device_params
+from ringwise.analysis.dc import Region, operating_point, solve_dc
+from ringwise.circuit.mna import assemble
+from ringwise.circuit.topologies import build, device_params
 from tests.conftest import BASE_CE, design_from
 
 

@@ -5,10 +5,10 @@ from __future__ import annotations
 import pytest
 from scipy.special import iv
 
-from app.analysis.describing import describing_function
-from app.analysis.operating import solve
-from app.analysis.startup import gm_ratio
-from app.analysis.transient import run
+from ringwise.analysis.describing import describing_function
+from ringwise.analysis.operating import solve
+from ringwise.analysis.startup import gm_ratio
+from ringwise.analysis.transient import run
 from tests.conftest import at_gain, load_sample, sample_paths
 
 

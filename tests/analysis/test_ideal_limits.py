@@ -14,8 +14,8 @@ import math
 import pytest
 from numpy.testing import assert_allclose
 
-from app.analysis.analyze import analyze
-from app.design import Design
+from ringwise.analysis.analyze import analyze
+from ringwise.design import Design
 from tests.conftest import ideal_data
 
 

@@ -18,9 +18,9 @@ import numpy as np
 import pytest
 import sympy as sp
 
-from app.analysis.loop import return_ratio
-from app.analysis.operating import solve
-from app.circuit.mna import G_MIN
+from ringwise.analysis.loop import return_ratio
+from ringwise.analysis.operating import solve
+from ringwise.circuit.mna import G_MIN
 from tests.conftest import BASE_CE, design_from
 
 

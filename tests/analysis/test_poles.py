@@ -6,9 +6,9 @@ import itertools
 
 import pytest
 
-from app.analysis.analyze import analyze
-from app.analysis.operating import solve
-from app.analysis.poles import natural_frequencies
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.operating import solve
+from ringwise.analysis.poles import natural_frequencies
 from tests.conftest import BASE_CE, design_from
 
 GRID = list(
@@ -36,8 +36,8 @@ def test_sigma_sign_agrees_with_loop_gain(RC: str, C2: str, Q_L: float) -> None:
 
 def test_pole_of_lossless_tank_at_threshold_sits_near_f_osc() -> None:
     # Near T = 1 the dominant pair is on the jω axis at the oscillation frequency.
-    from app.analysis.threshold import find_threshold
-    from app.design import with_param
+    from ringwise.analysis.threshold import find_threshold
+    from ringwise.design import with_param
 
     design = design_from(BASE_CE)
     th = find_threshold(design, "RC")
@@ -56,8 +56,8 @@ def test_growth_time_is_reciprocal_sigma() -> None:
 def test_second_rhp_pole_is_reported_with_squegging_hint() -> None:
     # The rule: any growing natural frequency besides the dominant pair is a
     # warning; a low-frequency one names squegging (common practice, no source).
-    from app.analysis.checks import rule_checks
-    from app.analysis.poles import Pole, PoleFigures
+    from ringwise.analysis.checks import rule_checks
+    from ringwise.analysis.poles import Pole, PoleFigures
 
     solved = solve(design_from(BASE_CE))
     f = solved.f_osc

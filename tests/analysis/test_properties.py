@@ -11,9 +11,9 @@ from __future__ import annotations
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from app.analysis.operating import solve
-from app.analysis.threshold import find_threshold
-from app.design import Design, with_param
+from ringwise.analysis.operating import solve
+from ringwise.analysis.threshold import find_threshold
+from ringwise.design import Design, with_param
 
 SETTINGS = settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from app.analysis.reconcile import ReconcileError, _apply, _model, reconcile
+from ringwise.analysis.reconcile import ReconcileError, _apply, _model, reconcile
 from tests.conftest import load_sample, sample_paths
 
 

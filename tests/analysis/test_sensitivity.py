@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from app.analysis.sensitivity import sensitivities
-from app.design import Design
+from ringwise.analysis.sensitivity import sensitivities
+from ringwise.design import Design
 from tests.conftest import BASE_CE, design_from, ideal_data
 
 

@@ -7,9 +7,9 @@ import math
 import numpy as np
 import pytest
 
-from app.analysis.operating import solve
-from app.analysis.poles import natural_frequencies
-from app.analysis.spread import (
+from ringwise.analysis.operating import solve
+from ringwise.analysis.poles import natural_frequencies
+from ringwise.analysis.spread import (
     SpreadError,
     analyse_batch,
     draw,
@@ -17,7 +17,7 @@ from app.analysis.spread import (
     sample_design,
     values_at,
 )
-from app.design import Design
+from ringwise.design import Design
 from tests.conftest import BASE_CE, design_from, load_sample, sample_paths
 
 

@@ -8,10 +8,10 @@ import math
 import numpy as np
 import pytest
 
-from app.analysis.analyze import analyze
-from app.analysis.operating import solve
-from app.analysis.stability import leeson
-from app.design import Design, with_param
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.operating import solve
+from ringwise.analysis.stability import leeson
+from ringwise.design import Design, with_param
 from tests.conftest import BASE_CE, design_from, ideal_data, load_sample, sample_paths
 
 

@@ -7,8 +7,8 @@ import math
 import pytest
 from scipy.special import iv
 
-from app.analysis.analyze import analyze
-from app.analysis.startup import fixed_bias_drive, gm_ratio
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.startup import fixed_bias_drive, gm_ratio
 from tests.conftest import BASE_CE, at_gain, design_from
 
 

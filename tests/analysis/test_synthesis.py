@@ -8,9 +8,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from app.analysis.analyze import analyze
-from app.analysis.synthesis import SynthesisError, synthesize
-from app.preferred import values
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.synthesis import SynthesisError, synthesize
+from ringwise.preferred import values
 
 #: Largest step between neighbouring E24 values, as a ratio (IEC 60063 E24:
 #: 1.0 → 1.1 is the widest, 10 %); a capacitor step moves f by half of it.

@@ -6,9 +6,9 @@ import itertools
 
 import pytest
 
-from app.analysis.operating import solve
-from app.analysis.threshold import MAX_SWEEP_POINTS, ParameterError, find_threshold, sweep
-from app.design import with_param
+from ringwise.analysis.operating import solve
+from ringwise.analysis.threshold import MAX_SWEEP_POINTS, ParameterError, find_threshold, sweep
+from ringwise.design import with_param
 from tests.conftest import BASE_CE, design_from
 
 

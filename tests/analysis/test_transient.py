@@ -8,19 +8,19 @@ import math
 import numpy as np
 import pytest
 
-from app.analysis.operating import solve
-from app.analysis.poles import natural_frequencies
-from app.analysis.reference import reference_run
-from app.analysis.transient import (
+from ringwise.analysis.operating import solve
+from ringwise.analysis.poles import natural_frequencies
+from ringwise.analysis.reference import reference_run
+from ringwise.analysis.transient import (
     SimulationError,
     _crossings,
     integrate,
     run,
     unwarp,
 )
-from app.circuit.mna import assemble
-from app.circuit.netlist import GROUND, NPN, Capacitor, Inductor, Netlist, NPNParams, Resistor
-from app.design import with_param
+from ringwise.circuit.mna import assemble
+from ringwise.circuit.netlist import GROUND, NPN, Capacitor, Inductor, Netlist, NPNParams, Resistor
+from ringwise.design import with_param
 from tests.conftest import BASE_CE, design_from, load_sample, sample_paths
 
 
@@ -88,7 +88,7 @@ def test_below_threshold_decays_and_above_grows_at_sigma() -> None:
     # Near threshold the envelope grows (or decays) as e^{σt} with σ the real part
     # of the dominant poles (small-signal theory; the check is within 10 %).
     base = design_from(BASE_CE)
-    from app.analysis.threshold import find_threshold
+    from ringwise.analysis.threshold import find_threshold
 
     th = find_threshold(base, "RC").value
     above = with_param(base, "RC", th * 1.15)
@@ -103,7 +103,7 @@ def test_below_threshold_decays_and_above_grows_at_sigma() -> None:
 
 def test_squegging_is_detected_and_warned_before_simulating() -> None:
     # High margin with slow bias capacitors: the envelope collapses and rebuilds.
-    from app.analysis.analyze import analyze
+    from ringwise.analysis.analyze import analyze
 
     clapp = load_sample(next(p for p in sample_paths() if "clapp" in p.name))
     squegger = clapp.model_copy(
@@ -140,7 +140,7 @@ def test_caps_on_requested_work() -> None:
 
 
 def test_progress_is_reported_and_cancels() -> None:
-    from app.analysis.transient import SimulationCancelledError
+    from ringwise.analysis.transient import SimulationCancelledError
 
     d = load_sample(sample_paths()[0])
     seen: list[float] = []

@@ -7,7 +7,7 @@ import math
 import pytest
 from scipy import constants
 
-from app.circuit.npn import (
+from ringwise.circuit.npn import (
     T_NOMINAL,
     hybrid_pi,
     junction_state,

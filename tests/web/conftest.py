@@ -21,8 +21,8 @@ from typing import Any
 import pytest
 from fastapi.testclient import TestClient
 
-from app.web.paths import ROOT, SAMPLES_DIR
-from app.web.server import create_app
+from ringwise.web.paths import ROOT, SAMPLES_DIR
+from ringwise.web.server import create_app
 
 ARTIFACTS = ROOT / "test-artifacts"
 CHROMIUM_ARGS = [

@@ -9,11 +9,11 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from app.analysis.analyze import analyze
-from app.analysis.threshold import MAX_SWEEP_POINTS
-from app.design import Design
-from app.web.fields import FIELDS
-from app.web.paths import SAMPLES_DIR
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.threshold import MAX_SWEEP_POINTS
+from ringwise.design import Design
+from ringwise.web.fields import FIELDS
+from ringwise.web.paths import SAMPLES_DIR
 
 SAMPLE_KEYS = sorted(p.stem for p in SAMPLES_DIR.glob("*.json"))
 

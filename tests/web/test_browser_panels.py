@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import pytest
 
-from app.analysis.transient import MIN_CYCLES
-from app.web.routers.simulate import SHEET_POINTS
+from ringwise.analysis.transient import MIN_CYCLES
+from ringwise.web.routers.simulate import SHEET_POINTS
 from tests.web.test_browser import Sheet, expected, settle, wait_for
 
 pytestmark = pytest.mark.browser

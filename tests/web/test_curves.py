@@ -6,13 +6,13 @@ import math
 
 import pytest
 
-from app.analysis.analyze import analyze
-from app.analysis.operating import solve
-from app.design import Design
-from app.web import curves
-from app.web.ladders import E24, ladder, nearest_step
-from app.web.plotsvg import loop_plot
-from app.web.samples import samples
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.operating import solve
+from ringwise.design import Design
+from ringwise.web import curves
+from ringwise.web.ladders import E24, ladder, nearest_step
+from ringwise.web.plotsvg import loop_plot
+from ringwise.web.samples import samples
 
 
 @pytest.fixture(params=sorted(samples()))

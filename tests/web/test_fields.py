@@ -6,8 +6,8 @@ from urllib.parse import parse_qsl, urlencode
 
 import pytest
 
-from app.design import PARAMETERS, Design
-from app.web.fields import (
+from ringwise.design import PARAMETERS, Design
+from ringwise.web.fields import (
     BY_NAME,
     FIELDS,
     DocumentError,
@@ -17,7 +17,7 @@ from app.web.fields import (
     texts_from_document,
     to_query,
 )
-from app.web.samples import DEFAULT_SAMPLE, sample_texts, samples
+from ringwise.web.samples import DEFAULT_SAMPLE, sample_texts, samples
 
 SAMPLES = sample_texts()
 
@@ -175,7 +175,7 @@ def test_tolerance_fields_report(name, text, needle):
 
 
 def test_tolerance_problem_goes_to_its_own_input_not_the_tank():
-    from app.web.view import build_view
+    from ringwise.web.view import build_view
 
     texts = {**SAMPLES[DEFAULT_SAMPLE], "T_min": "90", "T_max": "80"}
     view = build_view(texts, with_sweep=False)

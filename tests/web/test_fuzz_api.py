@@ -31,10 +31,10 @@ from schemathesis.specs.openapi.checks import (
     positive_data_acceptance,
 )
 
-from app.analysis.spread import MAX_SAMPLES
-from app.analysis.threshold import MAX_SWEEP_POINTS
-from app.analysis.transient import MAX_CYCLES, MAX_POINTS, MIN_CYCLES
-from app.web.server import create_app
+from ringwise.analysis.spread import MAX_SAMPLES
+from ringwise.analysis.threshold import MAX_SWEEP_POINTS
+from ringwise.analysis.transient import MAX_CYCLES, MAX_POINTS, MIN_CYCLES
+from ringwise.web.server import create_app
 
 #: Generated examples per operation (``make fuzz`` raises it).
 EXAMPLES = int(os.environ.get("RINGWISE_FUZZ_EXAMPLES", "12"))

@@ -23,15 +23,15 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from pydantic import ValidationError
 
-from app.analysis.analyze import analyze
-from app.analysis.operating import solve
-from app.analysis.sensitivity import sensitivities
-from app.analysis.spread import monte_carlo
-from app.analysis.threshold import find_threshold, sweep
-from app.analysis.transient import MIN_CYCLES, simulate
-from app.design import PARAMETERS, Design, get_param, load_design, with_param
-from app.errors import DesignError
-from app.web.paths import SAMPLES_DIR
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.operating import solve
+from ringwise.analysis.sensitivity import sensitivities
+from ringwise.analysis.spread import monte_carlo
+from ringwise.analysis.threshold import find_threshold, sweep
+from ringwise.analysis.transient import MIN_CYCLES, simulate
+from ringwise.design import PARAMETERS, Design, get_param, load_design, with_param
+from ringwise.errors import DesignError
+from ringwise.web.paths import SAMPLES_DIR
 
 SAMPLES = {p.stem: json.loads(p.read_text(encoding="utf-8")) for p in SAMPLES_DIR.glob("*.json")}
 #: ``make fuzz`` multiplies every budget here by this.

@@ -8,8 +8,8 @@ import time
 
 import httpx
 
-from app.web import load
-from app.web.paths import SAMPLES_DIR
+from ringwise.web import load
+from ringwise.web.paths import SAMPLES_DIR
 
 
 def test_load_smoke_run_stops_by_itself_without_errors():

@@ -7,8 +7,8 @@ from html import unescape
 
 import pytest
 
-from app.web.fields import FIELDS
-from app.web.view import SHOWN
+from ringwise.web.fields import FIELDS
+from ringwise.web.view import SHOWN
 
 
 def _attr(html: str, selector_attr: str, value: str, attr: str) -> str:

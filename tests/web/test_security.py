@@ -16,11 +16,11 @@ from urllib.parse import quote, urlencode, urlparse
 
 import pytest
 
-from app.analysis.threshold import MAX_SWEEP_POINTS
-from app.analysis.transient import MAX_CYCLES, MAX_POINTS
-from app.web.assets import plotly_js, static_url
-from app.web.paths import SAMPLES_DIR
-from app.web.server import CONTENT_SECURITY_POLICY, MAX_BODY_BYTES
+from ringwise.analysis.threshold import MAX_SWEEP_POINTS
+from ringwise.analysis.transient import MAX_CYCLES, MAX_POINTS
+from ringwise.web.assets import plotly_js, static_url
+from ringwise.web.paths import SAMPLES_DIR
+from ringwise.web.server import CONTENT_SECURITY_POLICY, MAX_BODY_BYTES
 
 #: Markup a shared link might smuggle in (the classic probes: a script
 #: element, an attribute break-out with an event handler, a javascript: URL).
@@ -101,7 +101,7 @@ def test_405_lists_every_method_of_the_path(client):
 def test_ringwise_serve_binds_loopback_unless_told(monkeypatch, capsys):
     import uvicorn
 
-    from app.cli import main
+    from ringwise.cli import main
 
     calls = []
     monkeypatch.setattr(uvicorn, "run", lambda app, **kw: calls.append(kw))

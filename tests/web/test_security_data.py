@@ -16,9 +16,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from app.design import Design, load_design
-from app.web.fields import FIELDS
-from app.web.paths import SAMPLES_DIR
+from ringwise.design import Design, load_design
+from ringwise.web.fields import FIELDS
+from ringwise.web.paths import SAMPLES_DIR
 
 FROZEN_V1 = Path(__file__).parent / "data" / "design-v1.json"
 JSON = {"content-type": "application/json"}

@@ -6,8 +6,8 @@ import re
 
 import pytest
 
-from app.web.assets import plotly_js, static_url
-from app.web.server import _is_loopback, create_app
+from ringwise.web.assets import plotly_js, static_url
+from ringwise.web.server import _is_loopback, create_app
 
 
 def test_security_headers(client):
@@ -78,7 +78,7 @@ def test_loopback(host, loopback):
 def test_serve_warns_when_exposed(monkeypatch, capsys):
     import uvicorn
 
-    from app.web import server
+    from ringwise.web import server
 
     calls = []
     monkeypatch.setattr(uvicorn, "run", lambda app, **kw: calls.append(kw))
@@ -92,7 +92,7 @@ def test_serve_warns_when_exposed(monkeypatch, capsys):
 
 
 def test_serve_refuses_an_unknown_design(capsys):
-    from app.web import server
+    from ringwise.web import server
 
     with pytest.raises(SystemExit) as info:
         server.serve(design="nope")

@@ -7,9 +7,9 @@ import time
 
 import pytest
 
-from app.analysis.transient import MAX_CYCLES, MAX_POINTS, MIN_CYCLES
-from app.errors import DesignError
-from app.web.routers import simulate as sim
+from ringwise.analysis.transient import MAX_CYCLES, MAX_POINTS, MIN_CYCLES
+from ringwise.errors import DesignError
+from ringwise.web.routers import simulate as sim
 
 #: Few cycles keep the suite fast; the figures are checked against the core elsewhere.
 CYCLES = 40

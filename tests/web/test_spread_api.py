@@ -6,8 +6,8 @@ import json
 
 import pytest
 
-from app.analysis.spread import MAX_SAMPLES
-from app.web.paths import SAMPLES_DIR
+from ringwise.analysis.spread import MAX_SAMPLES
+from ringwise.web.paths import SAMPLES_DIR
 
 
 def _sample() -> dict:

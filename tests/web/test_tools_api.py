@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import pytest
 
-from app.design import Design
-from app.web.fields import document
-from app.web.samples import DEFAULT_SAMPLE, sample_texts
-from app.web.tools import texts_for_design, value_text
+from ringwise.design import Design
+from ringwise.web.fields import document
+from ringwise.web.samples import DEFAULT_SAMPLE, sample_texts
+from ringwise.web.tools import texts_for_design, value_text
 
 TEXTS = sample_texts()[DEFAULT_SAMPLE]
 #: Few samples: these tests check the plumbing, not the statistics.
@@ -117,7 +117,7 @@ def test_reconcile_gives_explanation_and_as_built_texts(client):
 
 @pytest.mark.parametrize("value", [2.2e-9, 180e3, 1e-14, 6.734e-15, 0.1, 123456.789, 25.0])
 def test_value_text_reads_back_exactly(value):
-    from app.units import parse_quantity
+    from ringwise.units import parse_quantity
 
     assert parse_quantity(value_text(value)) == value
 
@@ -137,7 +137,7 @@ def test_a_design_that_does_not_start_still_answers(client):
 
 
 def test_summary_has_the_spread_section(client):
-    from app.web.tools import SUMMARY_SAMPLES, SUMMARY_SEED
+    from ringwise.web.tools import SUMMARY_SAMPLES, SUMMARY_SEED
 
     page = client.get("/summary?design=clapp-clock-1M")
     assert page.status_code == 200

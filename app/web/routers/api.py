@@ -9,14 +9,14 @@ from fastapi import APIRouter, Body, Request
 from fastapi.responses import JSONResponse
 from pydantic import ValidationError
 
-from app.analysis.analyze import analyze
-from app.analysis.threshold import ParameterError, find_threshold, sweep
-from app.circuit.topologies import GAIN_SETTER
-from app.design import Design
-from app.result import Result
-from app.web.dependencies import texts_for
-from app.web.errors import ApiError, from_validation, invalid
-from app.web.fields import (
+from ringwise.analysis.analyze import analyze
+from ringwise.analysis.threshold import ParameterError, find_threshold, sweep
+from ringwise.circuit.topologies import GAIN_SETTER
+from ringwise.design import Design
+from ringwise.result import Result
+from ringwise.web.dependencies import texts_for
+from ringwise.web.errors import ApiError, from_validation, invalid
+from ringwise.web.fields import (
     BY_NAME,
     FIELDS,
     DocumentError,
@@ -24,8 +24,8 @@ from app.web.fields import (
     document,
     texts_from_document,
 )
-from app.web.samples import samples
-from app.web.schemas import (
+from ringwise.web.samples import samples
+from ringwise.web.schemas import (
     ImportOut,
     SampleOut,
     SheetRequest,
@@ -35,7 +35,7 @@ from app.web.schemas import (
     ThresholdOut,
     ThresholdRequest,
 )
-from app.web.view import build_view, query_string, sweep_view
+from ringwise.web.view import build_view, query_string, sweep_view
 
 router = APIRouter(prefix="/api", tags=["api"])
 
@@ -180,6 +180,6 @@ def get_export(request: Request) -> JSONResponse:
 
 # The sheet's on-demand panels (spread, snap, synthesize, reconcile) under /api/sheet/.
 # Imported here, at the end, because they reuse this module's helpers.
-from app.web.routers import tools as _tools  # noqa: E402
+from ringwise.web.routers import tools as _tools  # noqa: E402
 
 router.include_router(_tools.router)

@@ -8,11 +8,11 @@ from typing import Any
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
-from app.web.dependencies import texts_for
-from app.web.plotsvg import loop_plot
-from app.web.templating import page_context, templates
-from app.web.tools import summary_spread
-from app.web.view import build_view
+from ringwise.web.dependencies import texts_for
+from ringwise.web.plotsvg import loop_plot
+from ringwise.web.templating import page_context, templates
+from ringwise.web.tools import summary_spread
+from ringwise.web.view import build_view
 
 router = APIRouter(tags=["pages"])
 

@@ -8,7 +8,7 @@ to cancel::
     GET    /api/simulate/jobs/{id}   -> {id, state, progress, result?, error?}
     DELETE /api/simulate/jobs/{id}   -> the job, cancelled
 
-Both run the core's :func:`app.analysis.transient.simulate` in a thread of
+Both run the core's :func:`ringwise.analysis.transient.simulate` in a thread of
 its own, never on the event loop.  The work is bounded: every request's
 cycles and points are capped (the core's ``MIN_CYCLES``, ``MAX_CYCLES``,
 ``MAX_POINTS``), at most :data:`MAX_RUNNING` runs go at once (a further one
@@ -33,24 +33,24 @@ from fastapi import APIRouter, Query, Request
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict, Field
 
-from app.analysis.transient import (
+from ringwise.analysis.transient import (
     MAX_CYCLES,
     MAX_POINTS,
     MIN_CYCLES,
     SimulationCancelledError,
     simulate,
 )
-from app.design import Design
-from app.result import SimulationResult
-from app.web.errors import ApiError, error_body, invalid
-from app.web.view import run_view
+from ringwise.design import Design
+from ringwise.result import SimulationResult
+from ringwise.web.errors import ApiError, error_body, invalid
+from ringwise.web.view import run_view
 
 log = logging.getLogger("ringwise.web")
 
 router = APIRouter(prefix="/api", tags=["simulate"])
 
 #: Fewest points a run may return: the lower bound that
-#: ``app.analysis.transient.run`` checks (a literal there).
+#: ``ringwise.analysis.transient.run`` checks (a literal there).
 MIN_POINTS: Final = 100
 #: Cycles and points when the request does not say (the CLI's defaults).
 DEFAULT_CYCLES: Final = 300

@@ -11,13 +11,13 @@ from typing import Annotated, Any, Literal
 from fastapi import APIRouter
 from pydantic import BaseModel, ConfigDict, Field
 
-from app.analysis.reconcile import reconcile
-from app.analysis.spread import DEFAULT_SAMPLES, MAX_SAMPLES, spread_result
-from app.analysis.startup import MARGINAL_BELOW
-from app.analysis.synthesis import DEFAULT_GAIN, synthesize
-from app.design import PARAMETERS, Design, Topology
-from app.preferred import SERIES, snap_design
-from app.result import SpreadResult
+from ringwise.analysis.reconcile import reconcile
+from ringwise.analysis.spread import DEFAULT_SAMPLES, MAX_SAMPLES, spread_result
+from ringwise.analysis.startup import MARGINAL_BELOW
+from ringwise.analysis.synthesis import DEFAULT_GAIN, synthesize
+from ringwise.design import PARAMETERS, Design, Topology
+from ringwise.preferred import SERIES, snap_design
+from ringwise.result import SpreadResult
 
 router = APIRouter(prefix="/api", tags=["spread"])
 

@@ -9,8 +9,8 @@ from typing import Any
 from fastapi import APIRouter
 from pydantic import BaseModel, ConfigDict, Field
 
-from app.web import tools
-from app.web.routers.api import ERRORS, _texts
+from ringwise.web import tools
+from ringwise.web.routers.api import ERRORS, _texts
 
 router = APIRouter(prefix="/sheet", tags=["sheet tools"])
 
