@@ -63,7 +63,32 @@ class BudgetLineOut(_Out):
     gain_without: Num = Field(description="Loop gain with this element made ideal")
     f_without: Num = Field(description="Oscillation frequency with this element made ideal, Hz")
     cost_dB: Num = Field(description="20·log10(gain_without / gain), dB")
-    share: Num = Field(description="Fraction of the total positive cost")
+    share: Num = Field(
+        description="Fraction of the total positive cost of the losses (null for the gain setter)"
+    )
+    in_hand: bool = Field(
+        description="Part of the hand formula (the gain-setting resistor): not a loss"
+    )
+
+
+class LossOut(_Out):
+    element: str = Field(description="Budget element, or 'rest' for the losses' interplay")
+    label: str
+    cost_dB: Num = Field(description="Loop gain it costs, dB")
+    fraction: Num = Field(description="Fraction of the loop gain it takes, 1 − 10^(−cost/20)")
+    share: Num = Field(description="Its cost over the hand-to-full gap (null without a gap)")
+    text: str = Field(description="What its bar says, e.g. '1.07 dB · 11.6 %'")
+
+
+class GainStoryOut(_Out):
+    formula: str = Field(description="The form's hand formula in symbols")
+    numbers: str = Field(description="The hand formula with this design's values, and its result")
+    hand: Num = Field(description="Hand-method loop gain")
+    full: Num = Field(description="Full-circuit loop gain")
+    gap_dB: Num = Field(description="20·log10(hand/full), dB")
+    losses: list[LossOut] = Field(
+        description="What the hand method ignores, largest first; the costs sum to gap_dB"
+    )
 
 
 class LoopOut(_Out):
@@ -74,6 +99,9 @@ class LoopOut(_Out):
     Q_loaded: Num = Field(description="(ω/2)·|dφ/dω|")
     Z_out: Num = Field(description="|v_ce/i_t| at f_osc: load seen by the controlled source, Ω")
     budget: list[BudgetLineOut]
+    story: GainStoryOut | None = Field(
+        description="From the hand formula to the full loop gain (null without f_osc)"
+    )
 
 
 class PoleOut(_Out):

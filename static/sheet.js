@@ -438,6 +438,8 @@ function drawReactance(el, r) {
 }
 
 function plotBudget(b) {
+  const formula = $("[data-role='hand-formula']");
+  formula.textContent = b.caption;
   plotWhenSeen(SEL.plots.budget, b, (el) => drawBudget(el, b));
 }
 
@@ -450,15 +452,18 @@ function drawBudget(el, b) {
         orientation: "h",
         x: b.cost_dB,
         y: b.labels,
+        text: b.text,
+        textposition: "auto",
+        cliponaxis: false,
         marker: { color: b.cost_dB.map((v) => (v >= 0 ? ACCENT : "#1d6b57")) },
         customdata: b.share,
-        hovertemplate: "%{y}: %{x:.2f} dB (%{customdata:.0%} of the loss)<extra></extra>",
+        hovertemplate: "%{y}: %{text} (%{customdata:.0%} of the gap)<extra></extra>",
       },
     ],
     layout({
       showlegend: false,
       margin: { l: 190, r: 16, t: 8, b: 40 },
-      xaxis: { title: { text: "loop gain lost to it (dB)" }, zeroline: true },
+      xaxis: { title: { text: "loop gain it costs (dB)" }, zeroline: true },
       yaxis: { autorange: "reversed", automargin: true },
     }),
     PLOT_CONFIG,

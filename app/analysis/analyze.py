@@ -12,13 +12,17 @@ from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.poles import natural_frequencies
 from ringwise.analysis.stability import stability
 from ringwise.analysis.startup import fixed_bias_drive, gm_ratio, verdict
+from ringwise.analysis.story import gain_story
+from ringwise.analysis.tankchecks import tank_checks
 from ringwise.analysis.threshold import find_threshold
-from ringwise.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, ideal_gain
+from ringwise.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, hand_formula
 from ringwise.design import Design
 from ringwise.result import (
     BudgetLineOut,
+    GainStoryOut,
     LargeSignalOut,
     LoopOut,
+    LossOut,
     NoiseCurveOut,
     NoisePointOut,
     OperatingPointOut,
@@ -70,6 +74,7 @@ def _analyze(design: Design) -> Result:
     v = verdict(gain, op)
     V_be, V_ce = _fixed_bias_swing(s, gain)
     findings = rule_checks(s, budget, poles, V_ce)
+    findings += tank_checks(s, budget)
     ls = describing_function(s)
     findings += squegging_risk(s, poles)
     if not ls.valid and ls.x is not None and ls.reason:
@@ -79,6 +84,8 @@ def _analyze(design: Design) -> Result:
     if threshold.value is None and threshold.reason:
         findings.append(Finding("no-threshold", threshold.reason))
     dom = poles.dominant
+    hand = hand_formula(design, hp.gm)
+    story = gain_story(hand, gain, budget) if gain is not None else None
     return Result(
         name=design.name,
         topology=design.topology.value,
@@ -105,11 +112,21 @@ def _analyze(design: Design) -> Result:
         loop=LoopOut(
             f_osc=f_osc,
             gain=gain,
-            gain_ideal=ideal_gain(design, hp.gm),
+            gain_ideal=hand.value,
             phase_slope=float(s.loop.phase_slope),
             Q_loaded=float(s.loop.Q_loaded),
             Z_out=float(s.loop.Z_out),
             budget=[BudgetLineOut(**vars(line)) for line in budget],
+            story=None
+            if story is None
+            else GainStoryOut(
+                formula=hand.symbols,
+                numbers=hand.numbers,
+                hand=hand.value,
+                full=story.full,
+                gap_dB=story.gap_dB,
+                losses=[LossOut(**vars(loss)) for loss in story.losses],
+            ),
         ),
         poles=PolesOut(
             sigma=dom.sigma if dom else None,

@@ -8,7 +8,9 @@ small-signal statement about the loop as biased.  All variants are solved in
 one batched call.
 
 The cost of an element is 20·log10(gain_without / gain) in dB; its share is
-its cost over the sum of the positive costs.
+its cost over the sum of the positive costs of the losses.  The gain-setting
+resistor is listed (``in_hand``) but is no loss: it is part of the hand
+formula, so it takes no share.
 """
 
 from __future__ import annotations
@@ -38,6 +40,7 @@ class BudgetItem:
     label: str
     parts: tuple[str, ...] = ()
     hybrid: dict[str, float] = dataclasses.field(default_factory=dict)
+    in_hand: bool = False
 
 
 @dataclass(frozen=True)
@@ -48,6 +51,7 @@ class BudgetLine:
     f_without: float | None
     cost_dB: float | None
     share: float | None
+    in_hand: bool
 
 
 def budget_items(netlist: Netlist, gain_setter: str) -> list[BudgetItem]:
@@ -62,8 +66,9 @@ def budget_items(netlist: Netlist, gain_setter: str) -> list[BudgetItem]:
         items.append(BudgetItem("R_load", "Load R_load", ("R_load",)))
     for name in ("RC", "RE"):
         if name in netlist:
-            role = "gain-setting resistor" if name == gain_setter else "loading resistor"
-            items.append(BudgetItem(name, f"{name} ({role})", (name,)))
+            setter = name == gain_setter
+            role = "gain-setting resistor" if setter else "loading resistor"
+            items.append(BudgetItem(name, f"{name} ({role})", (name,), in_hand=setter))
     for name, label in (("CE", "Emitter bypass CE"), ("CB", "Base bypass CB")):
         if name in netlist:
             items.append(BudgetItem(name, label, (name,)))
@@ -119,11 +124,15 @@ def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
     for g in figs.gain:
         ok = np.isfinite(g) and gain > 0
         costs.append(20.0 * math.log10(g / gain) if ok else None)
-    positive = sum(c for c in costs if c is not None and c > 0)
+    positive = sum(
+        c
+        for c, item in zip(costs, items, strict=True)
+        if c is not None and c > 0 and not item.in_hand
+    )
     lines = []
     for item, g, f, cost in zip(items, figs.gain, figs.f_osc, costs, strict=True):
         share = None
-        if cost is not None and positive > 0:
+        if cost is not None and positive > 0 and not item.in_hand:
             share = max(cost, 0.0) / positive
         lines.append(
             BudgetLine(
@@ -133,6 +142,7 @@ def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
                 f_without=float(f) if np.isfinite(f) else None,
                 cost_dB=cost,
                 share=share,
+                in_hand=item.in_hand,
             )
         )
     return lines

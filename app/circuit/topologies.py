@@ -43,6 +43,7 @@ from ringwise.circuit.netlist import (
 )
 from ringwise.circuit.npn import BETA_REVERSE, saturation_current, thermal_voltage
 from ringwise.design import Design, Topology
+from ringwise.units import format_si
 
 #: Node names shared by all forms.
 VCC, COLLECTOR, BASE, EMITTER = "vcc", "c", "b", "e"
@@ -102,23 +103,59 @@ def device_params(design: Design) -> NPNParams:
     )
 
 
-def ideal_gain(design: Design, gm: float) -> float:
+@dataclass(frozen=True)
+class HandFormula:
+    """The hand-method loop gain of a form, as a formula, with its numbers and value.
+
+    ``symbols`` is the formula in symbols, ``numbers`` the same with the
+    design's values put in (engineering notation), ``value`` the result.
+    """
+
+    symbols: str
+    numbers: str
+    value: float
+
+
+def hand_formula(design: Design, gm: float) -> HandFormula:
     r"""Return ratio of the lossless circuit with only the gain-setting resistor.
 
     Common-emitter :math:`g_m R_C C_1/C_2`; common-base
-    :math:`g_m R_C C_1 C_2/(C_1+C_2)^2` (R_C sits across L, whose voltage is
-    :math:`(C_1+C_2)/C_2` times the collector-emitter voltage); common-collector
-    :math:`g_m R_E C_1/C_2`.  These are the hand-method figures the full
-    model is compared with.
+    :math:`g_m R_C C_1 C_2/(C_1+C_2)^2`; common-collector
+    :math:`g_m R_E C_1/C_2`.  The Clapp capacitor C3 sets the frequency but
+    leaves these figures unchanged: at resonance the gain resistor sees an
+    open tank whichever branch carries C3.
+
+    The common-base figure is the limit R_C ≫ ω·L of the lossless return
+    ratio (R_C across L, whose voltage is :math:`(C_1+C_2)/C_1` times the
+    emitter's); the exact zero-phase value is that figure divided by
+    :math:`1 + (\omega L/R_C)^2` (derived in SymPy,
+    ``tests/circuit/test_topologies.py``).  Razavi, *Design of Analog CMOS
+    Integrated Circuits*, LC-oscillator chapter, states the same start-up
+    condition :math:`g_m R_p \ge (C_1+C_2)^2/(C_1 C_2)` (from memory).
+
+    These are the hand-method figures the full model is compared with.
     """
     t, b = design.tank, design.bias
-    if design.topology is Topology.CE:
-        assert b.RC is not None
-        return gm * b.RC * t.C1 / t.C2
+    clapp = "" if t.C3 is None else f"  (C3 = {format_si(t.C3, 'F')} sets f, not the gain)"
+    gm_t, C1_t, C2_t = format_si(gm, "S"), format_si(t.C1, "F"), format_si(t.C2, "F")
     if design.topology is Topology.CB:
         assert b.RC is not None
-        return gm * b.RC * t.C1 * t.C2 / (t.C1 + t.C2) ** 2
-    return gm * b.RE * t.C1 / t.C2
+        value = gm * b.RC * t.C1 * t.C2 / (t.C1 + t.C2) ** 2
+        symbols = "g_m·RC·C1·C2/(C1+C2)²"
+        numbers = f"{gm_t} × {format_si(b.RC, 'Ω')} × {C1_t} × {C2_t} / ({C1_t} + {C2_t})²"
+    else:
+        name = "RE" if design.topology is Topology.CC else "RC"
+        R = b.RE if design.topology is Topology.CC else b.RC
+        assert R is not None
+        value = gm * R * t.C1 / t.C2
+        symbols = f"g_m·{name}·C1/C2"
+        numbers = f"{gm_t} × {format_si(R, 'Ω')} × {C1_t} / {C2_t}"
+    return HandFormula(symbols=symbols, numbers=f"{numbers} = {value:.4g}{clapp}", value=value)
+
+
+def ideal_gain(design: Design, gm: float) -> float:
+    """The hand-method loop gain (the value of :func:`hand_formula`)."""
+    return hand_formula(design, gm).value
 
 
 def build(design: Design) -> Netlist:

@@ -18,7 +18,7 @@ from ringwise.analysis.loop import return_ratio
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.threshold import LINEAR_PARAMS, sweep
 from ringwise.design import PARAMETERS, Design, get_param
-from ringwise.web.fields import BY_NAME
+from ringwise.web.fields import BY_NAME, display
 
 TWO_PI: Final = 2.0 * math.pi
 #: The loop curve spans f_ideal / LOOP_SPAN ... f_ideal · LOOP_SPAN.
@@ -119,16 +119,31 @@ def what_if(design: Design, param: str, threshold_hint: float | None) -> dict[st
     }
 
 
-def budget_bars(budget: list[dict[str, Any]]) -> dict[str, Any]:
-    """The loop-gain budget sorted by cost, largest first, for a horizontal bar chart."""
-    lines = sorted(
-        (b for b in budget if b["cost_dB"] is not None), key=lambda b: b["cost_dB"], reverse=True
+def budget_bars(loop: dict[str, Any]) -> dict[str, Any]:
+    """The loop-gain story as a horizontal bar chart: the hand formula with its
+    numbers, then each loss the hand method ignores (the core's order, largest
+    first, "the rest" last) with the text its bar prints."""
+    story = loop.get("story")
+    losses = story["losses"] if story else []
+    caption = (
+        f"Hand formula {story['formula']} = {story['numbers']}; full circuit "
+        f"{display(story['full'], '')}, {story['gap_dB']:.2f} dB below"
+        if story
+        else ""
     )
     return {
-        "labels": [b["label"] for b in lines],
-        "elements": [b["element"] for b in lines],
-        "cost_dB": [b["cost_dB"] for b in lines],
-        "share": [b["share"] for b in lines],
+        "caption": caption,
+        "formula": story["formula"] if story else None,
+        "numbers": story["numbers"] if story else None,
+        "hand": story["hand"] if story else None,
+        "full": story["full"] if story else None,
+        "gap_dB": story["gap_dB"] if story else None,
+        "labels": [x["label"] for x in losses],
+        "elements": [x["element"] for x in losses],
+        "cost_dB": [x["cost_dB"] for x in losses],
+        "fraction": [x["fraction"] for x in losses],
+        "share": [x["share"] for x in losses],
+        "text": [x["text"] for x in losses],
     }
 
 

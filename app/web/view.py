@@ -353,7 +353,7 @@ def build_view(
                 design, result["tank"]["C_series"], result["tank"]["f_ideal"]
             ),
             "sweep": what_if,
-            "budget": curves.budget_bars(result["loop"]["budget"]),
+            "budget": curves.budget_bars(result["loop"]),
             "noise": curves.noise_curve(result["stability"]),
         },
     )

@@ -14,6 +14,7 @@ from ringwise.analysis.threshold import MAX_SWEEP_POINTS
 from ringwise.design import Design
 from ringwise.web.fields import FIELDS
 from ringwise.web.paths import SAMPLES_DIR
+from tests.conftest import all_finite
 
 SAMPLE_KEYS = sorted(p.stem for p in SAMPLES_DIR.glob("*.json"))
 
@@ -219,8 +220,9 @@ def test_no_input_text_gives_500(client, sample, name, text):
         assert all(
             v is None or (isinstance(v, float | int) and math.isfinite(v))
             for v in view["result"]["loop"].values()
-            if not isinstance(v, list)
+            if not isinstance(v, list | dict)
         )
+        assert all_finite(view["result"]["loop"])
 
 
 @settings(

@@ -152,3 +152,28 @@ def test_bad_cycles_say_why_and_keep_the_text(context, live_server):
     assert sheet.page.input_value("#run-cycles") == "5"
     # Chromium logs the 422 answer itself; nothing else may be logged
     assert all("status of 422" in e for e in sheet.errors), sheet.errors
+
+
+def test_budget_tells_the_hand_formula_and_prints_each_cost(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")
+    want = expected(client, sheet.inputs())["curves"]["budget"]
+    assert want["formula"] == "g_m·RC·C1·C2/(C1+C2)²"
+    formula = "[data-role='hand-formula']"
+    assert sheet.page.text_content(formula) == want["caption"]
+    sheet.page.locator("#plot-budget").scroll_into_view_if_needed()
+    sheet.page.wait_for_selector("#plot-budget .main-svg")
+    # every bar prints its cost in dB and %; the gain-setting resistor is no bar
+    texts = sheet.page.eval_on_selector("#plot-budget", "el => el.data[0].text")
+    assert texts == want["text"]
+    assert "RC" not in want["elements"]
+    printed = sheet.page.locator("#plot-budget .bartext").all_text_contents()
+    assert sorted(printed) == sorted(want["text"])
+    # live: a lossier coil changes the caption with the answer
+    sheet.page.fill("[name='Q_L']", "20")
+    settle(sheet, client)
+    again = expected(client, sheet.inputs())["curves"]["budget"]
+    sheet.page.wait_for_function(
+        "([sel, t]) => document.querySelector(sel).textContent === t",
+        arg=[formula, again["caption"]],
+    )
+    assert sheet.errors == []

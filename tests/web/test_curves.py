@@ -66,8 +66,14 @@ def test_what_if_and_budget(design):
     assert s["values"][0] < s["current"] < s["values"][-1]
     if s["threshold"] is not None:
         assert s["values"][0] < s["threshold"] < s["values"][-1]
-    bars = curves.budget_bars(result["loop"]["budget"])
-    assert bars["cost_dB"] == sorted(bars["cost_dB"], reverse=True)
+    bars = curves.budget_bars(result["loop"])
+    listed = [c for c, e in zip(bars["cost_dB"], bars["elements"], strict=True) if e != "rest"]
+    assert listed == sorted(listed, reverse=True)
+    assert sum(bars["cost_dB"]) == pytest.approx(bars["gap_dB"])
+    assert len(bars["text"]) == len(bars["labels"])
+    # the gain-setting resistor is in the hand formula, not among the losses
+    assert result["startup"]["threshold_param"] not in bars["elements"]
+    assert bars["formula"] and f"= {bars['hand']:.4g}" in bars["numbers"]
 
 
 def test_e24_ladder():
