@@ -10,15 +10,14 @@ import json
 import statistics
 import time
 from collections.abc import Callable
-from pathlib import Path
 from typing import Final
 
 from ringwise.analysis.analyze import _analyze, analyze
 from ringwise.analysis.threshold import sweep
 from ringwise.circuit.topologies import GAIN_SETTER
 from ringwise.design import Design, get_param
+from ringwise.resources import sample_files
 
-SAMPLES: Final = Path(__file__).resolve().parent.parent / "sample_designs"
 #: Targets, seconds.
 ANALYZE_TARGET: Final = 5e-3
 SWEEP_TARGET: Final = 200e-3
@@ -65,8 +64,7 @@ def bench_core() -> list[str]:
 
     lines = ["analysis core (median CPU time of 30 runs each):"]
     designs = [
-        Design.model_validate(json.loads(p.read_text(encoding="utf-8")))
-        for p in sorted(SAMPLES.glob("*.json"))
+        Design.model_validate(json.loads(p.read_text(encoding="utf-8"))) for p in sample_files()
     ]
     for d in designs:
         lines.append(
@@ -112,7 +110,7 @@ def bench_transient() -> list[str]:
         f"transient, {TRANSIENT_CYCLES} cycles (wall time, one run each) vs scipy solve_ivp Radau "
         "rtol 1e-7:"
     ]
-    for path in sorted(SAMPLES.glob("*.json")):
+    for path in sample_files():
         d = Design.model_validate(json.loads(path.read_text(encoding="utf-8")))
         t0 = time.perf_counter()
         ours = run(d, cycles=TRANSIENT_CYCLES)
@@ -139,9 +137,7 @@ def bench_spread() -> list[str]:
     from ringwise.analysis.operating import solve
     from ringwise.analysis.spread import draw, monte_carlo, sample_design
 
-    d = Design.model_validate(
-        json.loads(sorted(SAMPLES.glob("*.json"))[0].read_text(encoding="utf-8"))
-    )
+    d = Design.model_validate(json.loads(sample_files()[0].read_text(encoding="utf-8")))
     t0 = time.perf_counter()
     r = monte_carlo(d, samples=SPREAD_SAMPLES, seed=1)
     t_batch = time.perf_counter() - t0

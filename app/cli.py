@@ -14,6 +14,7 @@ from typing import Any
 
 from pydantic import ValidationError
 
+from ringwise import __version__
 from ringwise.analysis.analyze import analyze
 from ringwise.analysis.reconcile import ReconcileError, reconcile
 from ringwise.analysis.sensitivity import sensitivities
@@ -211,6 +212,7 @@ def parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="ringwise", description="Design sheet for Colpitts-family LC oscillators."
     )
+    p.add_argument("--version", action="version", version=f"ringwise {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
 
     a = sub.add_parser("analyze", help="print the full analysis of a design as JSON")

@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 from typing import Any, Final
 
 from ringwise.units import parse_quantity
-from ringwise.web.paths import ROOT, SAMPLES_DIR
+from ringwise.web.paths import SAMPLES_DIR
 
 DEFAULT_CLIENTS: Final = 200
 DEFAULT_SECONDS: Final = 30.0
@@ -130,7 +130,7 @@ class _Server:
         return f"http://127.0.0.1:{self.port}"
 
     def __enter__(self) -> _Server:
-        self.process = subprocess.Popen(self.command, cwd=ROOT)
+        self.process = subprocess.Popen(self.command)
         deadline = time.monotonic() + 30
         while True:
             if self.process.poll() is not None:
@@ -168,7 +168,7 @@ async def _one(client: Any, stats: Stats, kind: str, path: str, body: dict) -> N
 
 
 async def _run(url: str, clients: int, seconds: float, max_requests: int, heavy: bool) -> Stats:
-    import httpx
+    import httpx2 as httpx
 
     design = json.loads((SAMPLES_DIR / f"{SAMPLE}.json").read_text(encoding="utf-8"))
     base_RC = parse_quantity(design["bias"]["RC"], "Ω")

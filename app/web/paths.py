@@ -1,12 +1,11 @@
-"""Folders the web layer reads, resolved from this package (never the working folder)."""
+"""Folders the web layer reads, from the installed package (never the working folder)."""
 
 from __future__ import annotations
 
-from pathlib import Path
 from typing import Final
 
-#: The project root: app/web/paths.py -> app/web -> app -> root.
-ROOT: Final = Path(__file__).resolve().parents[2]
-TEMPLATES_DIR: Final = ROOT / "templates"
-STATIC_DIR: Final = ROOT / "static"
-SAMPLES_DIR: Final = ROOT / "sample_designs"
+from ringwise.resources import SAMPLES, STATIC, TEMPLATES, folder
+
+TEMPLATES_DIR: Final = folder(TEMPLATES)
+STATIC_DIR: Final = folder(STATIC)
+SAMPLES_DIR: Final = folder(SAMPLES)

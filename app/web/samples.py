@@ -1,6 +1,6 @@
 """The sample designs, looked up by name from a fixed list (never by path).
 
-The list is read once from ``sample_designs/``; a request names a sample by
+The list is read once from the package data ``ringwise.sample_designs``; a request names a sample by
 its key (the file's stem) and gets it only if the key is in the list.
 """
 
@@ -11,8 +11,8 @@ from dataclasses import dataclass
 from functools import cache
 from typing import Any
 
+from ringwise.resources import sample_files
 from ringwise.web.fields import texts_from_document
-from ringwise.web.paths import SAMPLES_DIR
 
 
 @dataclass(frozen=True)
@@ -31,7 +31,7 @@ class Sample:
 def samples() -> dict[str, Sample]:
     """Every sample design, by key, in name order."""
     found = {}
-    for path in sorted(SAMPLES_DIR.glob("*.json")):
+    for path in sample_files():
         doc = json.loads(path.read_text(encoding="utf-8"))
         found[path.stem] = Sample(path.stem, doc.get("name", path.stem), doc["topology"], doc)
     return found

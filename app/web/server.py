@@ -3,11 +3,14 @@
 from __future__ import annotations
 
 import ipaddress
+import os
 import sys
 from collections.abc import Awaitable, Callable
+from pathlib import PurePosixPath
 from typing import Any, Final
 
 from fastapi import FastAPI, Request, Response
+from fastapi.middleware.gzip import GZipMiddleware
 from fastapi.responses import FileResponse, JSONResponse
 from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
@@ -89,6 +92,22 @@ class BodyLimit:
         await self.app(scope, counted, send)
 
 
+#: File kinds served from ``static/`` (the package's ``__init__.py`` is not an asset).
+ASSET_SUFFIXES: Final = frozenset({".js", ".css", ".svg"})
+#: Answers smaller than this, bytes, are sent uncompressed (gzip's header and
+#: the work outweigh the saving; Starlette's default, common practice).
+GZIP_MIN_BYTES: Final = 500
+
+
+class AssetFiles(StaticFiles):
+    """``StaticFiles`` limited to the sheet's asset kinds."""
+
+    def lookup_path(self, path: str) -> tuple[str, os.stat_result | None]:
+        if PurePosixPath(path).suffix not in ASSET_SUFFIXES:
+            return "", None
+        return super().lookup_path(path)
+
+
 def _document_errors(app: FastAPI) -> None:
     """Every error answer in the OpenAPI schema has the one error shape, every
     operation that takes a body documents the body cap (413), and every field
@@ -166,7 +185,7 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
     app.include_router(simulate.router)
     app.include_router(spread.router)
     app.include_router(pages.router)
-    app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
+    app.mount("/static", AssetFiles(directory=STATIC_DIR), name="static")
     vendored = plotly_js()
 
     @app.get(vendored.url, include_in_schema=False)
@@ -175,6 +194,8 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
 
     # added before the headers middleware, so it runs inside it: refused bodies get the headers
     app.add_middleware(BodyLimit, limit=MAX_BODY_BYTES)
+    # text answers (plotly.js is 4.8 MB, a third of that gzipped) compressed when asked for
+    app.add_middleware(GZipMiddleware, minimum_size=GZIP_MIN_BYTES)
 
     @app.middleware("http")
     async def headers(

@@ -21,10 +21,11 @@ from typing import Any
 import pytest
 from fastapi.testclient import TestClient
 
-from ringwise.web.paths import ROOT, SAMPLES_DIR
+from ringwise.web.paths import SAMPLES_DIR
 from ringwise.web.server import create_app
 
-ARTIFACTS = ROOT / "test-artifacts"
+#: Screenshots and PDFs of the browser tests, in the checkout (ignored by git).
+ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
 CHROMIUM_ARGS = [
     "--no-sandbox",
     "--disable-gpu",

@@ -6,7 +6,7 @@ import json
 import threading
 import time
 
-import httpx
+import httpx2 as httpx
 
 from ringwise.web import load
 from ringwise.web.paths import SAMPLES_DIR

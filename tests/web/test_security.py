@@ -356,7 +356,7 @@ def test_the_server_writes_nothing(client, sample, tmp_path, monkeypatch):
     monkeypatch.setattr(tempfile, "tempdir", str(tmp))
     for var in ("TMPDIR", "TEMP", "TMP"):
         monkeypatch.setenv(var, str(tmp))
-    samples_before = {p.name: p.read_bytes() for p in SAMPLES_DIR.iterdir()}
+    samples_before = {p.name: p.read_bytes() for p in SAMPLES_DIR.glob("*.json")}
     writes: list[str] = []
     real_open, real_os_open = builtins.open, os.open
 
@@ -384,7 +384,7 @@ def test_the_server_writes_nothing(client, sample, tmp_path, monkeypatch):
     monkeypatch.undo()
     assert writes == []
     assert list(cwd.iterdir()) == [] and list(tmp.iterdir()) == []
-    assert {p.name: p.read_bytes() for p in SAMPLES_DIR.iterdir()} == samples_before
+    assert {p.name: p.read_bytes() for p in SAMPLES_DIR.glob("*.json")} == samples_before
 
 
 # --- 5. markup from a link or a file is text in every page and file -----------------------

@@ -1,0 +1,1 @@
+"""The sheet's Jinja2 templates, installed as package data of ``ringwise.templates``."""
