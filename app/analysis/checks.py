@@ -12,15 +12,13 @@ from dataclasses import dataclass
 from typing import Final
 
 from ringwise.analysis.budget import BudgetLine
-from ringwise.analysis.dc import Region
+from ringwise.analysis.criteria import VCE_HEADROOM, Region
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.poles import PoleFigures
 from ringwise.units import format_si
 
 #: The divider current should be at least this multiple of the base current.
 STIFF_DIVIDER: Final = 10.0
-#: Smallest V_CE left at the bottom of the swing, V.
-VCE_MARGIN: Final = 0.3
 #: Dissipation worth a look in a small-signal package, W.
 P_DEVICE_WARN: Final = 0.25
 #: C1/C2 outside this band is unusual.
@@ -89,13 +87,13 @@ def rule_checks(
         )
     if V_ce_swing is not None and op.region is Region.ACTIVE:
         floor = op.VCE - V_ce_swing
-        if floor < VCE_MARGIN:
+        if floor < VCE_HEADROOM:
             out.append(
                 Finding(
                     "low-headroom",
                     f"expected V_CE swing {format_si(V_ce_swing, 'V')} (amplitude) on "
                     f"VCE = {format_si(op.VCE, 'V')} leaves {format_si(floor, 'V')} "
-                    f"(want ≥ {VCE_MARGIN:g} V): the swing will run into saturation",
+                    f"(want ≥ {VCE_HEADROOM:g} V): the swing will run into saturation",
                 )
             )
     if op.P_device > P_DEVICE_WARN:

@@ -40,6 +40,7 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import i0e
 
+from ringwise.analysis.criteria import VCE_HEADROOM, Region
 from ringwise.analysis.dc import DCConvergenceError, operating_point, solve_dc
 from ringwise.analysis.loop import find_oscillation
 from ringwise.analysis.operating import Solved
@@ -49,9 +50,6 @@ from ringwise.circuit.netlist import NPN
 from ringwise.circuit.npn import hybrid_pi
 from ringwise.circuit.topologies import T1
 
-#: Smallest V_CE the swing may reach before the estimate is called invalid
-#: (the collector runs into saturation), V; common practice, no source.
-VCE_SATURATION_EDGE: Final = 0.2
 #: Beyond this drive the junction conducts in short pulses only; the
 #: sinusoidal-drive assumption is poor, V/V_T.
 X_PULSED: Final = 40.0
@@ -154,7 +152,7 @@ def describing_function(solved: Solved) -> LargeSignal:
     """Self-consistent describing-function amplitude of a solved design."""
     gain = solved.gain if solved.f_osc is not None else 0.0
     x_fixed = fixed_bias_drive(gain) if gain > 1.0 else None
-    if solved.op.region.value != "active" or x_fixed is None:
+    if solved.op.region is not Region.ACTIVE or x_fixed is None:
         return LargeSignal(
             None, None, None, None, None, None, None, None, x_fixed, False,
             "no steady oscillation: the loop gain is below 1 or the transistor is not active",
@@ -213,7 +211,7 @@ def _figures(solved: Solved, x: float, x_fixed: float, op, ss, loop) -> LargeSig
     I_L = abs(sol[lay.branch["L"]]) * scale
     P_tank = 0.5 * I_L**2 * solved.tank.R_s
     valid, reason = True, None
-    if op.VCE - amp_ce < VCE_SATURATION_EDGE:
+    if op.VCE - amp_ce < VCE_HEADROOM:
         valid = False
         reason = (
             f"the collector-emitter swing ({amp_ce:.3g} V on an average {op.VCE:.3g} V) "

@@ -29,19 +29,21 @@ from typing import Final
 import numpy as np
 from scipy import constants
 
+from ringwise.analysis.criteria import ACTIVE_CODE, MARGINAL_BELOW, region_codes, starts
+from ringwise.analysis.dc import solve_dc_batch
 from ringwise.analysis.loop import find_oscillation
 from ringwise.analysis.operating import Solved, solve
-from ringwise.analysis.startup import MARGINAL_BELOW
 from ringwise.circuit.mna import (
     LinearSystem,
     Patterns,
     assemble_batch,
-    incidence,
+    device_currents,
+    incidence_of,
     linear_patterns,
-    nonlinear_residual_batch,
     small_signal,
 )
-from ringwise.circuit.npn import BETA_REVERSE, HybridPi, saturation_current, thermal_voltage
+from ringwise.circuit.netlist import NPNParams
+from ringwise.circuit.npn import BETA_REVERSE, hybrid_pi, saturation_current, thermal_voltage
 from ringwise.circuit.topologies import build
 from ringwise.design import CAPACITOR_PARTS, Design, with_param
 from ringwise.errors import DesignError
@@ -54,10 +56,6 @@ C0G_TEMPCO: Final = 30e-6
 #: as a linear drift, at most 15 % per 100 °C from 25 °C.
 X7R_DRIFT_PER_100C: Final = 0.15
 T_REFERENCE_C: Final = 25.0
-#: Batched DC Newton: step limit on a junction voltage (V), tolerance, iterations.
-DC_STEP_LIMIT: Final = 0.1
-DC_TOL: Final = 1e-11
-DC_MAX_ITER: Final = 100
 PERCENTILES: Final = (1, 5, 50, 95, 99)
 #: The frequency-against-temperature band: this many temperatures across the
 #: range, each with up to TEMPERATURE_BAND_SAMPLES samples.
@@ -143,6 +141,16 @@ class Batch:
     IC: np.ndarray
     VCE: np.ndarray
     converged: np.ndarray
+    #: Region of each sample as an index into ``criteria.REGIONS``.
+    region: np.ndarray
+
+    @property
+    def active(self) -> np.ndarray:
+        return self.region == ACTIVE_CODE
+
+    @property
+    def starts(self) -> np.ndarray:
+        return starts(self.gain, self.active)
 
 
 @dataclass(frozen=True)
@@ -181,20 +189,18 @@ def analyse_batch(
     system = assemble_batch(pat, stamp)
     T_K = T_C + constants.zero_Celsius
     dev = design.device
-    params = {
-        "IS": saturation_current(1.0, T_K) * vals["IS"],
-        "beta": vals["beta"],
-        "beta_R": np.full(n_samples, BETA_REVERSE),
-        "VA": np.full(n_samples, dev.VA),
-        "VT": np.full(n_samples, thermal_voltage(T_K)),
-    }
-    inc = incidence(pat.layout, pat.devices[0])
-    x, q, ok = _dc_batch(system, inc, params, nominal.op.x)
-    gm = q[4]
-    C_pi = np.maximum(gm / (2.0 * math.pi * dev.fT) - dev.C_mu, 0.0)
-    hp = HybridPi(
-        gm=gm, g_pi=q[6], g_o=q[5], g_r=q[7], C_pi=C_pi, C_mu=np.full(n_samples, dev.C_mu)
+    params = NPNParams(
+        IS=saturation_current(vals["IS"], T_K),
+        beta=vals["beta"],
+        beta_R=BETA_REVERSE,
+        VA=dev.VA,
+        VT=thermal_voltage(T_K),
+        fT=dev.fT,
+        C_mu=dev.C_mu,
     )
+    dc = solve_dc_batch(system, params, nominal.op.x, n_samples)
+    d = device_currents(incidence_of(system), np.nan_to_num(dc.x), params)
+    hp = hybrid_pi(d.junction, dev.fT, dev.C_mu)
     ss = small_signal(LinearSystem(pat.layout, system.G, system.C, system.b, pat.devices), hp)
     f_ideal = w0 / (2.0 * math.pi)
     # Start each sample's search where the nominal design's crossing sits
@@ -204,25 +210,8 @@ def analyse_batch(
     with np.errstate(divide="ignore", invalid="ignore"):
         sigma = np.where(loop.found, ((1.0 - loop.T) / loop.dT_ds).real, np.nan)
     gain = np.where(np.isfinite(loop.f_osc), loop.gain, 0.0)
-    return Batch(T_C, loop.f_osc, gain, sigma, q[0], x @ inc.W_CE, ok)
-
-
-def _dc_batch(system: LinearSystem, inc, params, x_start: np.ndarray):
-    """Batched Newton on the nodal equations, from the nominal design's DC point."""
-    B = len(params["IS"])
-    x = np.tile(x_start, (B, 1))
-    done = np.zeros(B, dtype=bool)
-    for _ in range(DC_MAX_ITER):
-        F, J, q = nonlinear_residual_batch(system.G, system.b, inc, x, params)
-        dx = np.linalg.solve(J, -F[..., None])[..., 0]
-        dv = np.maximum(np.abs(dx @ inc.W_BE), np.abs(dx @ (inc.W_BE - inc.W_CE)))
-        alpha = np.minimum(1.0, DC_STEP_LIMIT / np.maximum(dv, 1e-300))
-        x = x + alpha[:, None] * dx
-        done = (alpha == 1.0) & np.all(np.abs(dx) <= DC_TOL + 1e-9 * np.abs(x), axis=1)
-        if np.all(done):
-            break
-    _F, _J, q = nonlinear_residual_batch(system.G, system.b, inc, x, params)
-    return x, q, done
+    region = np.where(dc.converged, region_codes(d.junction.I_F, d.junction.I_R), 2)
+    return Batch(T_C, loop.f_osc, gain, sigma, d.junction.IC, d.vce, dc.converged, region)
 
 
 @dataclass(frozen=True)
@@ -277,13 +266,13 @@ def monte_carlo(
     ]
     gains = np.stack([b.gain for b in batches])  # (corners, samples)
     freqs = np.stack([b.f_osc for b in batches])
-    active = np.stack([(b.VCE > 0.2) & (b.IC > 0) & b.converged for b in batches])
-    starts = (gains > 1.0) & active
+    active = np.stack([b.active for b in batches])
+    started = np.stack([b.starts for b in batches])
     margin_ok = (gains > margin) & active
     in_window = None
     if window is not None:
         inside = (freqs >= window[0]) & (freqs <= window[1])
-        in_window = float(np.mean(np.all(inside & starts, axis=0)))
+        in_window = float(np.mean(np.all(inside & started, axis=0)))
     worst = []
     min_gain = np.min(gains, axis=0)
     for i in np.argsort(min_gain)[:WORST_CASES]:
@@ -311,10 +300,10 @@ def monte_carlo(
         seed=seed,
         temperatures=draws.temperatures,
         margin=margin,
-        yield_start=float(np.mean(np.all(starts, axis=0))),
+        yield_start=float(np.mean(np.all(started, axis=0))),
         yield_margin=float(np.mean(np.all(margin_ok, axis=0))),
         yield_by_temperature={
-            T: float(np.mean(s)) for T, s in zip(draws.temperatures, starts, strict=True)
+            T: float(np.mean(s)) for T, s in zip(draws.temperatures, started, strict=True)
         },
         in_window=in_window,
         window=window,

@@ -1,9 +1,7 @@
 """Startup verdict and the first amplitude estimate.
 
-Verdict bands, common practice (no source): a loop gain below 1 does not
-start; 1 to 2 is marginal, since part tolerances and temperature can take
-it below 1; 2 to 10 starts reliably; far above about 10 the oscillator starts
-but runs hard into limiting and distorts heavily.
+Verdict bands and what "starts" means: :mod:`ringwise.analysis.criteria`
+(the same definitions the Monte Carlo yield counts with).
 
 Amplitude: with a fixed bias current, the large-signal transconductance of
 the exponential junction at a drive x = V_be/V_T is
@@ -23,10 +21,16 @@ from typing import Final
 from scipy.optimize import brentq
 from scipy.special import i0e, i1e
 
-from ringwise.analysis.dc import OperatingPoint, Region
+from ringwise.analysis.criteria import (
+    MARGINAL_BELOW,
+    OVERDRIVEN_ABOVE,
+    START_GAIN,
+    Region,
+    starts,
+)
+from ringwise.analysis.dc import OperatingPoint
 
-MARGINAL_BELOW: Final = 2.0
-OVERDRIVEN_ABOVE: Final = 10.0
+__all__ = ["MARGINAL_BELOW", "OVERDRIVEN_ABOVE", "Verdict", "fixed_bias_drive", "verdict"]
 #: Largest drive searched, in units of V_T.
 MAX_DRIVE: Final = 1e4
 
@@ -58,7 +62,7 @@ def verdict(gain: float | None, op: OperatingPoint) -> Verdict:
         elif gain is None:
             label += " (no zero-phase crossing)"
         return Verdict("will-not-start", label, margin, _dB(margin))
-    if gain < 1.0:
+    if not starts(gain, True):
         key = "will-not-start"
     elif gain < MARGINAL_BELOW:
         key = "marginal"
@@ -82,7 +86,7 @@ def gm_ratio(x: float) -> float:
 
 def fixed_bias_drive(gain: float) -> float | None:
     """Drive x at which gain·G_m(x)/g_m = 1 (``None`` when gain ≤ 1: no oscillation)."""
-    if gain <= 1.0:
+    if gain <= START_GAIN:
         return None
     target = 1.0 / gain
     return brentq(lambda x: gm_ratio(x) - target, 0.0, MAX_DRIVE, xtol=1e-12)

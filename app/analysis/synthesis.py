@@ -26,6 +26,7 @@ import math
 from dataclasses import dataclass
 from typing import Final
 
+from ringwise.analysis.criteria import VCE_HEADROOM
 from ringwise.analysis.operating import solve
 from ringwise.circuit.npn import T_NOMINAL, thermal_voltage
 from ringwise.design import Design, Topology, with_param
@@ -55,8 +56,6 @@ FREQUENCY_TRIMS: Final = 4
 #: The gain resistor is first sized for this multiple of the target hand gain,
 #: leaving room for the losses the full model then counts.
 LOSS_ALLOWANCE: Final = 2.0
-#: Least collector-emitter voltage a design may be biased at, V.
-MIN_VCE: Final = 0.5
 RATIO_BOUNDS: Final = (0.05, 20.0)
 
 
@@ -96,7 +95,7 @@ def synthesize(
     reasons: list[str] = []
     VE = max(VE_MIN, VE_FRACTION * Vcc)
     VBE = VT * math.log(IC / dev["IS"])
-    if Vcc < VE + VBE + MIN_VCE:
+    if Vcc < VE + VBE + VCE_HEADROOM:
         raise SynthesisError(f"Vcc = {Vcc:g} V leaves no headroom above V_E + V_BE")
     RE = nearest(VE / IC, "E24")
     reasons.append(

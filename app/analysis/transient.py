@@ -44,7 +44,7 @@ from typing import Final
 import numpy as np
 
 from ringwise.analysis.operating import Solved, solve
-from ringwise.circuit.mna import LinearSystem, _stamp_pair, incidence
+from ringwise.circuit.mna import LinearSystem, incidence, with_junction_capacitances
 from ringwise.circuit.npn import junction_currents
 from ringwise.circuit.topologies import T1
 from ringwise.design import Design, Topology
@@ -121,9 +121,8 @@ def transient_system(solved: Solved) -> tuple[LinearSystem, np.ndarray]:
     """The circuit's matrices with C_π and C_μ added, and the kicked initial state."""
     system = solved.system
     dev = system.devices[0]
-    C = system.C.copy()
-    _stamp_pair(C, system.layout, dev.b, dev.e, solved.hybrid.C_pi)
-    _stamp_pair(C, system.layout, dev.b, dev.c, solved.hybrid.C_mu)
+    inc = incidence(system.layout, dev)
+    C = with_junction_capacitances(system.C, inc, solved.hybrid.C_pi, solved.hybrid.C_mu)
     x0 = solved.op.x.copy()
     f = solved.f_osc or solved.tank.f_ideal
     # A coil current i gives a tank voltage of about i·ω·L.
@@ -155,23 +154,23 @@ class _Stepper:
     """Trapezoidal steps with the factorisation kept per step size."""
 
     def __init__(self, system: LinearSystem) -> None:
-        lay = system.layout
         dev = system.devices[0]
         self.system = system
         p = dev.params
         self.dev_args = (p.IS, p.beta, p.beta_R, p.VA, p.VT)
-        missing = {dev.c, dev.b, dev.e} - set(lay.node)
-        if missing:
-            raise ValueError(f"transistor terminals at ground are not supported: {missing}")
-        self.ic, self.ib, self.ie = lay.node[dev.c], lay.node[dev.b], lay.node[dev.e]
-        inc = incidence(lay, dev)
-        # columns: where I_C and I_B go (the same incidence as every other analysis)
-        self.P = np.column_stack((inc.P_C, inc.P_B))
+        # The device enters as P·φ(Wᵀx): the same incidence as every other
+        # analysis (mna.device_currents), reduced here to its two controls.
+        inc = incidence(system.layout, dev)
+        self.P, self.W = inc.P, inc.W
+        self.Wt = np.ascontiguousarray(inc.W.T)
+        #: Selects the emitter voltage from a state.
+        self.e_sel = system.layout.unit(dev.e)
         self._cache: dict[float, tuple] = {}
 
     def controls(self, x: np.ndarray) -> tuple[float, float]:
         """(v_BE, v_CE) of state x."""
-        return float(x[self.ib] - x[self.ie]), float(x[self.ic] - x[self.ie])
+        vbe, vce = (self.Wt @ x).tolist()
+        return vbe, vce
 
     def matrices(self, h: float) -> tuple:
         if h not in self._cache:
@@ -181,15 +180,9 @@ class _Stepper:
             B = Ainv @ (2.0 * s.C / h - s.G)
             c = 2.0 * (Ainv @ s.b)
             K = Ainv @ self.P
-            # M = W^T K: the controls' response to the device currents.
-            Kl = K.tolist()
-            ib, ic, ie = self.ib, self.ic, self.ie
-            m = (
-                Kl[ib][0] - Kl[ie][0],
-                Kl[ib][1] - Kl[ie][1],
-                Kl[ic][0] - Kl[ie][0],
-                Kl[ic][1] - Kl[ie][1],
-            )
+            # M = Wᵀ K: the controls' response to the device currents.
+            M = (self.Wt @ K).tolist()
+            m = (M[0][0], M[0][1], M[1][0], M[1][1])
             self._cache[h] = (B, c, K[:, 0].copy(), K[:, 1].copy(), *m)
         return self._cache[h]
 
@@ -200,11 +193,10 @@ class _Stepper:
         """One step from state x (controls v, previous controls v_prev, device state ph)."""
         B, c, K0, K1, m00, m01, m10, m11 = self.matrices(h)
         y = B @ x + c
-        yl = y.tolist()
-        ye = yl[self.ie]
+        wy0, wy1 = (self.Wt @ y).tolist()
         ic_n, ib_n = ph[0], ph[1]
-        a0 = yl[self.ib] - ye - (m00 * ic_n + m01 * ib_n)
-        a1 = yl[self.ic] - ye - (m10 * ic_n + m11 * ib_n)
+        a0 = wy0 - (m00 * ic_n + m01 * ib_n)
+        a1 = wy1 - (m10 * ic_n + m11 * ib_n)
         # Start Newton from the linear extrapolation of the controls, and from
         # the last controls if that does not converge.
         for vbe, vce in ((2.0 * v[0] - v_prev[0], 2.0 * v[1] - v_prev[1]), v):
@@ -301,12 +293,12 @@ def integrate(
     ``progress`` is as in :func:`run`.
     """
     stepper = _Stepper(system)
-    i_out, i_e = system.layout.node[out], stepper.ie
+    i_out, e_sel = system.layout.node[out], stepper.e_sel
     v = stepper.controls(x)
     v_prev = v
     ph = stepper.phi(*v)
     t = 0.0
-    ts, vo, vbe_t, ve = [0.0], [float(x[i_out])], [v[0]], [float(x[i_e])]
+    ts, vo, vbe_t, ve = [0.0], [float(x[i_out])], [v[0]], [float(x @ e_sel)]
     level, h, since_change, rejected, quiet = 0, h0, 0, 0, 0
     scale = KICK_VOLTS
     vo_mean = float(x[i_out])
@@ -338,7 +330,7 @@ def integrate(
         ts.append(t)
         vo.append(out)
         vbe_t.append(v[0])
-        ve.append(float(x[i_e]))
+        ve.append(float(x @ e_sel))
         dev_out = abs(out - vo_mean)
         if dev_out > scale:
             scale = dev_out

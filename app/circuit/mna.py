@@ -35,6 +35,7 @@ from ringwise.circuit.netlist import (
     DCSupply,
     Inductor,
     Netlist,
+    NPNParams,
     Resistor,
 )
 from ringwise.circuit.npn import (
@@ -42,7 +43,6 @@ from ringwise.circuit.npn import (
     JunctionState,
     exp_and_slope_array,
     junction_currents,
-    junction_state,
 )
 
 #: Conductance from every node to ground, S (SPICE's default GMIN).
@@ -173,65 +173,6 @@ def restamp(
     return LinearSystem(system.layout, G, C, system.b, system.devices)
 
 
-def device_voltages(lay: Layout, dev: NPN, x: np.ndarray) -> tuple[float, float]:
-    """(v_BE, v_CE) of a transistor in solution ``x``."""
-    vb = float(lay.v(x, dev.b))
-    ve = float(lay.v(x, dev.e))
-    vc = float(lay.v(x, dev.c))
-    return vb - ve, vc - ve
-
-
-def device_state(lay: Layout, dev: NPN, x: np.ndarray) -> JunctionState:
-    p = dev.params
-    vbe, vce = device_voltages(lay, dev, x)
-    return junction_state(vbe, vce, p.IS, p.beta, p.beta_R, p.VA, p.VT)
-
-
-def nonlinear_residual(
-    system: LinearSystem, x: np.ndarray, source_scale: float = 1.0
-) -> tuple[np.ndarray, np.ndarray]:
-    """F(x) = G x + i_dev(x) − b and its Jacobian, for DC and transient Newton.
-
-    ``source_scale`` multiplies b (used by source stepping).
-    """
-    lay = system.layout
-    F = system.G @ x - source_scale * system.b
-    J = system.G.copy()
-    for dev in system.devices:
-        st = device_state(lay, dev, x)
-        _stamp_device_currents(F, J, lay, dev, st)
-    return F, J
-
-
-def _stamp_device_currents(
-    F: np.ndarray, J: np.ndarray, lay: Layout, dev: NPN, st: JunctionState
-) -> None:
-    """Add the terminal currents (leaving each node into the device) and their Jacobian."""
-    # Terminal currents into the device: IC at c, IB at b, IE = -(IC + IB) at e.
-    # Controls: v_BE = v_b - v_e and v_CE = v_c - v_e.
-    rows = {
-        dev.c: (st.IC, st.dIC_dvbe, st.dIC_dvce),
-        dev.b: (st.IB, st.dIB_dvbe, st.dIB_dvce),
-        dev.e: (
-            -(st.IC + st.IB),
-            -(st.dIC_dvbe + st.dIB_dvbe),
-            -(st.dIC_dvce + st.dIB_dvce),
-        ),
-    }
-    ib, ic, ie = lay.node.get(dev.b), lay.node.get(dev.c), lay.node.get(dev.e)
-    for node, (current, d_vbe, d_vce) in rows.items():
-        r = lay.node.get(node)
-        if r is None:
-            continue
-        F[r] += current
-        if ib is not None:
-            J[r, ib] += d_vbe
-        if ic is not None:
-            J[r, ic] += d_vce
-        if ie is not None:
-            J[r, ie] -= d_vbe + d_vce
-
-
 @dataclass(frozen=True)
 class SmallSignal:
     r"""The circuit linearised at its operating point, with the loop broken.
@@ -262,8 +203,11 @@ class Incidence:
 
     ``P_C`` = e_c − e_e carries I_C (into the collector, out of the emitter),
     ``P_B`` = e_b − e_e carries I_B; ``W_BE`` and ``W_CE`` read v_BE and v_CE
-    from a solution (they equal ``P_B`` and ``P_C`` as vectors).  ``S_BE`` and
-    ``S_BC`` are the unit two-terminal stamps of the junction capacitances.
+    from a solution (they equal ``P_B`` and ``P_C`` as vectors).  ``P`` and
+    ``W`` are the same as (n, 2) matrices, columns (C, B) and (BE, CE): the
+    device adds P·φ(Wᵀx) to the nodal equations.  ``S_BE`` and ``S_BC`` are
+    the unit two-terminal stamps of the junction capacitances.  A terminal at
+    ground simply has no entry.
     """
 
     P_C: np.ndarray
@@ -279,6 +223,14 @@ class Incidence:
     def W_CE(self) -> np.ndarray:
         return self.P_C
 
+    @property
+    def P(self) -> np.ndarray:
+        return np.column_stack((self.P_C, self.P_B))
+
+    @property
+    def W(self) -> np.ndarray:
+        return np.column_stack((self.W_BE, self.W_CE))
+
 
 def incidence(lay: Layout, dev: NPN) -> Incidence:
     n = lay.size
@@ -291,6 +243,88 @@ def incidence(lay: Layout, dev: NPN) -> Incidence:
         S_BE=S_BE,
         S_BC=S_BC,
     )
+
+
+@dataclass(frozen=True)
+class DeviceCurrents:
+    """The transistor's contribution to the nodal equations at a state.
+
+    ``current`` (…, n): i_dev = P_C·I_C + P_B·I_B, A; ``jacobian`` (…, n, n):
+    ∂i_dev/∂x, S; ``junction``: the transport model's currents and
+    derivatives (arrays with the batch shape); ``vbe``, ``vce``: the
+    controlling voltages, V.
+    """
+
+    current: np.ndarray
+    jacobian: np.ndarray
+    junction: JunctionState
+    vbe: np.ndarray
+    vce: np.ndarray
+
+
+def device_currents(inc: Incidence, x: np.ndarray, params: NPNParams) -> DeviceCurrents:
+    r"""The transistor's terminal currents and Jacobian in the nodal equations.
+
+    .. math:: i_{dev}(x) = P\,\varphi(W^T x), \qquad
+              \partial i_{dev}/\partial x = P\,J_\varphi\,W^T
+
+    with :math:`\varphi = (I_C, I_B)` from
+    :func:`ringwise.circuit.npn.junction_currents` and :math:`J_\varphi` its
+    derivatives with respect to (v_BE, v_CE).  The one device-current
+    function: the DC Newton, the transient's reference equations and the
+    periodic steady state call it (the transient's 2×2 Newton uses the same
+    P, W and transport model in reduced form).  ``x`` is one state (n,) or a
+    batch (B, n); ``params`` fields are floats or arrays of shape (B,).
+    """
+    vbe = x @ inc.W_BE
+    vce = x @ inc.W_CE
+    q = junction_currents(
+        vbe, vce, params.IS, params.beta, params.beta_R, params.VA, params.VT, exp_and_slope_array
+    )
+    current = q.IC[..., None] * inc.P_C + q.IB[..., None] * inc.P_B
+    jacobian = (
+        _rank1(q.dIC_dvbe, inc.P_C, inc.W_BE)
+        + _rank1(q.dIC_dvce, inc.P_C, inc.W_CE)
+        + _rank1(q.dIB_dvbe, inc.P_B, inc.W_BE)
+        + _rank1(q.dIB_dvce, inc.P_B, inc.W_CE)
+    )
+    return DeviceCurrents(current, jacobian, q, vbe, vce)
+
+
+def nonlinear_residual(
+    system: LinearSystem,
+    x: np.ndarray,
+    source_scale: float | np.ndarray = 1.0,
+    params: NPNParams | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """F(x) = G x + i_dev(x) − s·b and its Jacobian, for one circuit or a batch.
+
+    ``source_scale`` s multiplies b (source stepping; an array of shape (B,)
+    scales each member).  ``params`` overrides the transistor's parameters
+    (arrays of shape (B,) for a batch whose members differ).
+    """
+    F, J, _dev = residual_and_device(system, incidence_of(system), x, source_scale, params)
+    return F, J
+
+
+def incidence_of(system: LinearSystem) -> Incidence:
+    """The incidence of the system's one transistor."""
+    (dev,) = system.devices
+    return incidence(system.layout, dev)
+
+
+def residual_and_device(
+    system: LinearSystem,
+    inc: Incidence,
+    x: np.ndarray,
+    source_scale: float | np.ndarray = 1.0,
+    params: NPNParams | None = None,
+) -> tuple[np.ndarray, np.ndarray, DeviceCurrents]:
+    """:func:`nonlinear_residual` and the :class:`DeviceCurrents` it used."""
+    d = device_currents(inc, x, params or system.devices[0].params)
+    scale = np.asarray(source_scale, dtype=float)[..., None]
+    F = (system.G @ x[..., None])[..., 0] + d.current - scale * system.b
+    return F, system.G + d.jacobian, d
 
 
 def _rank1(k, a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -316,36 +350,15 @@ def small_signal(system: LinearSystem, hp: HybridPi) -> SmallSignal:
         + _rank1(hp.g_r, inc.P_B, inc.W_CE)
         + _rank1(hp.g_o, inc.P_C, inc.W_CE)
     )
-    C = system.C + np.asarray(hp.C_pi)[..., None, None] * inc.S_BE
-    C = C + np.asarray(hp.C_mu)[..., None, None] * inc.S_BC
+    C = with_junction_capacitances(system.C, inc, hp.C_pi, hp.C_mu)
     return SmallSignal(system.layout, G, C, hp.gm, inc.P_C, inc.W_BE, hp)
 
 
-def nonlinear_residual_batch(
-    G: np.ndarray, b: np.ndarray, inc: Incidence, x: np.ndarray, params: dict[str, np.ndarray]
-) -> tuple[np.ndarray, np.ndarray, tuple]:
-    """F(x) = G x + i_dev(x) − b and its Jacobian for a batch of circuits.
-
-    ``G`` (B, n, n), ``b`` (B, n), ``x`` (B, n); ``params`` holds the device
-    parameters IS, beta, beta_R, VA, VT as arrays of shape (B,).  The same
-    transport model as :func:`nonlinear_residual`, evaluated elementwise.
-    """
-    vbe = x @ inc.W_BE
-    vce = x @ inc.W_CE
-    q = junction_currents(
-        vbe, vce, params["IS"], params["beta"], params["beta_R"], params["VA"], params["VT"],
-        exp_and_slope_array,
-    )  # fmt: skip
-    IC, IB = q[0], q[1]
-    F = np.einsum("bij,bj->bi", G, x) + IC[:, None] * inc.P_C + IB[:, None] * inc.P_B - b
-    J = (
-        G
-        + _rank1(q[4], inc.P_C, inc.W_BE)
-        + _rank1(q[5], inc.P_C, inc.W_CE)
-        + _rank1(q[6], inc.P_B, inc.W_BE)
-        + _rank1(q[7], inc.P_B, inc.W_CE)
-    )
-    return F, J, q
+def with_junction_capacitances(C: np.ndarray, inc: Incidence, C_pi, C_mu) -> np.ndarray:
+    """C with the junction capacitances C_π (base-emitter) and C_μ (base-collector), F,
+    stamped in: the one stamp of them, for the small signal and the transient alike."""
+    C = C + np.asarray(C_pi)[..., None, None] * inc.S_BE
+    return C + np.asarray(C_mu)[..., None, None] * inc.S_BC
 
 
 @dataclass(frozen=True)

@@ -33,7 +33,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Final
+from typing import Final, NamedTuple
 
 import numpy as np
 from scipy import constants
@@ -52,7 +52,8 @@ EXP_ARG_LIMIT: Final = 80.0
 
 
 def thermal_voltage(T_kelvin: float) -> float:
-    """V_T = k·T/q in volts, from CODATA constants (``scipy.constants``)."""
+    """V_T = k·T/q in volts, from CODATA constants (``scipy.constants``); T in K
+    (a float or an array)."""
     return constants.k * T_kelvin / constants.e
 
 
@@ -63,11 +64,11 @@ def saturation_current(IS_nominal: float, T_kelvin: float) -> float:
               \exp\!\left[\frac{q E_g}{k}\left(\frac{1}{T_0} - \frac{1}{T}\right)\right]
 
     With E_g = 1.11 eV and X_TI = 3 this gives the familiar fall of V_BE of
-    about 2 mV/°C at constant current.
+    about 2 mV/°C at constant current.  Floats or arrays alike.
     """
     ratio = T_kelvin / T_NOMINAL
     exponent = EG_SILICON_EV * constants.e / constants.k * (1.0 / T_NOMINAL - 1.0 / T_kelvin)
-    return IS_nominal * ratio**XTI * math.exp(exponent)
+    return IS_nominal * ratio**XTI * np.exp(exponent)
 
 
 def _exp_and_slope(x: float) -> tuple[float, float]:
@@ -79,13 +80,14 @@ def _exp_and_slope(x: float) -> tuple[float, float]:
     return edge * (1.0 + x - EXP_ARG_LIMIT), edge
 
 
-@dataclass(frozen=True, slots=True)
-class JunctionState:
-    """Terminal currents and their partial derivatives at (v_BE, v_CE).
+class JunctionState(NamedTuple):
+    """Terminal currents and their partial derivatives at (v_BE, v_CE), in A and S.
 
     Currents flow *into* the terminals.  ``dX_dvbe`` is taken at constant
     v_CE and ``dX_dvce`` at constant v_BE, which are exactly the hybrid-π
-    conductances: g_m = dIC_dvbe, g_o = dIC_dvce, g_π = dIB_dvbe.
+    conductances: g_m = dIC_dvbe, g_o = dIC_dvce, g_π = dIB_dvbe,
+    g_r = dIB_dvce.  Fields are floats for one transistor or arrays for a
+    batch (the same names either way).
     """
 
     IC: float
@@ -105,12 +107,14 @@ def exp_and_slope_array(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return value * (1.0 + (x - clipped)), value
 
 
-def junction_currents(vbe, vce, IS, beta, beta_R, VA, VT, exp_and_slope=_exp_and_slope) -> tuple:
-    """(IC, IB, I_F, I_R, dIC/dv_BE, dIC/dv_CE, dIB/dv_BE, dIB/dv_CE) at (v_BE, v_CE).
+def junction_currents(
+    vbe, vce, IS, beta, beta_R, VA, VT, exp_and_slope=_exp_and_slope
+) -> JunctionState:
+    """The transport model at (v_BE, v_CE): currents and their derivatives.
 
-    The transport model itself, as a plain tuple: the transient calls this in
-    its inner loop with floats; batched analyses call it with arrays and
-    ``exp_and_slope=exp_and_slope_array``.  :func:`junction_state` wraps it.
+    The one place the device equations are written.  The transient calls it
+    in its inner loop with floats; :func:`ringwise.circuit.mna.device_currents`
+    calls it with arrays and ``exp_and_slope=exp_and_slope_array``.
     """
     vbc = vbe - vce
     ef, def_ = exp_and_slope(vbe / VT)
@@ -122,7 +126,7 @@ def junction_currents(vbe, vce, IS, beta, beta_R, VA, VT, exp_and_slope=_exp_and
     early = 1.0 + vce / VA
     transport = I_F - I_R
     # v_BC = v_BE - v_CE, so d/dv_BE|v_CE picks up +dI_R/dv_BC and d/dv_CE picks up -.
-    return (
+    return JunctionState(
         transport * early - I_R / beta_R,
         I_F / beta + I_R / beta_R,
         I_F,
@@ -138,7 +142,7 @@ def junction_state(
     vbe: float, vce: float, IS: float, beta: float, beta_R: float, VA: float, VT: float
 ) -> JunctionState:
     """Evaluate the transport model at junction voltages ``vbe``, ``vce`` (V)."""
-    return JunctionState(*junction_currents(vbe, vce, IS, beta, beta_R, VA, VT))
+    return junction_currents(vbe, vce, IS, beta, beta_R, VA, VT)
 
 
 @dataclass(frozen=True, slots=True)
@@ -165,10 +169,18 @@ class HybridPi:
         return 1.0 / self.g_o if self.g_o > 0 else math.inf
 
 
-def hybrid_pi(state: JunctionState, fT: float, C_mu: float) -> HybridPi:
-    """Hybrid-π at an operating point; C_π = g_m/(2π·f_T) − C_μ, floored at zero."""
+def hybrid_pi(state: JunctionState, fT, C_mu) -> HybridPi:
+    """Hybrid-π at an operating point; C_π = g_m/(2π·f_T) − C_μ, floored at zero.
+
+    Floats for one transistor, arrays for a batch (``fT`` and ``C_mu`` in Hz
+    and F broadcast against the state's arrays).
+    """
     gm = state.dIC_dvbe
-    C_pi = max(gm / (2.0 * math.pi * fT) - C_mu, 0.0)
+    C_pi = np.maximum(gm / (2.0 * math.pi * fT) - C_mu, 0.0)
+    if np.ndim(C_pi) == 0:
+        C_pi, C_mu = float(C_pi), float(C_mu)
+    else:
+        C_mu = np.broadcast_to(np.asarray(C_mu, dtype=float), np.shape(C_pi))
     return HybridPi(
         gm=gm,
         g_pi=state.dIB_dvbe,

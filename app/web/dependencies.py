@@ -2,10 +2,18 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from fastapi import Request
 
-from ringwise.web.fields import from_query
+from ringwise.web.errors import ApiError
+from ringwise.web.fields import BY_NAME, FIELDS, from_query
 from ringwise.web.samples import DEFAULT_SAMPLE, sample_texts
+
+#: The error answers every JSON route documents.
+ERRORS: dict[int | str, dict[str, Any]] = {
+    422: {"description": "Invalid input: every problem names its field"},
+}
 
 
 def default_sample(request: Request) -> str:
@@ -16,3 +24,22 @@ def default_sample(request: Request) -> str:
 def texts_for(request: Request) -> tuple[dict[str, str], list[dict]]:
     """Form texts and link problems for the request's query string (a share link)."""
     return from_query(request.query_params.multi_items(), sample_texts(), default_sample(request))
+
+
+def form_texts(fields: dict[str, str]) -> dict[str, str]:
+    """Every form field's text (blank where not given); an unknown field name is a 422."""
+    unknown = [k for k in fields if k not in BY_NAME]
+    if unknown:
+        raise ApiError(
+            422,
+            f"fields.{unknown[0]}: is not a design field",
+            [
+                {
+                    "field": f"fields.{k}",
+                    "message": "is not a design field",
+                    "type": "extra_forbidden",
+                }
+                for k in unknown
+            ],
+        )
+    return {f.name: fields.get(f.name, "") for f in FIELDS}

@@ -19,7 +19,7 @@ from starlette.types import ASGIApp, Message, Receive, Scope, Send
 from ringwise.web import errors
 from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
 from ringwise.web.paths import STATIC_DIR
-from ringwise.web.routers import api, pages, simulate, spread
+from ringwise.web.routers import api, pages, simulate, spread, tools
 from ringwise.web.samples import DEFAULT_SAMPLE, samples
 from ringwise.web.schemas import ErrorOut
 
@@ -182,6 +182,7 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
     app.state.default_design = default_design
     errors.install(app)
     app.include_router(api.router)
+    app.include_router(tools.router)
     app.include_router(simulate.router)
     app.include_router(spread.router)
     app.include_router(pages.router)

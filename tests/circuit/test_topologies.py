@@ -1,4 +1,4 @@
-"""The forms' hand formulas against an independent derivation in SymPy.
+"""Topologies: the forms' hand formulas against SymPy, and the netlists they build.
 
 Reference library: SymPy (``sympy.solve``, ``sympy.limit``).  The lossless
 common-base circuit is written here as two Kirchhoff current equations (the
@@ -13,11 +13,25 @@ chapter, start-up condition g_m·R_p ≥ (C1+C2)²/(C1·C2) (from memory).
 from __future__ import annotations
 
 import functools
+import math
 
 import pytest
 import sympy as sp
 
-from ringwise.circuit.topologies import hand_formula
+from ringwise.circuit.netlist import GROUND, Capacitor, Inductor, Resistor
+from ringwise.circuit.topologies import (
+    GAIN_SETTER,
+    OUTPUT_NODE_LABEL,
+    T1,
+    T2,
+    TL,
+    build,
+    hand_formula,
+    ideal_gain,
+    series,
+    tank_figures,
+)
+from ringwise.design import Topology
 from tests.conftest import BASE_CE, design_from
 
 gm, RC, L, C1, C2, C3, w = sp.symbols("g_m R_C L C_1 C_2 C_3 omega", positive=True)
@@ -71,3 +85,63 @@ def test_core_hand_formula_has_the_same_value() -> None:
     expected = (gm * RC * C1 * C2 / (C1 + C2) ** 2).subs({gm: 0.04, RC: 2200.0, C1: t.C1, C2: t.C2})
     assert h.value == pytest.approx(float(expected), rel=1e-14)
     assert h.symbols == "g_m·RC·C1·C2/(C1+C2)²"
+
+
+def _ends(el) -> set[str]:
+    return {el.a, el.b}
+
+
+@pytest.mark.parametrize(
+    ("topology", "c1", "c2", "coil"),
+    [
+        ("common-emitter", {T1, GROUND}, {T2, GROUND}, {T1, T2}),
+        ("common-base", {T1, T2}, {T2, GROUND}, {T1, GROUND}),
+        ("common-collector", {T1, GROUND}, {T2, T1}, {T2, GROUND}),
+    ],
+)
+def test_triangle_corners_per_form(topology: str, c1, c2, coil) -> None:
+    # The grounded corner of each form (the module's table; Clarke & Hess,
+    # Colpitts forms, from memory).
+    net = build(design_from(BASE_CE, topology=topology, bias__CB="100n"))
+    assert _ends(net["C1"]) == c1
+    assert _ends(net["C2"]) == c2
+    assert _ends(net["L"]) == coil
+    assert GAIN_SETTER[Topology(topology)] in net
+    assert Topology(topology) in OUTPUT_NODE_LABEL
+
+
+def test_clapp_capacitor_in_series_with_the_coil() -> None:
+    net = build(design_from(BASE_CE, tank__C3="220p"))
+    assert _ends(net["L"]) == {T1, TL}
+    assert _ends(net["C3"]) == {TL, T2}
+    assert isinstance(net["C3"], Capacitor)
+
+
+def test_coil_loss_from_q_at_the_ideal_resonance() -> None:
+    # R_s = ω0·L/Q_L with ω0 = 1/√(L·C_s) (the module's convention).
+    d = design_from(BASE_CE)
+    C_s = series(1e-9, 2.2e-9)
+    w0 = 1.0 / math.sqrt(10e-6 * C_s)
+    figs = tank_figures(d)
+    assert figs.C_series == pytest.approx(C_s, rel=1e-12)
+    assert figs.R_s == pytest.approx(w0 * 10e-6 / 90.0, rel=1e-12)
+    coil = build(d)["L"]
+    assert isinstance(coil, Inductor) and coil.R_s == pytest.approx(figs.R_s, rel=1e-12)
+
+
+def test_load_sits_at_t1_and_is_optional() -> None:
+    assert "R_load" not in build(design_from(BASE_CE))
+    loaded = build(design_from(BASE_CE, load={"R_load": "10k"}))
+    assert isinstance(loaded["R_load"], Resistor) and _ends(loaded["R_load"]) == {T1, GROUND}
+
+
+def test_hand_gain_formulas() -> None:
+    # g_m·R_C·C1/C2 (common emitter), g_m·R_C·C1·C2/(C1+C2)² (common base),
+    # g_m·R_E·C1/C2 (common collector): the module's docstring (hand method).
+    gm = 0.04
+    ce = design_from(BASE_CE)
+    cb = design_from(BASE_CE, topology="common-base", bias__CB="100n")
+    cc = design_from(BASE_CE, topology="common-collector")
+    assert ideal_gain(ce, gm) == pytest.approx(gm * 1e3 * 1e-9 / 2.2e-9)
+    assert ideal_gain(cb, gm) == pytest.approx(gm * 1e3 * 1e-9 * 2.2e-9 / (3.2e-9) ** 2)
+    assert ideal_gain(cc, gm) == pytest.approx(gm * 1e3 * 1e-9 / 2.2e-9)

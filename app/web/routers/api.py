@@ -14,11 +14,10 @@ from ringwise.analysis.threshold import ParameterError, find_threshold, sweep
 from ringwise.circuit.topologies import GAIN_SETTER
 from ringwise.design import Design
 from ringwise.result import Result
-from ringwise.web.dependencies import texts_for
+from ringwise.web.dependencies import ERRORS, form_texts, texts_for
 from ringwise.web.errors import ApiError, from_validation, invalid
 from ringwise.web.fields import (
     BY_NAME,
-    FIELDS,
     DocumentError,
     check_field,
     document,
@@ -38,10 +37,6 @@ from ringwise.web.schemas import (
 from ringwise.web.view import build_view, query_string, sweep_view
 
 router = APIRouter(prefix="/api", tags=["api"])
-
-ERRORS: dict[int | str, dict[str, Any]] = {
-    422: {"description": "Invalid input: every problem names its field"},
-}
 
 
 @router.post("/analyze", response_model=Result, responses=ERRORS)
@@ -110,24 +105,6 @@ def get_design(name: str) -> dict[str, Any]:
     return found.document
 
 
-def _texts(fields: dict[str, str]) -> dict[str, str]:
-    unknown = [k for k in fields if k not in BY_NAME]
-    if unknown:
-        raise ApiError(
-            422,
-            f"fields.{unknown[0]}: is not a design field",
-            [
-                {
-                    "field": f"fields.{k}",
-                    "message": "is not a design field",
-                    "type": "extra_forbidden",
-                }
-                for k in unknown
-            ],
-        )
-    return {f.name: fields.get(f.name, "") for f in FIELDS}
-
-
 @router.post("/sheet", responses=ERRORS)
 def post_sheet(req: SheetRequest) -> JSONResponse:
     """What the sheet shows for these form texts (the page's JSON twin), without the sweep.
@@ -136,13 +113,13 @@ def post_sheet(req: SheetRequest) -> JSONResponse:
     beside their fields, as the page does.  (The view is plain JSON data
     already, so it is sent as it is, without FastAPI's slower generic encoder.)
     """
-    return JSONResponse(build_view(_texts(req.fields), req.sweep_param, with_sweep=False))
+    return JSONResponse(build_view(form_texts(req.fields), req.sweep_param, with_sweep=False))
 
 
 @router.post("/sheet/sweep", responses=ERRORS)
 def post_sheet_sweep(req: SheetSweepRequest) -> dict[str, Any]:
     """The sheet's what-if sweep for these form texts."""
-    return sweep_view(_texts(req.fields), req.param, req.threshold_hint)
+    return sweep_view(form_texts(req.fields), req.param, req.threshold_hint)
 
 
 @router.post("/import", response_model=ImportOut, responses=ERRORS)
@@ -176,10 +153,3 @@ def get_export(request: Request) -> JSONResponse:
         doc,
         headers={"Content-Disposition": f'attachment; filename="ringwise-{slug[:60]}.json"'},
     )
-
-
-# The sheet's on-demand panels (spread, snap, synthesize, reconcile) under /api/sheet/.
-# Imported here, at the end, because they reuse this module's helpers.
-from ringwise.web.routers import tools as _tools  # noqa: E402
-
-router.include_router(_tools.router)

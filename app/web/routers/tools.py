@@ -10,9 +10,9 @@ from fastapi import APIRouter
 from pydantic import BaseModel, ConfigDict, Field
 
 from ringwise.web import tools
-from ringwise.web.routers.api import ERRORS, _texts
+from ringwise.web.dependencies import ERRORS, form_texts
 
-router = APIRouter(prefix="/sheet", tags=["sheet tools"])
+router = APIRouter(prefix="/api/sheet", tags=["sheet tools"])
 
 #: Longest text accepted in a panel's own inputs.
 TEXT_MAX = 200
@@ -41,7 +41,7 @@ class SheetSpreadRequest(_In):
 def post_sheet_spread(req: SheetSpreadRequest) -> dict[str, Any]:
     """Monte Carlo for the sheet's texts: the spread answer, figure texts and plot data."""
     return tools.spread_view(
-        _texts(req.fields), req.samples, req.seed, req.margin, req.window_low, req.window_high
+        form_texts(req.fields), req.samples, req.seed, req.margin, req.window_low, req.window_high
     )
 
 
@@ -53,7 +53,7 @@ class SheetSnapRequest(_In):
 @router.post("/snap", responses=ERRORS)
 def post_sheet_snap(req: SheetSnapRequest) -> dict[str, Any]:
     """Standard values preview for the sheet's texts, with the snapped form texts."""
-    return tools.snap_view(_texts(req.fields), req.series)
+    return tools.snap_view(form_texts(req.fields), req.series)
 
 
 class SheetSynthesizeRequest(_In):
@@ -71,7 +71,7 @@ class SheetSynthesizeRequest(_In):
 def post_sheet_synthesize(req: SheetSynthesizeRequest) -> dict[str, Any]:
     """A design from targets, as form texts for the sheet, with its reasons."""
     targets = req.model_dump(exclude={"fields"})
-    return tools.synthesize_view(_texts(req.fields), targets)
+    return tools.synthesize_view(form_texts(req.fields), targets)
 
 
 class SheetReconcileRequest(_In):
@@ -85,4 +85,4 @@ class SheetReconcileRequest(_In):
 @router.post("/reconcile", responses=ERRORS)
 def post_sheet_reconcile(req: SheetReconcileRequest) -> dict[str, Any]:
     """Bench readings against the sheet's design: fitted unknowns and the as-built texts."""
-    return tools.reconcile_view(_texts(req.fields), req.model_dump(exclude={"fields"}))
+    return tools.reconcile_view(form_texts(req.fields), req.model_dump(exclude={"fields"}))

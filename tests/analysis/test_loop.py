@@ -1,0 +1,62 @@
+"""The loop search: batch against singles, the phase slope, crossings and none."""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+import pytest
+
+from ringwise.analysis.loop import find_oscillation, return_ratio
+from ringwise.analysis.operating import solve
+from tests.conftest import BASE_CE, design_from
+
+
+def _stack(sss):
+    first = sss[0]
+    return dataclasses.replace(
+        first,
+        G=np.stack([s.G for s in sss]),
+        C=np.stack([s.C for s in sss]),
+        gm=np.array([s.gm for s in sss]),
+    )
+
+
+def test_batch_of_n_equals_n_singles() -> None:
+    solved = [solve(design_from(BASE_CE, tank__C2=c)) for c in ("1n5", "2n2", "3n3", "4n7")]
+    batch = find_oscillation(
+        _stack([s.ss for s in solved]), np.array([s.tank.f_ideal for s in solved])
+    )
+    for i, s in enumerate(solved):
+        one = find_oscillation(_stack([s.ss]), np.array([s.tank.f_ideal]))
+        assert batch.f_osc[i] == pytest.approx(float(one.f_osc[0]), rel=1e-10)
+        assert batch.gain[i] == pytest.approx(float(one.gain[0]), rel=1e-9)
+
+
+def test_phase_is_zero_at_f_osc_and_q_matches_the_phase_slope() -> None:
+    # Q_loaded = (ω/2)|dφ/dω| (Razavi, oscillator chapter, from memory), here
+    # against a central difference of the phase of T itself (common practice).
+    s = solve(design_from(BASE_CE))
+    f = s.f_osc
+    T = return_ratio(s.ss, 2j * math.pi * np.array([f]))[0]
+    assert abs(np.angle(T)) < 1e-8
+    h = 1e-6 * f
+    phases = np.angle(return_ratio(s.ss, 2j * math.pi * np.array([f - h, f + h])))
+    slope = (phases[1] - phases[0]) / (2 * 2 * math.pi * h)
+    assert float(s.loop.phase_slope) == pytest.approx(slope, rel=1e-5)
+    assert float(s.loop.Q_loaded) == pytest.approx(math.pi * f * abs(slope), rel=1e-5)
+
+
+def test_far_start_falls_back_to_the_grid() -> None:
+    s = solve(design_from(BASE_CE))
+    far = find_oscillation(_stack([s.ss]), np.array([s.tank.f_ideal]), np.array([2.5 * s.f_osc]))
+    assert float(far.f_osc[0]) == pytest.approx(s.f_osc, rel=1e-9)
+
+
+def test_no_crossing_is_nan() -> None:
+    # A coil with Q_L = 0.2 is no resonator: the return ratio's phase never
+    # falls through zero near the tank, and every figure is NaN, not a guess.
+    s = solve(design_from(BASE_CE, tank__Q_L=0.2))
+    assert s.f_osc is None
+    assert np.isnan(s.loop.gain) and np.isnan(s.loop.Q_loaded)
