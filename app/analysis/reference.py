@@ -14,24 +14,22 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from ringwise.analysis.operating import solve
-from ringwise.analysis.transient import transient_system
-from ringwise.circuit.mna import nonlinear_residual
-from ringwise.circuit.netlist import DCSupply
+from ringwise.analysis.transient import dynamic_unknowns, transient_system
+from ringwise.circuit.mna import LinearSystem, nonlinear_residual
 from ringwise.circuit.topologies import T1
 from ringwise.design import Design
 
 
-def reference_run(
-    design: Design, cycles: float, rtol: float = 1e-7, samples_per_cycle: int = 64
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, float]:
-    """t, tank voltage, base voltage, emitter voltage, and f_ref by Radau on the same equations."""
-    solved = solve(design)
-    system, x0 = transient_system(solved)
-    lay = system.layout
-    fixed = []
-    for el in solved.netlist.of_kind(DCSupply):
-        fixed += [lay.node[el.pos], lay.branch[el.name]]
-    dyn = np.array([i for i in range(lay.size) if i not in fixed])
+def integrate_reference(
+    system: LinearSystem,
+    x0: np.ndarray,
+    t_end: float,
+    t_eval: np.ndarray,
+    rtol: float = 1e-7,
+    method: str = "Radau",
+) -> np.ndarray:
+    """Full states (len(t_eval), n) from ``x0`` by ``solve_ivp`` on the circuit's equations."""
+    dyn = dynamic_unknowns(system.C, system.G)
     Cdd_inv = np.linalg.inv(system.C[np.ix_(dyn, dyn)])
     x_full = x0.copy()
 
@@ -45,16 +43,27 @@ def reference_run(
         _F, J = nonlinear_residual(system, x_full)
         return -Cdd_inv @ J[np.ix_(dyn, dyn)]
 
-    f_ref = solved.f_osc or solved.tank.f_ideal
-    t_end = cycles / f_ref
-    t_eval = np.linspace(0.0, t_end, int(cycles * samples_per_cycle) + 1)
     sol = solve_ivp(
-        rhs, (0.0, t_end), x0[dyn], method="Radau", jac=jac, rtol=rtol,
+        rhs, (0.0, t_end), x0[dyn], method=method, jac=jac, rtol=rtol,
         atol=1e-9, t_eval=t_eval,
     )  # fmt: skip
     if not sol.success:  # pragma: no cover - reported, not expected
         raise ArithmeticError(f"reference solver failed: {sol.message}")
     full = np.repeat(x0[None, :], len(sol.t), axis=0)
     full[:, dyn] = sol.y.T
+    return full
+
+
+def reference_run(
+    design: Design, cycles: float, rtol: float = 1e-7, samples_per_cycle: int = 64
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, float]:
+    """t, tank voltage, base voltage, emitter voltage, and f_ref by Radau on the same equations."""
+    solved = solve(design)
+    system, x0 = transient_system(solved)
+    lay = system.layout
+    f_ref = solved.f_osc or solved.tank.f_ideal
+    t_end = cycles / f_ref
+    t = np.linspace(0.0, t_end, int(cycles * samples_per_cycle) + 1)
+    full = integrate_reference(system, x0, t_end, t, rtol)
     i_out, i_b, i_e = lay.node[T1], lay.node["b"], lay.node["e"]
-    return sol.t, full[:, i_out], full[:, i_b], full[:, i_e], f_ref
+    return t, full[:, i_out], full[:, i_b], full[:, i_e], f_ref

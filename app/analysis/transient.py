@@ -150,53 +150,113 @@ def bias_time_constant(design: Design) -> float:
     return max(k.Cc2 * R_div, k.Cc1 * b.RE)
 
 
+@dataclass(frozen=True)
+class Dynamics:
+    r"""The equations the stepper integrates: :math:`C\dot x + Gx + P\varphi(W^Tx) = b`.
+
+    ``P`` and ``W`` are (n, 2): where the two nonlinear currents go and which
+    two voltages control them.  ``phi(v0, v1)`` returns the two currents and
+    their four partial derivatives in the order of
+    :func:`ringwise.circuit.npn.junction_currents`:
+    ``(i0, i1, _, _, di0/dv0, di0/dv1, di1/dv0, di1/dv1)``.  A circuit's
+    dynamics come from :func:`circuit_dynamics`; the tests also hand the
+    stepper other two-port nonlinearities (a cubic conductance).
+    """
+
+    C: np.ndarray
+    G: np.ndarray
+    b: np.ndarray
+    P: np.ndarray
+    W: np.ndarray
+    phi: Callable[[float, float], tuple]
+
+
+def circuit_dynamics(system: LinearSystem) -> Dynamics:
+    """The transistor circuit as :class:`Dynamics`: φ = (I_C, I_B) of (v_BE, v_CE)."""
+    lay = system.layout
+    dev = system.devices[0]
+    missing = {dev.c, dev.b, dev.e} - set(lay.node)
+    if missing:
+        raise ValueError(f"transistor terminals at ground are not supported: {missing}")
+    p = dev.params
+    args = (p.IS, p.beta, p.beta_R, p.VA, p.VT)
+
+    def phi(vbe: float, vce: float) -> tuple:
+        return junction_currents(vbe, vce, *args)
+
+    # the device enters as P·φ(Wᵀx): the same incidence as every other
+    # analysis (mna.device_currents), reduced here to its two controls
+    inc = incidence(lay, dev)
+    return Dynamics(system.C, system.G, system.b, inc.P, inc.W, phi)
+
+
+@dataclass(frozen=True)
+class StepMatrices:
+    """The trapezoidal step at one step size h, factorised once.
+
+    ``B`` = A⁻¹(2C/h − G) and ``c`` = 2A⁻¹b with A = 2C/h + G; ``K`` = A⁻¹P;
+    ``M`` = WᵀK (2×2), the controls' response to the device currents.
+    """
+
+    B: np.ndarray
+    c: np.ndarray
+    K: np.ndarray
+    M: np.ndarray
+    Ainv: np.ndarray
+
+
+def dynamic_unknowns(C: np.ndarray, G: np.ndarray) -> np.ndarray:
+    """Indices of the unknowns that carry a state.
+
+    An unknown carries a state when a capacitor or the coil touches it and no
+    supply pins it: a row without C whose G part names one unknown alone
+    (v_+ = V) fixes that unknown.  The others (the supply nodes and the
+    supplies' currents) follow from the supply; ``C`` restricted to the
+    dynamic unknowns is invertible in every form.
+    """
+    no_c = ~np.any(C != 0.0, axis=1)
+    pinned = [int(np.flatnonzero(G[k])[0]) for k in np.flatnonzero(no_c)
+              if np.count_nonzero(G[k]) == 1]  # fmt: skip
+    touched = np.any(C != 0.0, axis=0) | np.any(C != 0.0, axis=1)
+    touched[pinned] = False
+    return np.flatnonzero(touched)
+
+
 class _Stepper:
     """Trapezoidal steps with the factorisation kept per step size."""
 
-    def __init__(self, system: LinearSystem) -> None:
-        dev = system.devices[0]
-        self.system = system
-        p = dev.params
-        self.dev_args = (p.IS, p.beta, p.beta_R, p.VA, p.VT)
-        # The device enters as P·φ(Wᵀx): the same incidence as every other
-        # analysis (mna.device_currents), reduced here to its two controls.
-        inc = incidence(system.layout, dev)
-        self.P, self.W = inc.P, inc.W
-        self.Wt = np.ascontiguousarray(inc.W.T)
-        #: Selects the emitter voltage from a state.
-        self.e_sel = system.layout.unit(dev.e)
+    def __init__(self, dyn: Dynamics) -> None:
+        self.dyn = dyn
+        self.phi = dyn.phi
+        self.Wt = np.ascontiguousarray(dyn.W.T)
         self._cache: dict[float, tuple] = {}
 
     def controls(self, x: np.ndarray) -> tuple[float, float]:
-        """(v_BE, v_CE) of state x."""
-        vbe, vce = (self.Wt @ x).tolist()
-        return vbe, vce
+        """The two controlling voltages (v_BE, v_CE) of state x."""
+        v = (self.Wt @ x).tolist()
+        return v[0], v[1]
+
+    def step_matrices(self, h: float) -> StepMatrices:
+        d = self.dyn
+        Ainv = np.linalg.inv(2.0 * d.C / h + d.G)
+        K = Ainv @ d.P
+        return StepMatrices(Ainv @ (2.0 * d.C / h - d.G), 2.0 * (Ainv @ d.b), K, self.Wt @ K, Ainv)
 
     def matrices(self, h: float) -> tuple:
         if h not in self._cache:
-            s = self.system
-            A = 2.0 * s.C / h + s.G
-            Ainv = np.linalg.inv(A)
-            B = Ainv @ (2.0 * s.C / h - s.G)
-            c = 2.0 * (Ainv @ s.b)
-            K = Ainv @ self.P
-            # M = Wᵀ K: the controls' response to the device currents.
-            M = (self.Wt @ K).tolist()
-            m = (M[0][0], M[0][1], M[1][0], M[1][1])
-            self._cache[h] = (B, c, K[:, 0].copy(), K[:, 1].copy(), *m)
+            sm = self.step_matrices(h)
+            m = sm.M.ravel().tolist()
+            self._cache[h] = (sm.B, sm.c, sm.K[:, 0].copy(), sm.K[:, 1].copy(), *m)
         return self._cache[h]
-
-    def phi(self, vbe: float, vce: float) -> tuple:
-        return junction_currents(vbe, vce, *self.dev_args)
 
     def step(self, h: float, x: np.ndarray, v: tuple, v_prev: tuple, ph: tuple):
         """One step from state x (controls v, previous controls v_prev, device state ph)."""
         B, c, K0, K1, m00, m01, m10, m11 = self.matrices(h)
         y = B @ x + c
-        wy0, wy1 = (self.Wt @ y).tolist()
+        wy = (self.Wt @ y).tolist()
         ic_n, ib_n = ph[0], ph[1]
-        a0 = wy0 - (m00 * ic_n + m01 * ib_n)
-        a1 = wy1 - (m10 * ic_n + m11 * ib_n)
+        a0 = wy[0] - (m00 * ic_n + m01 * ib_n)
+        a1 = wy[1] - (m10 * ic_n + m11 * ib_n)
         # Start Newton from the linear extrapolation of the controls, and from
         # the last controls if that does not converge.
         for vbe, vce in ((2.0 * v[0] - v_prev[0], 2.0 * v[1] - v_prev[1]), v):
@@ -292,8 +352,8 @@ def integrate(
     ``out`` names the node whose voltage drives the local-error control;
     ``progress`` is as in :func:`run`.
     """
-    stepper = _Stepper(system)
-    i_out, e_sel = system.layout.node[out], stepper.e_sel
+    stepper = _Stepper(circuit_dynamics(system))
+    i_out, e_sel = system.layout.node[out], system.layout.unit(system.devices[0].e)
     v = stepper.controls(x)
     v_prev = v
     ph = stepper.phi(*v)

@@ -1,0 +1,285 @@
+"""Shooting-Newton periodic steady state and its Floquet multipliers.
+
+External checks and their sources are named beside each test.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy.optimize import brentq
+
+from ringwise.analysis import transient
+from ringwise.analysis.floquet import classify
+from ringwise.analysis.operating import solve
+from ringwise.analysis.periodic import steady_state
+from ringwise.analysis.reference import integrate_reference
+from ringwise.analysis.steady import (
+    STEPS_PER_PERIOD,
+    _linearisation,
+    _trajectory,
+    shoot,
+    warped_period,
+)
+from ringwise.analysis.transient import Dynamics, _Stepper, transient_system
+from ringwise.circuit.topologies import GAIN_SETTER, T1
+from ringwise.design import Design, get_param, with_param
+
+
+def _van_der_pol(eps: float) -> Dynamics:
+    """A lossless 1 F / 1 H tank with a cubic conductance i = ε(v³/3 − v) across it.
+
+    Node row: v' + i_L + ε(v³/3 − v) = 0; coil row: v − i_L' = 0; so
+    v'' − ε(1 − v²)v' + v = 0, van der Pol's equation.
+    """
+
+    def phi(v0: float, _v1: float) -> tuple:
+        return (eps * (v0**3 / 3.0 - v0), 0.0, 0.0, 0.0, eps * (v0 * v0 - 1.0), 0.0, 0.0, 0.0)
+
+    C = np.array([[1.0, 0.0], [0.0, -1.0]])
+    G = np.array([[0.0, 1.0], [1.0, 0.0]])
+    P = np.array([[1.0, 0.0], [0.0, 0.0]])
+    W = np.array([[1.0, 0.0], [0.0, 0.0]])
+    return Dynamics(C, G, np.zeros(2), P, W, phi)
+
+
+def _vdp_orbit(eps: float):
+    dyn = _van_der_pol(eps)
+    return shoot(dyn, np.array([0.0, 1.5]), warped_period(1.0 / (2 * math.pi)), np.ones(2))
+
+
+@pytest.mark.parametrize("eps", [0.05, 0.1, 0.2])
+def test_van_der_pol_amplitude_and_frequency(eps):
+    orbit = _vdp_orbit(eps)
+    v = orbit.x[:-1, 0]
+    # Strogatz, Nonlinear Dynamics and Chaos, §7.6 (two-timing), from memory:
+    # r → 2 as ε → 0 and ω = 1 − ε²/16 + O(ε³).
+    assert v.max() == pytest.approx(2.0, abs=0.02 * eps / 0.2)
+    assert 2 * math.pi * orbit.f == pytest.approx(1.0 - eps**2 / 16.0, abs=3e-5 + eps**3 / 50)
+
+
+@pytest.mark.parametrize("eps", [0.05, 0.1])
+def test_van_der_pol_multipliers(eps):
+    orbit = _vdp_orbit(eps)
+    fl = classify(orbit.monodromy, orbit.flow)
+    # the trivial multiplier of an autonomous oscillator is 1 (common practice, no source)
+    assert abs(fl.trivial - 1.0) < 1e-6
+    # Averaged amplitude equation r' = (ε r/2)(1 − r²/4) (Strogatz §7.6, from memory):
+    # its slope at r = 2 is −ε, so the other multiplier is exp(−ε·2π) to O(ε²).
+    assert fl.multipliers.size == 1
+    assert fl.multipliers[0].real == pytest.approx(math.exp(-2 * math.pi * eps), rel=2 * eps**2)
+    assert fl.behaviour == "settles"
+
+
+def test_damped_tank_multipliers_match_exp_sigma_T():
+    """A series R-L-C with nothing nonlinear: the monodromy over T is exp(A·T)."""
+    R, L, Cap = 0.05, 1.0, 1.0
+    C = np.array([[Cap, 0.0], [0.0, -L]])
+    G = np.array([[0.0, 1.0], [1.0, -R]])
+    zero = np.zeros((2, 2))
+
+    def phi(_a: float, _b: float) -> tuple:
+        return (0.0,) * 8
+
+    dyn = Dynamics(C, G, np.zeros(2), zero, zero, phi)
+    T = 2 * math.pi
+    N = STEPS_PER_PERIOD
+    stepper = _Stepper(dyn)
+    X, _phi, J = _trajectory(stepper, np.array([1.0, 0.0]), T / N, N)
+    _S, Phi, _d = _linearisation(stepper, np.full(N, T / N), X, J)
+    mu = np.linalg.eigvals(Phi)
+    # Linear ODE: Floquet multipliers exp(λT), λ = −σ ± jω_d with σ = R/2L
+    # (any circuits text, e.g. Desoer & Kuh, Basic Circuit Theory, from memory).
+    sigma = R / (2 * L)
+    assert np.abs(mu) == pytest.approx([math.exp(-sigma * T)] * 2, rel=1e-4)
+
+
+# --- the circuits ------------------------------------------------------------
+
+SAMPLES = sorted((Path(__file__).resolve().parents[2] / "sample_designs").glob("*.json"))
+#: Periods the reference integration runs from the orbit's start, and the last
+#: ones it is measured over.
+REFERENCE_PERIODS = 8
+MEASURED_PERIODS = 3
+
+
+def _sample(path: Path) -> Design:
+    return Design.model_validate(json.loads(path.read_text(encoding="utf-8")))
+
+
+def _reference_figures(design: Design, ss) -> tuple[float, float, float]:
+    """f, fundamental amplitude and THD at t1 from SciPy's LSODA on the same equations."""
+    solved = solve(design)
+    system, _x = transient_system(solved)
+    T = ss.orbit.T
+    t_end = REFERENCE_PERIODS * T
+    t = np.linspace(0.0, t_end, REFERENCE_PERIODS * 256 + 1)
+    full = integrate_reference(system, ss.orbit.x[0], t_end, t, rtol=1e-8, method="LSODA")
+    v = full[:, system.layout.node[T1]]
+    tail = t >= t_end - (MEASURED_PERIODS + 0.5) * T
+    tt, vv = t[tail], v[tail]
+    k = np.nonzero((vv[:-1] - vv.mean() < 0) & (vv[1:] - vv.mean() >= 0))[0]
+    c = vv.mean()
+    cross = tt[k] + (c - vv[k]) / (vv[k + 1] - vv[k]) * (tt[k + 1] - tt[k])
+    n = len(cross) - 1
+    f = n / (cross[-1] - cross[0])
+    grid = np.linspace(cross[0], cross[-1], 256 * n, endpoint=False)
+    spec = np.abs(np.fft.rfft(np.interp(grid, tt, vv))) / len(grid) * 2
+    fund = spec[n]
+    thd = math.sqrt(sum(spec[k * n] ** 2 for k in range(2, 8))) / fund
+    return f, fund, thd
+
+
+def _at_gain(base: Design, gain: float) -> Design:
+    """``base`` with its gain-setting resistor moved until the loop gain is ``gain``."""
+    setter = GAIN_SETTER[base.topology]
+    value = get_param(base, setter)
+
+    def miss(log_r: float) -> float:
+        return solve(with_param(base, setter, math.exp(log_r))).gain - gain
+
+    grid = math.log(value) + np.linspace(-3.0, 3.0, 25)
+    signs = [miss(x) > 0 for x in grid]
+    i = next(k for k in range(len(grid) - 1) if signs[k] != signs[k + 1])
+    return with_param(base, setter, math.exp(brentq(miss, grid[i], grid[i + 1], xtol=1e-6)))
+
+
+def _check_against_reference(design: Design):
+    """The orbit settles and its f, amplitude and THD agree with the reference within 0.5 %."""
+    ss = steady_state(solve(design), warm=False)
+    assert ss.behaviour == "settles"
+    # SciPy solve_ivp LSODA (rtol 1e-8) on the same equations, from the orbit's start
+    f, amp, thd = _reference_figures(design, ss)
+    assert ss.f == pytest.approx(f, rel=5e-3)
+    assert ss.amp_out == pytest.approx(amp, rel=5e-3)
+    assert ss.thd == pytest.approx(thd, rel=5e-3, abs=1e-4)
+    return ss
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
+def test_samples_match_a_long_lsoda_run(path):
+    ss = _check_against_reference(_sample(path))
+    # the trivial multiplier (common practice, no source)
+    assert abs(ss.trivial_multiplier - 1.0) < 1e-6
+
+
+#: A sample of each form whose gain-setting resistor reaches the loop gains tested.
+FORM_SAMPLES = {
+    "common-emitter": "clapp-clock-1M",
+    "common-base": "common-base-carrier-10M",
+    "common-collector": "follower-test-source-4M",
+}
+
+
+def _form_base(topology: str, gain: float = 3.0) -> Design:
+    """The form's sample; the follower with C2 halved above a loop gain of 5 (its RE alone
+    cannot take it there)."""
+    base = _sample(next(p for p in SAMPLES if p.stem == FORM_SAMPLES[topology]))
+    if topology == "common-collector" and gain > 5.0:
+        base = with_param(base, "C2", get_param(base, "C2") / 2)
+    return base
+
+
+@pytest.mark.parametrize("gain", [2.0, 4.0, 6.0, 9.0])
+@pytest.mark.parametrize("topology", ["common-emitter", "common-base", "common-collector"])
+def test_loop_gain_designs_match_a_long_lsoda_run(topology, gain):
+    _check_against_reference(_at_gain(_form_base(topology, gain), gain))
+
+
+def _pd455() -> Design:
+    """The 455 kHz common-emitter design of the issue (general-purpose class)."""
+    return Design.model_validate(
+        {
+            "name": "period-doubling 455k",
+            "topology": "common-emitter",
+            "supply": {"Vcc": "12"},
+            "bias": {"RB1": "47k", "RB2": "10k", "RE": "2k2", "CE": "220n", "RC": "2k2"},
+            "tank": {"L": "330u", "Q_L": "30", "C1": "470p", "C2": "2n2"},
+            "coupling": {"Cc1": "470n", "Cc2": "47n"},
+            "device": {"preset": "general-purpose"},
+        }
+    )
+
+
+def test_455k_design_period_doubles_and_its_transient_shows_f_over_2():
+    design = _pd455()
+    ss = steady_state(solve(design), warm=False)
+    assert ss.behaviour == "period-doubling"
+    worst = ss.multipliers[0]
+    assert worst.imag == 0.0 and worst.real < -1.0
+    # our own transient: alternate peaks differ, a line at f/2 (common practice, no source)
+    run = transient.run(design, cycles=300)
+    env = np.array(run.envelope[-40:])
+    assert np.mean(np.abs(np.diff(env))) > 0.1 * np.mean(env)
+    t, v = np.array(run.t), np.array(run.v_out)
+    grid = np.linspace(t[0], t[-1], 4096)
+    spec = np.abs(np.fft.rfft(np.interp(grid, t, v) - np.mean(v)))
+    f_axis = np.fft.rfftfreq(len(grid), grid[1] - grid[0])
+    fund = spec[np.argmin(np.abs(f_axis - run.f_meas))]
+    half = spec[np.argmin(np.abs(f_axis - run.f_meas / 2))]
+    assert half > 0.03 * fund
+
+
+def test_clean_design_at_loop_gain_3_settles():
+    design = _at_gain(_form_base("common-emitter"), 3.0)
+    ss = steady_state(solve(design), warm=False)
+    assert ss.behaviour == "settles"
+    assert 0 < ss.settle_cycles < math.inf
+    assert all(abs(m) < 1.0 for m in ss.multipliers)
+
+
+def test_no_orbit_below_threshold():
+    design = _at_gain(_form_base("common-base"), 0.8)
+    ss = steady_state(solve(design))
+    assert ss.behaviour == "no-orbit" and ss.amp_out is None and ss.reason
+
+
+@pytest.mark.parametrize("design", [_pd455(), *[_sample(p) for p in SAMPLES]], ids=lambda d: d.name)
+def test_average_collector_current_within_what_the_bias_network_carries(design):
+    """I_C,avg ≤ I_E,avg = V_E,avg/R_E, and the emitter cannot average above the base's peak.
+
+    The emitter capacitor charges only while the base-emitter junction
+    conducts, so V_E stays below the base's highest voltage (peak
+    rectification; common practice, no source); and the collector circuit
+    cannot pass more than its supply over its resistors.
+    """
+    s = solve(design)
+    ss = steady_state(s, warm=False)
+    RE = design.bias.RE
+    v_b = np.array(ss.waveforms["b"])
+    assert ss.IC_avg <= ss.VE_avg / RE
+    assert ss.VE_avg <= v_b.max()
+    R_c = design.bias.RC or 0.0
+    assert ss.IC_avg <= design.supply.Vcc / (R_c + RE)
+
+
+def test_warm_start_after_an_edit_finds_the_cold_orbit():
+    design = _sample(SAMPLES[0])
+    steady_state(solve(design))
+    edited = with_param(design, "C1", get_param(design, "C1") * 1.01)
+    warm = steady_state(solve(edited))
+    cold = steady_state(solve(edited), warm=False)
+    assert warm.orbit.iterations <= 3
+    assert warm.amp_out == pytest.approx(cold.amp_out, rel=1e-6)
+    assert warm.f == pytest.approx(cold.f, rel=1e-9)
+
+
+def test_orbit_exposes_what_phase_noise_needs():
+    """The left eigenvector of the monodromy for multiplier 1, carried back with S_kᵀ,
+    stays periodic (its value after one period equals the start): the orbit's
+    step linearisations and monodromy are consistent."""
+    ss = steady_state(solve(_sample(SAMPLES[0])), warm=False)
+    o = ss.orbit
+    d = o.dynamic
+    mu, left = np.linalg.eig(o.monodromy.T)
+    v = np.real(left[:, np.argmin(np.abs(mu - 1.0))])
+    full = np.zeros(o.x.shape[1])
+    full[d] = v
+    back = full
+    for S in o.steps[::-1]:
+        back = S.T @ back
+    assert back[d] == pytest.approx(v, rel=1e-5, abs=1e-6 * np.abs(v).max())
