@@ -1,211 +1,85 @@
-"""``ringwise`` command line: analyze, threshold, sweep, serve.
+"""``ringwise`` command line.
 
-Every command reads a design file and prints JSON in the same contract as the
-web API.  Bad input exits with status 2 and a message naming the field.
+Every command reads a design file (``-`` reads standard input) and prints the
+same result models as the web API: JSON by default, ``--format table`` in
+engineering units with the sheet's labels, or ``--format csv``.  Bad input
+ends with one line naming the problem and exit status 2; a closed pipe
+(``ringwise analyze x.json | head -1``) and Ctrl-C end quietly.
+
+This module imports only the standard library, so ``ringwise --help``
+answers at once; the numerical stack is imported when a command runs
+(:mod:`ringwise.commands`).
 """
 
 from __future__ import annotations
 
 import argparse
-import json
+import os
+import signal
 import sys
-from pathlib import Path
-from typing import Any
-
-from pydantic import ValidationError
+from typing import Final
 
 from ringwise import __version__
-from ringwise.analysis.analyze import analyze
-from ringwise.analysis.reconcile import ReconcileError, reconcile
-from ringwise.analysis.sensitivity import sensitivities
-from ringwise.analysis.spread import SpreadError, spread_result
-from ringwise.analysis.synthesis import SynthesisError, synthesize
-from ringwise.analysis.threshold import ParameterError, find_threshold, sweep
-from ringwise.analysis.transient import MAX_CYCLES, SimulationError, simulate
-from ringwise.circuit.topologies import GAIN_SETTER
-from ringwise.design import Design, Topology
-from ringwise.errors import describe_validation_error
-from ringwise.preferred import SeriesError, snap_design
-from ringwise.units import UnitError, format_si, parse_quantity
 
-EXIT_BAD_INPUT = 2
+EXIT_BAD_INPUT: Final = 2
+#: Exit status after Ctrl-C (128 + SIGINT, the shells' convention).
+EXIT_INTERRUPTED: Final = 128 + signal.SIGINT
+#: TCP port numbers (RFC 793: 16 bits; 0 is not a port one can connect to).
+PORT_RANGE: Final = (1, 65535)
+#: Seeds numpy's generator accepts are non-negative; this many bits is plenty.
+SEED_RANGE: Final = (0, 2**64 - 1)
+FORMATS: Final = ("json", "table", "csv")
+TOPOLOGIES: Final = ("common-emitter", "common-base", "common-collector")
+SERIES_NAMES: Final = ("E6", "E12", "E24", "E48", "E96")
 
 
 class BadInputError(Exception):
     """Input the user must fix; the message says what and where."""
 
 
-def _load(path: str) -> Design:
+def _bounded_int(low: int, high: int, what: str):
+    def parse(text: str) -> int:
+        try:
+            value = int(text, 10)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text[:40]!r} is not a whole number") from None
+        if not low <= value <= high:
+            raise argparse.ArgumentTypeError(f"{what} must be {low} … {high}, got {value}")
+        return value
+
+    parse.__name__ = what
+    return parse
+
+
+def _number(text: str) -> float:
     try:
-        text = Path(path).read_text(encoding="utf-8")
-    except OSError as err:
-        raise BadInputError(f"cannot read {path}: {err.strerror}") from err
-    try:
-        data = json.loads(text)
-    except json.JSONDecodeError as err:
-        raise BadInputError(f"{path} is not JSON: {err.msg} at line {err.lineno}") from err
-    try:
-        return Design.model_validate(data)
-    except ValidationError as err:
-        lines = [f"{item['field']}: {item['message']}" for item in describe_validation_error(err)]
-        raise BadInputError(f"{path} is not a valid design:\n  " + "\n  ".join(lines)) from err
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text[:40]!r} is not a number") from None
+    if value != value or value in (float("inf"), float("-inf")):
+        raise argparse.ArgumentTypeError(f"{text[:40]!r} is not a finite number")
+    return value
 
 
-def _value(text: str, what: str) -> float:
-    try:
-        return parse_quantity(text)
-    except UnitError as err:
-        raise BadInputError(f"{what}: {err}") from err
+def _design_argument(p: argparse.ArgumentParser) -> None:
+    p.add_argument("design", help="design JSON file, or - to read it from standard input")
 
 
-def _print(data: Any) -> None:
-    json.dump(data, sys.stdout, indent=2, ensure_ascii=False, allow_nan=False)
-    sys.stdout.write("\n")
-
-
-def cmd_analyze(args: argparse.Namespace) -> None:
-    _print(analyze(_load(args.design)).model_dump(mode="json"))
-
-
-def cmd_threshold(args: argparse.Namespace) -> None:
-    design = _load(args.design)
-    param = args.param or GAIN_SETTER[design.topology]
-    try:
-        result = find_threshold(design, param)
-    except ParameterError as err:
-        raise BadInputError(f"--param: {err}") from err
-    _print(
-        {
-            "param": result.param,
-            "value": result.value,
-            "current": result.current,
-            "reason": result.reason,
-        }
+def _format_argument(p: argparse.ArgumentParser, series: tuple[str, ...] = ()) -> None:
+    p.add_argument(
+        "--format",
+        choices=FORMATS,
+        default="json",
+        help="json (default, the API's result), table (engineering units, the sheet's labels) "
+        "or csv",
     )
-
-
-def cmd_sweep(args: argparse.Namespace) -> None:
-    design = _load(args.design)
-    start = _value(args.start, "--from")
-    stop = _value(args.stop, "--to")
-    try:
-        result = sweep(design, args.param, start, stop, args.points, args.scale)
-    except ParameterError as err:
-        raise BadInputError(str(err)) from err
-    _print(
-        {
-            "param": result.param,
-            "values": result.values,
-            "f_osc": result.f_osc,
-            "gain": result.gain,
-            "threshold": {
-                "param": result.threshold.param,
-                "value": result.threshold.value,
-                "reason": result.threshold.reason,
-            },
-        }
-    )
-
-
-def cmd_simulate(args: argparse.Namespace) -> None:
-    design = _load(args.design)
-    try:
-        result = simulate(design, cycles=args.cycles, points=args.points)
-    except SimulationError as err:
-        raise BadInputError(str(err)) from err
-    data = result.model_dump(mode="json")
-    if not args.waveforms:
-        for key in ("waveform", "envelope", "spectrum"):
-            data["transient"].pop(key)
-    _print(data)
-
-
-def cmd_snap(args: argparse.Namespace) -> None:
-    design = _load(args.design)
-    try:
-        result = snap_design(design, args.series)
-    except SeriesError as err:
-        raise BadInputError(f"--series: {err}") from err
-    _print(result.design.model_dump(mode="json"))
-    for part, before, after in result.changes:
-        print(f"ringwise: {part} {format_si(before)} → {format_si(after)}", file=sys.stderr)
-    print(
-        f"ringwise: f_osc {format_si(result.f_before, 'Hz')} → {format_si(result.f_after, 'Hz')}, "
-        f"loop gain {result.gain_before:.3g} → {result.gain_after:.3g}",
-        file=sys.stderr,
-    )
-
-
-def cmd_sensitivity(args: argparse.Namespace) -> None:
-    rows = sensitivities(_load(args.design))
-    _print([{"part": r.part, "value": r.value, "S_f": r.S_f, "S_gain": r.S_gain} for r in rows])
-
-
-def cmd_spread(args: argparse.Namespace) -> None:
-    design = _load(args.design)
-    window = None
-    if args.window:
-        window = (_value(args.window[0], "--window"), _value(args.window[1], "--window"))
-    try:
-        result = spread_result(design, args.samples, args.seed, args.margin, window)
-    except SpreadError as err:
-        raise BadInputError(str(err)) from err
-    data = result.model_dump(mode="json")
-    if not args.histograms:
-        for key in ("f_histogram", "gain_histogram"):
-            data["spread"].pop(key)
-    _print(data)
-
-
-def cmd_synthesize(args: argparse.Namespace) -> None:
-    try:
-        result = synthesize(
-            args.topology,
-            _value(args.f, "--f"),
-            _value(args.Vcc, "--Vcc"),
-            _value(args.IC, "--IC"),
-            gain=args.gain,
-            L=_value(args.L, "--L") if args.L else None,
-            ratio=args.ratio,
+    if series:
+        p.add_argument(
+            "--series",
+            choices=series,
+            default=series[0],
+            help=f"what --format table/csv lists (default {series[0]})",
         )
-    except SynthesisError as err:
-        raise BadInputError(str(err)) from err
-    _print(result.design.model_dump(mode="json"))
-    for reason in result.reasons:
-        print(f"ringwise: {reason}", file=sys.stderr)
-
-
-def cmd_reconcile(args: argparse.Namespace) -> None:
-    design = _load(args.design)
-    threshold = None
-    if args.threshold:
-        part, sep, text = args.threshold.partition("=")
-        if not sep:
-            raise BadInputError("--threshold: write PART=VALUE, e.g. RC=180")
-        threshold = (part.strip(), _value(text, "--threshold"))
-    amplitude = _value(args.amplitude, "--amplitude") if args.amplitude else None
-    try:
-        r = reconcile(design, _value(args.f_measured, "--f-measured"), threshold, amplitude)
-    except ReconcileError as err:
-        raise BadInputError(str(err)) from err
-    _print(
-        {
-            "fitted": [vars(f) for f in r.fitted],
-            "readings": {
-                k: {"bench": b, "nominal_model": n, "as_built_model": a}
-                for k, (b, n, a) in r.readings.items()
-            },
-            "explanation": r.explanation,
-            "evidence_dAIC": r.evidence,
-            "as_built": r.as_built.model_dump(mode="json"),
-        }
-    )
-
-
-def cmd_serve(args: argparse.Namespace) -> None:
-    from ringwise.web.server import serve  # imported here: the core needs no web stack
-
-    serve(host=args.host, port=args.port, design=args.design)
 
 
 def parser() -> argparse.ArgumentParser:
@@ -213,87 +87,135 @@ def parser() -> argparse.ArgumentParser:
         prog="ringwise", description="Design sheet for Colpitts-family LC oscillators."
     )
     p.add_argument("--version", action="version", version=f"ringwise {__version__}")
-    sub = p.add_subparsers(dest="command", required=True)
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    a = sub.add_parser("analyze", help="print the full analysis of a design as JSON")
-    a.add_argument("design", help="design JSON file")
-    a.set_defaults(run=cmd_analyze)
+    a = sub.add_parser("analyze", help="the full analysis of a design")
+    _design_argument(a)
+    _format_argument(a, ("figures", "phase-noise"))
 
     t = sub.add_parser("threshold", help="value of one part at which the loop gain is 1")
-    t.add_argument("design")
+    _design_argument(t)
     t.add_argument("--param", help="part to vary (default: the gain-setting resistor)")
-    t.set_defaults(run=cmd_threshold)
+    _format_argument(t)
 
     s = sub.add_parser("sweep", help="f_osc and loop gain along one part's value")
-    s.add_argument("design")
-    s.add_argument("--param", required=True)
-    s.add_argument("--from", dest="start", required=True, help="e.g. 100, 2k2, 1n")
-    s.add_argument("--to", dest="stop", required=True)
-    s.add_argument("--points", type=int, default=50)
-    s.add_argument("--scale", choices=["log", "linear"], default=None)
-    s.set_defaults(run=cmd_sweep)
+    _design_argument(s)
+    s.add_argument("--param", required=True, help="part to vary, e.g. RC, C2, L")
+    s.add_argument("--from", dest="start", required=True, help="first value, e.g. 100, 2k2, 1n")
+    s.add_argument("--to", dest="stop", required=True, help="last value, e.g. 2k")
+    s.add_argument("--points", type=int, default=50, help="number of values (default 50)")
+    s.add_argument(
+        "--scale", choices=["log", "linear"], default=None, help="spacing (default: by part)"
+    )
+    _format_argument(s)
 
     m = sub.add_parser("simulate", help="nonlinear transient: amplitude, THD, startup, squegging")
-    m.add_argument("design")
-    m.add_argument("--cycles", type=float, default=300.0, help=f"periods to run (max {MAX_CYCLES})")
-    m.add_argument("--points", type=int, default=4000, help="waveform points kept")
-    m.add_argument("--waveforms", action="store_true", help="include waveform, envelope, spectrum")
-    m.set_defaults(run=cmd_simulate)
+    _design_argument(m)
+    m.add_argument(
+        "--cycles", type=_number, default=300.0, help="periods to run (default 300; capped)"
+    )
+    m.add_argument("--points", type=int, default=4000, help="waveform points kept (default 4000)")
+    m.add_argument(
+        "--waveforms", action="store_true", help="JSON: include waveform, envelope, spectrum"
+    )
+    _format_argument(m, ("figures", "waveform", "envelope", "spectrum"))
 
     n = sub.add_parser("snap", help="move every part to the nearest E-series value")
-    n.add_argument("design")
-    n.add_argument("--series", default="E24", help="E6, E12, E24, E48 or E96 (default E24)")
-    n.set_defaults(run=cmd_snap)
+    _design_argument(n)
+    n.add_argument("--series", default="E24", help=f"{', '.join(SERIES_NAMES)} (default E24)")
 
     k = sub.add_parser("sensitivity", help="∂ln f/∂ln x and ∂ln T/∂ln x for every part")
-    k.add_argument("design")
-    k.set_defaults(run=cmd_sensitivity)
+    _design_argument(k)
+    _format_argument(k)
 
-    p_ = sub.add_parser("spread", help="Monte Carlo over tolerances and temperature: yield")
-    p_.add_argument("design")
-    p_.add_argument("--samples", type=int, default=2000, help="samples (max 100000)")
-    p_.add_argument("--seed", type=int, default=1)
-    p_.add_argument("--margin", type=float, default=2.0, help="loop gain the margin yield asks for")
-    p_.add_argument(
+    r = sub.add_parser("spread", help="Monte Carlo over tolerances and temperature: yield")
+    _design_argument(r)
+    r.add_argument("--samples", type=int, default=2000, help="samples (default 2000; capped)")
+    r.add_argument(
+        "--seed", type=_bounded_int(*SEED_RANGE, "--seed"), default=1, help="random seed (≥ 0)"
+    )
+    r.add_argument(
+        "--margin", type=_number, default=2.0, help="loop gain the margin yield asks for"
+    )
+    r.add_argument(
         "--window", nargs=2, metavar=("LOW", "HIGH"), help="frequency window, e.g. 990k 1.01M"
     )
-    p_.add_argument("--histograms", action="store_true", help="include the histograms")
-    p_.set_defaults(run=cmd_spread)
+    r.add_argument("--histograms", action="store_true", help="JSON: include the histograms")
+    _format_argument(r, ("figures", "samples", "temperature"))
 
     y = sub.add_parser("synthesize", help="a buildable design from targets, in standard values")
-    y.add_argument("--topology", choices=[t.value for t in Topology], default="common-emitter")
+    y.add_argument("--topology", choices=TOPOLOGIES, default="common-emitter", help="the form")
     y.add_argument("--f", required=True, help="target frequency, e.g. 1M")
     y.add_argument("--Vcc", required=True, help="supply, e.g. 12")
     y.add_argument("--IC", required=True, help="collector current, e.g. 1m")
-    y.add_argument("--gain", type=float, default=3.0, help="target loop gain (default 3)")
+    y.add_argument("--gain", type=_number, default=3.0, help="target loop gain (default 3)")
     y.add_argument("--L", default=None, help="inductor to use, e.g. 10u")
-    y.add_argument("--ratio", type=float, default=None, help="C1/C2 to use instead of tuning")
-    y.set_defaults(run=cmd_synthesize)
+    y.add_argument("--ratio", type=_number, default=None, help="C1/C2 to use instead of tuning")
 
     c = sub.add_parser("reconcile", help="fit the model to what the bench showed")
-    c.add_argument("design")
+    _design_argument(c)
     c.add_argument("--f-measured", required=True, help="measured frequency, e.g. 1.012M")
     c.add_argument("--threshold", help="part value at which it started, e.g. RC=180")
     c.add_argument("--amplitude", help="measured amplitude at the output node, V")
-    c.set_defaults(run=cmd_reconcile)
+
+    b = sub.add_parser("bom", help="bill of materials: values, standard series, stresses")
+    _design_argument(b)
+    b.add_argument(
+        "--format", choices=FORMATS, default="table", help="table (default), csv or json"
+    )
+
+    h = sub.add_parser("schema", help="the JSON Schema of design files")
+    h.set_defaults(design=None)
 
     v = sub.add_parser("serve", help="serve the design sheet on this computer")
+    v.add_argument(
+        "design",
+        nargs="?",
+        default=None,
+        help="design file to open, or a sample's name (default: a sample)",
+    )
     v.add_argument("--host", default="127.0.0.1", help="address to bind (default 127.0.0.1)")
-    v.add_argument("--port", type=int, default=8000)
-    v.add_argument("--design", default=None, help="sample design to open with")
-    v.set_defaults(run=cmd_serve)
+    v.add_argument(
+        "--port", type=_bounded_int(*PORT_RANGE, "--port"), default=8000, help="default 8000"
+    )
+    v.add_argument("--design", dest="sample", default=None, help="sample design to open with")
     return p
+
+
+def _quiet_broken_pipe() -> None:
+    """Standard output was closed early (``| head``): leave without a traceback.
+
+    Python flushes stdout at exit and would report the broken pipe again;
+    pointing stdout at /dev/null first keeps that silent.
+    """
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(devnull, sys.stdout.fileno())
 
 
 def main(argv: list[str] | None = None) -> int:
     args = parser().parse_args(argv)
     try:
-        args.run(args)
+        from ringwise.commands import run  # the numerical stack, only now
+
+        run(args)
+        sys.stdout.flush()
     except BadInputError as err:
-        print(f"ringwise: {err}", file=sys.stderr)
+        from ringwise.console import clip_message
+
+        print(f"ringwise: {clip_message(str(err))}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:
+        _quiet_broken_pipe()
+        return 0
+    except KeyboardInterrupt:
+        print("", file=sys.stderr)
+        return EXIT_INTERRUPTED
     return 0
 
 
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    # python -m ringwise.cli: run the imported module, so that ringwise.commands
+    # raises the same BadInputError class that main catches
+    from ringwise.cli import main as _main
+
+    sys.exit(_main())

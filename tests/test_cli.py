@@ -2,12 +2,21 @@
 
 from __future__ import annotations
 
+import argparse
+import csv
+import io
 import json
 import math
+import re
+import signal
+import subprocess
+import sys
+import time
 from pathlib import Path
 
 import pytest
 
+import ringwise
 from ringwise.cli import EXIT_BAD_INPUT, main
 from tests.conftest import sample_paths
 
@@ -126,3 +135,176 @@ def test_reconcile_prints_the_fit(capsys) -> None:
         capsys, "reconcile", str(sample_paths()[0]), "--f-measured", "1M", "--threshold", "RC"
     )
     assert code == EXIT_BAD_INPUT and "PART=VALUE" in err
+
+
+# --- conventions: version, stdin, pipes, Ctrl-C, formats, lazy imports ---------
+
+RINGWISE = [sys.executable, "-m", "ringwise.cli"]
+
+
+def _cli(*argv: str, stdin: bytes | None = None, **kw) -> subprocess.CompletedProcess[bytes]:
+    return subprocess.run([*RINGWISE, *argv], input=stdin, capture_output=True, check=False, **kw)
+
+
+def test_version(capsys) -> None:
+    with pytest.raises(SystemExit) as done:
+        main(["--version"])
+    assert done.value.code == 0
+    assert capsys.readouterr().out.strip() == f"ringwise {ringwise.__version__}"
+
+
+def test_help_imports_no_numerical_stack() -> None:
+    # --help answers at once because the parser imports only the standard library
+    code = (
+        "import sys\nfrom ringwise.cli import main\n"
+        "try:\n    main(['analyze', '--help'])\nexcept SystemExit:\n    pass\n"
+        "heavy = {'numpy', 'scipy', 'pydantic', 'fastapi'} & set(sys.modules)\n"
+        "print(sorted(heavy), file=sys.stderr)\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert done.stderr.strip() == "[]"
+
+
+def test_every_argument_has_help() -> None:
+    from ringwise.cli import parser
+
+    top = parser()
+    (sub,) = (a for a in top._actions if isinstance(a, argparse._SubParsersAction))
+    for name, command in sub.choices.items():
+        for action in command._actions:
+            assert action.help, f"{name} {action.dest} has no help text"
+
+
+def test_stdin_equals_the_file() -> None:
+    path = sample_paths()[0]
+    from_file = _cli("analyze", str(path))
+    from_stdin = _cli("analyze", "-", stdin=path.read_bytes())
+    assert from_file.returncode == from_stdin.returncode == 0
+    assert from_stdin.stdout == from_file.stdout
+
+
+def test_a_byte_order_mark_is_accepted_as_by_the_api(client_free_bom: bytes) -> None:
+    done = _cli("analyze", "-", stdin=client_free_bom)
+    assert done.returncode == 0, done.stderr
+
+
+@pytest.fixture
+def client_free_bom() -> bytes:
+    return b"\xef\xbb\xbf" + sample_paths()[0].read_bytes()
+
+
+def test_a_closed_pipe_ends_quietly() -> None:
+    # ringwise analyze FILE | head -1
+    proc = subprocess.Popen(
+        [*RINGWISE, "analyze", str(sample_paths()[0])],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+    )
+    assert proc.stdout is not None and proc.stderr is not None
+    proc.stdout.readline()
+    proc.stdout.close()
+    err = proc.stderr.read()
+    proc.stderr.close()
+    assert proc.wait(timeout=120) == 0
+    assert b"Traceback" not in err and err == b""
+
+
+def test_ctrl_c_ends_quietly() -> None:
+    proc = subprocess.Popen(
+        [*RINGWISE, "simulate", str(sample_paths()[0]), "--cycles", "20000"],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+    )
+    time.sleep(3)  # well into the run (or still importing: both must end quietly)
+    proc.send_signal(signal.SIGINT)
+    out, err = proc.communicate(timeout=120)
+    assert proc.returncode == 128 + signal.SIGINT
+    assert b"Traceback" not in err and out == b""
+
+
+@pytest.mark.parametrize(
+    ("content", "needle"),
+    [
+        (b"\xff\xfe{\x00", "is not UTF-8 text"),
+        ('{"name": "caf\xe9"}'.encode("latin-1"), "is not UTF-8 text"),
+        (b"[" * 100_000 + b"]" * 100_000, "is over 65536 bytes"),
+        (b"[" * 30_000 + b"]" * 30_000, "nested too deeply"),
+        (b'{"tank": {"C2": ' + b"9" * 5000 + b"}}", "is not a design file"),
+        (b'{"name": "' + b"x" * 60_000 + b'"}', "is not a valid design"),
+    ],
+    ids=["binary", "latin-1", "huge", "deep", "long-integer", "long-name"],
+)
+def test_bad_files_end_in_one_short_message(tmp_path: Path, content: bytes, needle: str) -> None:
+    bad = tmp_path / "bad.json"
+    bad.write_bytes(content)
+    done = _cli("analyze", str(bad))
+    err = done.stderr.decode()
+    assert done.returncode == EXIT_BAD_INPUT, err
+    assert needle in err and "Traceback" not in err
+    assert all(len(line) <= 300 for line in err.splitlines())
+    assert len(err) < 4000
+
+
+def test_dev_zero_is_refused() -> None:
+    done = _cli("analyze", "/dev/zero")
+    assert done.returncode == EXIT_BAD_INPUT
+    assert b"is over 65536 bytes" in done.stderr and b"Traceback" not in done.stderr
+
+
+@pytest.mark.parametrize(
+    ("argv", "needle"),
+    [
+        (["spread", "{sample}", "--seed", "-1"], "--seed must be 0"),
+        (["serve", "--port", "99999"], "--port must be 1 … 65535"),
+        (["simulate", "{sample}", "--cycles", "nan"], "not a finite number"),
+    ],
+)
+def test_bad_numbers_are_refused_by_the_parser(argv: list[str], needle: str) -> None:
+    argv = [a.replace("{sample}", str(sample_paths()[0])) for a in argv]
+    done = _cli(*argv)
+    assert done.returncode == EXIT_BAD_INPUT
+    assert needle in done.stderr.decode() and b"Traceback" not in done.stderr
+
+
+def test_table_uses_the_sheets_labels_and_engineering_units(capsys) -> None:
+    from ringwise.web.view import SHOWN
+
+    code = main(["analyze", str(sample_paths()[0]), "--format", "table"])
+    out = capsys.readouterr().out
+    assert code == 0
+    for _path, _unit, label, _panel in SHOWN:
+        if _unit != "valid":
+            assert label in out
+    assert re.search(r"Oscillation frequency \(zero loop phase\)\s+\d+(\.\d+)? kHz", out)
+
+
+def test_analyze_csv_figures_parse_back_to_the_result(capsys) -> None:
+    path = str(sample_paths()[0])
+    main(["analyze", path])
+    result = json.loads(capsys.readouterr().out)
+    main(["analyze", path, "--format", "csv"])
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
+    assert rows
+    by_path = {r["path"]: r["value"] for r in rows}
+    assert float(by_path["loop.f_osc"]) == result["loop"]["f_osc"]
+    assert float(by_path["operating_point.IC"]) == result["operating_point"]["IC"]
+
+
+def test_sweep_csv_parses_back_to_the_json(capsys) -> None:
+    argv = ["sweep", str(sample_paths()[0]), "--param", "RC", "--from", "100", "--to", "2k"]
+    main([*argv, "--points", "7"])
+    data = json.loads(capsys.readouterr().out)
+    main([*argv, "--points", "7", "--format", "csv"])
+    rows = list(csv.reader(io.StringIO(capsys.readouterr().out)))
+    assert rows[0][:3] == ["RC [SI]", "f_osc [Hz]", "loop gain"]
+    assert [float(r[0]) for r in rows[1:]] == data["values"]
+    assert [float(r[1]) if r[1] else None for r in rows[1:]] == data["f_osc"]
+    assert [float(r[2]) if r[2] else None for r in rows[1:]] == data["gain"]
+
+
+def test_serve_refuses_a_bad_design_file_in_one_line(tmp_path: Path) -> None:
+    bad = tmp_path / "mine.json"
+    bad.write_text('{"topology": "common-emitter"}')
+    done = _cli("serve", str(bad), "--port", "1")
+    assert done.returncode == EXIT_BAD_INPUT
+    assert b"is not a valid design" in done.stderr and b"Traceback" not in done.stderr

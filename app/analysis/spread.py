@@ -23,6 +23,7 @@ close estimate near it, which is where yield is decided.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Final
 
@@ -232,6 +233,9 @@ class Spread:
     worst_cases: list[dict]
     f_vs_temperature: list[tuple[float, float, float, float]]  # (T_C, p5, p50, p95)
     batches: list[Batch] = field(repr=False)
+    draws: Draws = field(repr=False)
+    #: (temperatures, samples): the sample starts there (gain > 1, active device)
+    starts: np.ndarray = field(repr=False)
 
 
 def _percentiles(a: np.ndarray) -> dict[int, float]:
@@ -255,15 +259,23 @@ def monte_carlo(
     seed: int = 1,
     margin: float = MARGINAL_BELOW,
     window: tuple[float, float] | None = None,
+    progress: Callable[[float], bool] | None = None,
 ) -> Spread:
-    """Startup yield and spread of f_osc and loop gain over tolerances and temperature."""
+    """Startup yield and spread of f_osc and loop gain over tolerances and temperature.
+
+    ``progress``, if given, is called with the fraction done (0 … 1) after
+    each batch of samples (one per temperature).
+    """
     if window is not None and not 0 < window[0] < window[1]:
         raise SpreadError(f"the frequency window must satisfy 0 < low < high, got {window}")
     draws = draw(design, samples, seed)
     prepared = _prepare(design)
-    batches = [
-        analyse_batch(design, values_at(design, draws, T), T, prepared) for T in draws.temperatures
-    ]
+    steps = len(draws.temperatures) + TEMPERATURE_STEPS
+    batches = []
+    for T in draws.temperatures:
+        batches.append(analyse_batch(design, values_at(design, draws, T), T, prepared))
+        if progress is not None:
+            progress(len(batches) / steps)
     gains = np.stack([b.gain for b in batches])  # (corners, samples)
     freqs = np.stack([b.f_osc for b in batches])
     active = np.stack([b.active for b in batches])
@@ -295,6 +307,8 @@ def monte_carlo(
         if f.size:
             p5, p50, p95 = np.percentile(f, (5, 50, 95))
             band.append((float(T), float(p5), float(p50), float(p95)))
+        if progress is not None:
+            progress(min(1.0, (len(batches) + len(band)) / steps))
     return Spread(
         samples=samples,
         seed=seed,
@@ -314,6 +328,8 @@ def monte_carlo(
         worst_cases=worst,
         f_vs_temperature=band,
         batches=batches,
+        draws=draws,
+        starts=starts,
     )
 
 
@@ -323,8 +339,16 @@ def spread_result(
     seed: int = 1,
     margin: float = MARGINAL_BELOW,
     window: tuple[float, float] | None = None,
+    progress: Callable[[float], bool] | None = None,
 ):
-    """Monte Carlo and ranked sensitivities as the result contract (CLI and API)."""
+    """Monte Carlo and ranked sensitivities as the result contract (CLI and API);
+    ``progress`` is as in :func:`monte_carlo`."""
+    return spread_out(design, monte_carlo(design, samples, seed, margin, window, progress))
+
+
+def spread_out(design: Design, r: Spread):
+    """A :func:`monte_carlo` run of ``design`` with the ranked sensitivities, as the
+    result contract."""
     from ringwise.analysis.sensitivity import sensitivities
     from ringwise.result import (
         HistogramOut,
@@ -336,7 +360,6 @@ def spread_result(
         WorstCaseOut,
     )
 
-    r = monte_carlo(design, samples, seed, margin, window)
     tol = design.tolerances
     sens = []
     for s in sensitivities(design):

@@ -8,7 +8,7 @@ from fastapi import Request
 
 from ringwise.web.errors import ApiError
 from ringwise.web.fields import BY_NAME, FIELDS, from_query
-from ringwise.web.samples import DEFAULT_SAMPLE, sample_texts
+from ringwise.web.samples import DEFAULT_SAMPLE, OPENED_DESIGN, sample_texts
 
 #: The error answers every JSON route documents.
 ERRORS: dict[int | str, dict[str, Any]] = {
@@ -23,7 +23,11 @@ def default_sample(request: Request) -> str:
 
 def texts_for(request: Request) -> tuple[dict[str, str], list[dict]]:
     """Form texts and link problems for the request's query string (a share link)."""
-    return from_query(request.query_params.multi_items(), sample_texts(), default_sample(request))
+    known = sample_texts()
+    opened = getattr(request.app.state, "opened_texts", None)
+    if opened is not None:  # ringwise serve DESIGN.json
+        known = {**known, OPENED_DESIGN: opened}
+    return from_query(request.query_params.multi_items(), known, default_sample(request))
 
 
 def form_texts(fields: dict[str, str]) -> dict[str, str]:

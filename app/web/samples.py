@@ -41,5 +41,8 @@ def sample_texts() -> dict[str, dict[str, str]]:
     return {key: s.texts for key, s in samples().items()}
 
 
+#: The key under which a design file given to ``ringwise serve FILE`` opens.
+OPENED_DESIGN = "opened-file"
+
 #: The sample the sheet opens on when none is named.
 DEFAULT_SAMPLE = "clapp-clock-1M"

@@ -18,9 +18,10 @@ from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from ringwise.web import errors
 from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
+from ringwise.web.fields import texts_from_document
 from ringwise.web.paths import STATIC_DIR
 from ringwise.web.routers import api, pages, simulate, spread, tools
-from ringwise.web.samples import DEFAULT_SAMPLE, samples
+from ringwise.web.samples import DEFAULT_SAMPLE, OPENED_DESIGN, samples
 from ringwise.web.schemas import ErrorOut
 
 #: Scripts, styles, fonts and connections only from this server.  Plotly sets
@@ -165,9 +166,16 @@ def _standard_bounds(node: Any) -> None:
             _standard_bounds(value)
 
 
-def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
-    """The web app; ``default_design`` is the sample the sheet opens on."""
-    if default_design not in samples():
+def create_app(
+    default_design: str = DEFAULT_SAMPLE, document: dict[str, Any] | None = None
+) -> FastAPI:
+    """The web app; ``default_design`` is the sample the sheet opens on, or
+    ``document`` a design file's JSON (``ringwise serve DESIGN.json``)."""
+    opened = None
+    if document is not None:
+        opened = texts_from_document(document)
+        default_design = OPENED_DESIGN
+    elif default_design not in samples():
         known = ", ".join(samples())
         raise ValueError(f"no sample design named {default_design!r}; known: {known}")
     app = FastAPI(
@@ -180,6 +188,7 @@ def create_app(default_design: str = DEFAULT_SAMPLE) -> FastAPI:
         redoc_url=None,
     )
     app.state.default_design = default_design
+    app.state.opened_texts = opened
     errors.install(app)
     app.include_router(api.router)
     app.include_router(tools.router)
@@ -224,14 +233,20 @@ def _is_loopback(host: str) -> bool:
         return False
 
 
-def serve(host: str = "127.0.0.1", port: int = 8000, design: str | None = None) -> None:
-    """Serve the sheet with uvicorn until interrupted."""
+def serve(
+    host: str = "127.0.0.1",
+    port: int = 8000,
+    design: str | None = None,
+    document: dict[str, Any] | None = None,
+) -> None:
+    """Serve the sheet with uvicorn until interrupted, opening on the sample
+    ``design`` or on the design file's JSON ``document``."""
     import uvicorn
 
     try:
-        app = create_app(design or DEFAULT_SAMPLE)
+        app = create_app(design or DEFAULT_SAMPLE, document)
     except ValueError as err:
-        print(f"ringwise: --design: {err}", file=sys.stderr)
+        print(f"ringwise: {err}", file=sys.stderr)
         raise SystemExit(2) from err
     shown_host = f"[{host}]" if ":" in host else host
     print(f"ringwise: the design sheet is at http://{shown_host}:{port}/  (Ctrl+C stops it)")

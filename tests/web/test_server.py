@@ -97,4 +97,18 @@ def test_serve_refuses_an_unknown_design(capsys):
     with pytest.raises(SystemExit) as info:
         server.serve(design="nope")
     assert info.value.code == 2
-    assert "--design" in capsys.readouterr().err
+    assert "no sample design named 'nope'" in capsys.readouterr().err
+
+
+def test_the_app_opens_a_design_file_of_the_users(sample):
+    from fastapi.testclient import TestClient
+
+    from ringwise.web.server import create_app
+
+    mine = {**sample, "name": "my own bench oscillator", "tank": {**sample["tank"], "L": "82u"}}
+    with TestClient(create_app(document=mine)) as c:
+        sheet = c.get("/sheet.json").json()
+        assert sheet["fields"]["name"]["text"] == "my own bench oscillator"
+        assert sheet["fields"]["L"]["text"] == "82u"
+        # the samples stay reachable by name
+        assert c.get("/sheet.json?design=clapp-clock-1M").json()["fields"]["L"]["text"] == "100u"
