@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 __version__ = "0.1.0"
 
 #: Names re-exported from ringwise.api, imported when first used.
-_API = ("load", "analyze", "spread", "simulate", "bill_of_materials")
+_API = ("load", "analyze", "steady_state", "spread", "simulate", "bill_of_materials")
 __all__ = ["__version__", *_API]
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -28,6 +28,7 @@ if TYPE_CHECKING:  # pragma: no cover
         load,
         simulate,
         spread,
+        steady_state,
     )
 
 

@@ -12,6 +12,9 @@ from pathlib import Path
 from typing import Any
 
 from ringwise.analysis.analyze import analyze as _analyze
+from ringwise.analysis.operating import solve
+from ringwise.analysis.periodic import SteadyState
+from ringwise.analysis.periodic import steady_state as _steady_state
 from ringwise.analysis.spread import DEFAULT_SAMPLES, spread_result
 from ringwise.analysis.startup import MARGINAL_BELOW
 from ringwise.analysis.transient import simulate as _simulate
@@ -36,6 +39,12 @@ def load(source: str | PathLike[str] | dict[str, Any]) -> Design:
 def analyze(design: Design) -> Result:
     """The full small-signal and describing-function analysis of ``design``."""
     return _analyze(design)
+
+
+def steady_state(design: Design) -> SteadyState:
+    """The periodic steady state: frequency, amplitudes, harmonics, each part's stress,
+    and its Floquet stability (shooting-Newton on the transient's period map)."""
+    return _steady_state(solve(design))
 
 
 def spread(

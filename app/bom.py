@@ -3,9 +3,11 @@
 For each resistor, capacitor and the coil the design uses: the value as the
 file writes it, the nearest IEC 60063 value (and the coarsest series that
 holds it, or "not standard"), its tolerance and dielectric class, and what
-the part sees in the running oscillator: the peak voltage across it (DC plus
-the fundamental's amplitude, from the describing-function state) and the
-power it dissipates,
+the part sees in the running oscillator: the peak voltage across it and the
+power it dissipates, from the periodic steady state
+(:func:`~ringwise.analysis.periodic.steady_state`, the whole waveform).  A
+design without a steady orbit falls back to the describing-function state
+(DC plus the fundamental's amplitude):
 
 .. math::
 
@@ -30,7 +32,8 @@ import numpy as np
 from pydantic import BaseModel, Field
 
 from ringwise.analysis.describing import describing_function
-from ringwise.analysis.operating import solve
+from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.stability import RATING_FRACTION
 from ringwise.circuit.netlist import Capacitor, Inductor, Resistor
 from ringwise.design import CAPACITOR_PARTS, PARAMETERS, Design, get_param
@@ -67,6 +70,7 @@ class BomLine(BaseModel):
     dielectric: str | None = Field(description="Dielectric class of a capacitor")
     V_peak: float | None = Field(description="Peak voltage across the part, V")
     P: float | None = Field(description="Power dissipated in the part, W")
+    stress_from: str = Field(description="steady state, or describing function without one")
     note: str = Field(description="Where a rating is exceeded or the value is not standard")
 
     def table_row(self) -> list[str]:
@@ -108,9 +112,17 @@ def _written(document: Any, part: str, value: float, unit: str) -> str:
     )
 
 
-def _stresses(design: Design) -> dict[str, tuple[float, float]]:
-    """(V_peak, P) of every two-terminal element, by name."""
+def _stresses(design: Design) -> tuple[dict[str, tuple[float, float]], str]:
+    """(V_peak, P) of every two-terminal element by name, and where they come from."""
     solved = solve(design)
+    steady = steady_state(solved)
+    if steady.parts:
+        return {p.part: (p.V_peak, p.P) for p in steady.parts}, "steady state"
+    return _fundamental_stresses(solved), "describing function"
+
+
+def _fundamental_stresses(solved: Solved) -> dict[str, tuple[float, float]]:
+    """(V_peak, P) from the DC state plus the describing function's fundamental."""
     ls = describing_function(solved)
     x_dc = ls.x_avg if ls.x_avg is not None else solved.op.x
     x_ac = ls.phasors if ls.phasors is not None else np.zeros(len(x_dc), dtype=complex)
@@ -137,7 +149,7 @@ def _stresses(design: Design) -> dict[str, tuple[float, float]]:
 def bill_of_materials(design: Design, document: Any = None) -> list[BomLine]:
     """Every resistor, capacitor and the coil of ``design``; ``document`` is the file's
     JSON (for the values as written)."""
-    stress = _stresses(design)
+    stress, source = _stresses(design)
     unused = design.unused_parts()
     tol = design.tolerances
     lines = []
@@ -177,6 +189,7 @@ def bill_of_materials(design: Design, document: Any = None) -> list[BomLine]:
                 else None,
                 V_peak=V_peak,
                 P=P,
+                stress_from=source,
                 note="; ".join(notes),
             )
         )

@@ -31,6 +31,8 @@ def test_spread_simulate_bom() -> None:
     assert ringwise.spread(design, samples=30).spread.samples == 30
     assert ringwise.simulate(design, cycles=30, points=200).transient.cycles_run >= 30
     assert {line.reference for line in ringwise.bill_of_materials(design)} >= {"L", "C1", "C2"}
+    steady = ringwise.steady_state(design)
+    assert steady.f is not None and steady.f > 0 and steady.parts
 
 
 def test_results_show_as_html_tables() -> None:

@@ -329,7 +329,7 @@ def monte_carlo(
         f_vs_temperature=band,
         batches=batches,
         draws=draws,
-        starts=starts,
+        starts=started,
     )
 
 
