@@ -169,6 +169,10 @@ def test_the_installed_server_serves_sheet_asset_and_sample(served: str) -> None
         assert sample.status_code == 200
         expected = json.loads((ROOT / "sample_designs" / "clapp-clock-1M.json").read_text())
         assert sample.json()["topology"] == expected["topology"]
+        docs = client.get("/docs")
+        assert docs.status_code == 200
+        bundle = re.search(r'src="(/vendor/swagger-ui-[^"]+)"', docs.text)
+        assert bundle is not None and client.get(bundle.group(1)).status_code == 200
 
 
 def test_the_installed_command_line_runs_from_elsewhere(installed: Path, tmp_path: Path) -> None:

@@ -16,7 +16,7 @@ from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from ringwise.web import errors
+from ringwise.web import apidocs, errors
 from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
 from ringwise.web.fields import texts_from_document
 from ringwise.web.paths import STATIC_DIR
@@ -136,6 +136,7 @@ def _document_errors(app: FastAPI) -> None:
         for unused in ("HTTPValidationError", "ValidationError"):
             shared.pop(unused, None)
         _standard_bounds(schema)
+        apidocs.readable(schema)
         app.openapi_schema = schema
         return schema
 
@@ -182,10 +183,11 @@ def create_app(
         title="ringwise",
         summary="Design sheet for Colpitts-family LC oscillators",
         version="1",
-        # The interactive docs pages load their scripts from a CDN; the sheet
-        # works offline, so only the schema is served (at /openapi.json).
+        # FastAPI's docs pages load their scripts from a CDN; ours (/docs) are
+        # served from an installed package (app/web/apidocs.py)
         docs_url=None,
         redoc_url=None,
+        generate_unique_id_function=apidocs.operation_id,
     )
     app.state.default_design = default_design
     app.state.opened_texts = opened
@@ -196,6 +198,7 @@ def create_app(
     app.include_router(spread.router)
     app.include_router(pages.router)
     app.mount("/static", AssetFiles(directory=STATIC_DIR), name="static")
+    apidocs.install(app)
     vendored = plotly_js()
 
     @app.get(vendored.url, include_in_schema=False)
