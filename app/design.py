@@ -131,13 +131,27 @@ class Device(_Part):
 
 
 class Noise(_Part):
-    """Inputs of the phase-noise estimate (Leeson's model)."""
+    """Inputs of the phase-noise figures: Leeson's comparison (F, corner) and the
+    device's flicker law and the supply's noise for the computed spectrum."""
 
     F_dB: Annotated[float, _si(""), Field(ge=0, le=40)] = Field(
         default=6.0, description="Effective device noise factor, dB (typical, from memory)"
     )
     f_corner: Annotated[float, _si("Hz"), Field(ge=1e-3, le=1e9)] = Field(
         default=10e3, description="Flicker corner of the device, Hz (typical, from memory)"
+    )
+    K_F: Annotated[float, _si(""), Field(ge=0, le=1e-6)] = Field(
+        default=1e-15,
+        description="Flicker coefficient of the base current, K_F in K_F·I_B^A_F/f, "
+        "A^(2−A_F) (typical of small-signal transistors, from memory; 0 switches it off)",
+    )
+    A_F: Annotated[float, _si(""), Field(ge=0.5, le=2.5)] = Field(
+        default=1.0,
+        description="Flicker exponent of the base current, A_F (typical, from memory)",
+    )
+    e_supply: Annotated[float, _si("V"), Field(ge=0, le=1e-3)] | None = Field(
+        default=None,
+        description="Noise voltage density of the supply, V/√Hz (blank: a noiseless supply)",
     )
 
 
