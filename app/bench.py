@@ -27,6 +27,7 @@ SPREAD_SAMPLES: Final = 10_000
 SPREAD_LOOP_SAMPLES: Final = 100
 SPREAD_TARGET: Final = 1.0
 TRANSIENT_TARGET: Final = 1.0
+PHASE_NOISE_TARGET: Final = 50e-3
 
 
 def median_time(fn: Callable[[], object], repeat: int, warmup: int = 2) -> float:
@@ -160,6 +161,36 @@ def bench_spread() -> list[str]:
     ]
 
 
+def bench_phase_noise() -> list[str]:
+    """Phase noise after the steady state, per sample; effective F beside the assumed one."""
+    import math
+
+    from ringwise.analysis.operating import solve
+    from ringwise.analysis.periodic import steady_state
+    from ringwise.analysis.phase_noise import oscillator_noise
+
+    lines = ["phase noise from the noise sources (median CPU time of 15, after the steady state):"]
+    for path in sample_files():
+        d = Design.model_validate(json.loads(path.read_text(encoding="utf-8")))
+        s = solve(d)
+        ss = steady_state(s, warm=False)
+        if ss.orbit is None:
+            lines.append(f"  {d.name[:36]:<36} no orbit: {ss.reason}")
+            continue
+        t = median_time(lambda s=s, ss=ss: oscillator_noise(s, ss), 15)
+        lines.append(_line(f"phase noise {d.name[:32]}", t, PHASE_NOISE_TARGET))
+        on = oscillator_noise(s, ss)
+        assert on is not None
+        F = f"{10 * math.log10(on.F_effective):5.1f} dB" if on.F_effective else "  n/a"
+        corner = f"{on.noise.corner:.3g} Hz" if on.noise.corner else "none"
+        lines.append(
+            f"      F effective {F} (assumed {d.noise.F_dB:g} dB)   c {on.noise.diffusion:.3g} s"
+            f"   L(1 kHz) {on.noise.at(1e3):6.1f}  L(100 kHz) {on.noise.at(1e5):6.1f} dBc/Hz"
+            f"   1/f³ corner {corner}"
+        )
+    return lines
+
+
 def bench_web() -> list[str]:
     try:
         from ringwise.web.bench import bench_web as web
@@ -173,6 +204,8 @@ def bench_web() -> list[str]:
 
 def main() -> None:
     for line in bench_core():
+        print(line, flush=True)
+    for line in bench_phase_noise():
         print(line, flush=True)
     for line in bench_spread():
         print(line, flush=True)

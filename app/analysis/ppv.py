@@ -104,11 +104,6 @@ class PhaseSensitivity:
         return 1.0 / self.T
 
 
-def orbit_flow(orbit: Orbit) -> np.ndarray:
-    """ẋ at the orbit's start: central difference across its periodic end, (n,)."""
-    return (orbit.x[1] - orbit.x[-2]) / (orbit.h[0] + orbit.h[-1])
-
-
 def phase_sensitivity(dyn: Dynamics, orbit: Orbit) -> PhaseSensitivity:
     """The perturbation projection vector of ``orbit`` (found on the stepper of ``dyn``).
 
@@ -118,7 +113,7 @@ def phase_sensitivity(dyn: Dynamics, orbit: Orbit) -> PhaseSensitivity:
     idx = orbit.dynamic
     n = orbit.x.shape[1]
     N = orbit.N
-    flow = orbit_flow(orbit)[idx]
+    flow = orbit.flow
     mu, left, right = scipy.linalg.eig(orbit.monodromy, left=True, right=True)
     # the trivial multiplier: near 1 with its right eigenvector along the flow
     # (DC-floating charges have multipliers near 1 too, with other eigenvectors)

@@ -1,4 +1,4 @@
-"""Phase noise from the noise sources through the phase sensitivity (ringwise.analysis.phase_noise)."""
+"""Phase noise from the noise sources through the phase sensitivity (analysis.phase_noise)."""
 
 from __future__ import annotations
 
@@ -76,7 +76,7 @@ def sample(request):
 
 
 def test_shares_add_to_one_and_each_is_what_switching_it_off_removes(sample):
-    solved, steady, on = sample
+    _solved, steady, on = sample
     pn = on.noise
     shares = np.array(pn.shares)
     # the shares add to 100 % at every reported offset (common practice, no source)
