@@ -14,7 +14,7 @@ from typing import Final
 
 from ringwise.analysis.analyze import _analyze, analyze
 from ringwise.analysis.threshold import sweep
-from ringwise.circuit.topologies import GAIN_SETTER
+from ringwise.circuit.topologies import gain_setter
 from ringwise.design import Design, get_param
 from ringwise.resources import sample_files
 
@@ -75,7 +75,7 @@ def bench_core() -> list[str]:
         )
         s = solve(d)
         ls = describing_function(s)
-        setter = GAIN_SETTER[d.topology]
+        setter = gain_setter(d)
         stages = {
             "solve": lambda d=d: solve(d),
             "threshold": lambda d=d, s=s, p=setter: find_threshold(d, p, start=s),
@@ -87,7 +87,7 @@ def bench_core() -> list[str]:
         parts = "  ".join(f"{k} {median_time(fn, 15) * 1e3:.2f}" for k, fn in stages.items())
         lines.append(f"      stages, ms: {parts}")
     d = designs[0]
-    param = GAIN_SETTER[d.topology]
+    param = gain_setter(d)
     value = get_param(d, param)
     assert value is not None
     t = median_time(lambda: sweep(d, param, value / 10, value * 10, SWEEP_POINTS), 5, warmup=1)

@@ -19,7 +19,7 @@ from ringwise.analysis.spread import SpreadError, monte_carlo, spread_out
 from ringwise.analysis.synthesis import SynthesisError, synthesize
 from ringwise.analysis.threshold import ParameterError, find_threshold, sweep
 from ringwise.analysis.transient import SimulationError, simulate
-from ringwise.circuit.topologies import GAIN_SETTER
+from ringwise.circuit.topologies import gain_setter
 from ringwise.cli import BadInputError
 from ringwise.console import (
     load_design,
@@ -91,7 +91,7 @@ def cmd_analyze(args: argparse.Namespace) -> None:
 
 def cmd_threshold(args: argparse.Namespace) -> None:
     design = load_design(args.design)
-    param = args.param or GAIN_SETTER[design.topology]
+    param = args.param or gain_setter(design)
     try:
         result = find_threshold(design, param)
     except ParameterError as err:

@@ -55,6 +55,11 @@ Volts = Annotated[float, _si("V"), Field(ge=0.01, le=1000, description="volt")]
 Ohms = Annotated[float, _si("Ω"), Field(ge=1e-3, le=1e12, description="ohm")]
 Farads = Annotated[float, _si("F"), Field(ge=1e-15, le=1e3, description="farad")]
 Henries = Annotated[float, _si("H"), Field(ge=1e-12, le=1e3, description="henry")]
+Quality = Annotated[float, _si(""), Field(ge=0.01, le=1e6)]
+Hertz = Annotated[float, _si("Hz"), Field(ge=1e3, le=1e12, description="hertz")]
+#: How the collector is fed from the supply in the forms that have a collector
+#: load: through the resistor RC, or through an RF choke.
+Feed = Literal["resistor", "choke"]
 
 
 class _Part(BaseModel):
@@ -79,13 +84,23 @@ class Bias(_Part):
     CB: Farads | None = Field(
         default=None, description="Base bypass capacitor, F (common-base form)"
     )
+    feed: Feed = Field(
+        default="resistor",
+        description="Collector fed through RC or through an RF choke "
+        "(common-emitter and common-base)",
+    )
+    L_ch: Henries | None = Field(default=None, description="RF choke inductance, H")
+    Q_ch: Quality | None = Field(
+        default=None, description="Unloaded Q of the choke at the tank's ideal resonance"
+    )
+    f_ch: Hertz | None = Field(
+        default=None, description="Self-resonant frequency of the choke, Hz (none: ideal coil)"
+    )
 
 
 class Tank(_Part):
     L: Henries = Field(description="Tank inductance, H")
-    Q_L: Annotated[float, _si(""), Field(ge=0.01, le=1e6)] = Field(
-        description="Unloaded Q of the inductor at the tank's ideal resonance"
-    )
+    Q_L: Quality = Field(description="Unloaded Q of the inductor at the tank's ideal resonance")
     C1: Farads = Field(description="Tank capacitor, collector side (across C-E), F")
     C2: Farads = Field(description="Tank capacitor, base side (across B-E), F")
     C3: Farads | None = Field(default=None, description="Clapp capacitor in series with L, F")
@@ -173,7 +188,9 @@ DEFAULT_DIELECTRIC: Final[dict[str, str]] = {
     "Cc1": "X7R", "Cc2": "X7R", "CE": "X7R", "CB": "X7R",
 }  # fmt: skip
 #: Parts that may carry a tolerance of their own.
-TOLERANCED_PARTS: Final = ("RB1", "RB2", "RC", "RE", "R_load", *CAPACITOR_PARTS, "L", "Q_L")
+TOLERANCED_PARTS: Final = (
+    "RB1", "RB2", "RC", "RE", "R_load", *CAPACITOR_PARTS, "L", "Q_L", "L_ch", "Q_ch",
+)  # fmt: skip
 
 
 class Tolerances(_Part):
@@ -229,9 +246,9 @@ class Tolerances(_Part):
         """The tolerance that applies to ``part``."""
         if part in self.per_part:
             return self.per_part[part]
-        if part == "L":
+        if part in ("L", "L_ch"):
             return self.L
-        if part == "Q_L":
+        if part in ("Q_L", "Q_ch"):
             return self.Q_L
         return self.C if part in CAPACITOR_PARTS else self.R
 
@@ -261,11 +278,7 @@ class Design(_Part):
 
     @model_validator(mode="after")
     def _parts_for_topology(self) -> Design:
-        needs = {
-            Topology.CE: ("RC", "CE"),
-            Topology.CB: ("RC", "CB"),
-            Topology.CC: (),
-        }[self.topology]
+        needs = self.needed_parts()
         missing = [part for part in needs if getattr(self.bias, part) is None]
         if missing:
             raise ValidationError.from_exception_data(
@@ -274,8 +287,8 @@ class Design(_Part):
                     InitErrorDetails(
                         type=PydanticCustomError(
                             "part_required",
-                            "bias.{part} is required by the {form} form",
-                            {"part": part, "form": self.topology.value},
+                            "bias.{part} is required by the {form}",
+                            {"part": part, "form": self.form_text},
                         ),
                         loc=("bias", part),
                         input=None,
@@ -285,14 +298,36 @@ class Design(_Part):
             )
         return self
 
+    @property
+    def form_text(self) -> str:
+        """The form in words, with the collector feed where it matters."""
+        feed = ", collector fed through the choke" if self.choke_fed else ""
+        return f"{self.topology.value} form{feed}"
+
+    @property
+    def choke_fed(self) -> bool:
+        """Whether the collector is fed through the RF choke (a form with a collector load)."""
+        return self.bias.feed == "choke" and self.topology is not Topology.CC
+
+    def needed_parts(self) -> tuple[str, ...]:
+        """Bias parts the chosen form and collector feed require."""
+        if self.topology is Topology.CC:
+            return ()
+        load = ("L_ch", "Q_ch") if self.bias.feed == "choke" else ("RC",)
+        bypass = "CE" if self.topology is Topology.CE else "CB"
+        return (*load, bypass)
+
+    def idle_parts(self) -> tuple[str, ...]:
+        """Bias parts the chosen form and collector feed leave out, given or not."""
+        choke = ("L_ch", "Q_ch", "f_ch")
+        if self.topology is Topology.CC:
+            return ("RC", "CE", "CB", *choke)
+        bypass = "CB" if self.topology is Topology.CE else "CE"
+        return (bypass, "RC") if self.bias.feed == "choke" else (bypass, *choke)
+
     def unused_parts(self) -> list[str]:
-        """Parts given in the design that the chosen form does not use."""
-        unused = {
-            Topology.CE: ("CB",),
-            Topology.CB: ("CE",),
-            Topology.CC: ("RC", "CE", "CB"),
-        }[self.topology]
-        return [p for p in unused if getattr(self.bias, p) is not None]
+        """Parts given in the design that the chosen form (and collector feed) do not use."""
+        return [p for p in self.idle_parts() if getattr(self.bias, p) is not None]
 
 
 #: Parameter names usable by the threshold finder and sweeps, mapped to the
@@ -305,6 +340,9 @@ PARAMETERS: Final[dict[str, str]] = {
     "RE": "bias",
     "CE": "bias",
     "CB": "bias",
+    "L_ch": "bias",
+    "Q_ch": "bias",
+    "f_ch": "bias",
     "L": "tank",
     "Q_L": "tank",
     "C1": "tank",

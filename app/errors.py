@@ -38,7 +38,7 @@ def _message(error: dict[str, Any]) -> str:
     if kind == "missing":
         return "is required"
     if kind == "part_required":
-        return f"is required by the {ctx.get('form')} form"
+        return f"is required by the {ctx.get('form')}"
     if kind == "extra_forbidden":
         return "is not a field of the design format"
     if kind == "value_error":

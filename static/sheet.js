@@ -16,6 +16,7 @@ const SEL = {
   schematics: ".schematic-wrap",
   labels: ".schematic [data-label]",
   switched: ".schematic [data-on]",
+  feeds: ".schematic [data-feed]",
   sweepParam: "#sweep-param",
   share: "#share-url",
   copy: "#copy-link",
@@ -193,7 +194,7 @@ function render(view) {
     const ladder = $(`[data-ladder="${name}"]`);
     if (ladder && f.step !== null && ladder !== document.activeElement) ladder.value = f.step;
   }
-  const idle = config.idle[view.topology] || [];
+  const idle = config.idle[view.idle_key] || [];
   for (const field of $$("[data-input]")) field.classList.toggle("idle", idle.includes(field.dataset.input));
   renderProblems(view.problems.filter((p) => !p.input));
   renderSchematic(view);
@@ -278,7 +279,7 @@ function renderProblems(problems, sel = SEL.problems) {
 }
 
 function renderSchematic(view) {
-  const shownTopology = config.idle[view.topology] ? view.topology : "common-emitter";
+  const shownTopology = config.idle[view.idle_key] ? view.topology : "common-emitter";
   for (const wrap of $$(SEL.schematics)) wrap.hidden = wrap.dataset.topology !== shownTopology;
   for (const label of $$(SEL.labels)) {
     const f = view.fields[label.dataset.label];
@@ -287,6 +288,8 @@ function renderSchematic(view) {
   for (const part of $$(SEL.switched)) {
     part.dataset.on = view.fields[part.dataset.part].value !== null ? "1" : "0";
   }
+  const choke = view.fields.feed.value === "choke" ? "1" : "0";
+  for (const feed of $$(SEL.feeds)) feed.dataset.choke = choke;
 }
 
 function renderSweepOptions(view) {

@@ -6,7 +6,7 @@ import functools
 from typing import Final
 
 from ringwise.analysis.budget import loop_budget
-from ringwise.analysis.checks import Finding, rule_checks, squegging_risk
+from ringwise.analysis.checks import Finding, choke_checks, rule_checks, squegging_risk
 from ringwise.analysis.describing import describing_function
 from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.poles import natural_frequencies
@@ -15,7 +15,7 @@ from ringwise.analysis.startup import fixed_bias_drive, gm_ratio, verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
 from ringwise.analysis.threshold import find_threshold
-from ringwise.circuit.topologies import GAIN_SETTER, OUTPUT_NODE_LABEL, hand_formula
+from ringwise.circuit.topologies import OUTPUT_NODE_LABEL, gain_setter, hand_formula
 from ringwise.design import Design
 from ringwise.result import (
     BudgetLineOut,
@@ -67,14 +67,15 @@ def _analyze(design: Design) -> Result:
     op, hp = s.op, s.hybrid
     f_osc = s.f_osc
     gain = s.gain if f_osc is not None else None
-    budget = loop_budget(s, GAIN_SETTER[design.topology]) if f_osc is not None else []
+    setter = gain_setter(design)
+    budget = loop_budget(s, setter) if f_osc is not None else []
     poles = natural_frequencies(s.ss, s.tank.f_ideal, f_osc)
-    setter = GAIN_SETTER[design.topology]
     threshold = find_threshold(design, setter, start=s)
     v = verdict(gain, op)
     V_be, V_ce = _fixed_bias_swing(s, gain)
     findings = rule_checks(s, budget, poles, V_ce)
     findings += tank_checks(s, budget)
+    findings += choke_checks(s)
     ls = describing_function(s)
     findings += squegging_risk(s, poles)
     if not ls.valid and ls.x is not None and ls.reason:

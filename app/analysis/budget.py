@@ -2,7 +2,7 @@
 
 For each lossy or loading element the loop gain is recomputed with that one
 element made ideal (a resistor opened, a coupling or bypass capacitor made a
-short, the coil made lossless, a transistor parasitic removed) and every
+short, the coil or the RF choke made lossless, a transistor parasitic removed) and every
 other element kept.  The operating point is held fixed: the budget is a
 small-signal statement about the loop as biased.  All variants are solved in
 one batched call.
@@ -27,6 +27,7 @@ from ringwise.analysis.operating import Solved
 from ringwise.circuit.mna import SmallSignal, restamp, small_signal
 from ringwise.circuit.netlist import Capacitor, Inductor, Netlist, Resistor
 from ringwise.circuit.npn import HybridPi
+from ringwise.circuit.topologies import CHOKE_LOSS, CHOKE_SETTER
 
 #: A capacitor "made a short" is multiplied by this factor.
 SHORT_FACTOR: Final = 1e4
@@ -69,6 +70,10 @@ def budget_items(netlist: Netlist, gain_setter: str) -> list[BudgetItem]:
             setter = name == gain_setter
             role = "gain-setting resistor" if setter else "loading resistor"
             items.append(BudgetItem(name, f"{name} ({role})", (name,), in_hand=setter))
+    if CHOKE_LOSS in netlist:
+        setter = gain_setter == CHOKE_SETTER
+        label = "RF choke's loss Rch, finite Q_ch (gain-setting)"
+        items.append(BudgetItem(CHOKE_LOSS, label, (CHOKE_LOSS,), in_hand=setter))
     for name, label in (("CE", "Emitter bypass CE"), ("CB", "Base bypass CB")):
         if name in netlist:
             items.append(BudgetItem(name, label, (name,)))

@@ -15,6 +15,7 @@ from ringwise.analysis.budget import BudgetLine
 from ringwise.analysis.criteria import VCE_HEADROOM, Region
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.poles import PoleFigures
+from ringwise.circuit.topologies import CHOKE_SELF_C
 from ringwise.units import format_si
 
 #: The divider current should be at least this multiple of the base current.
@@ -36,6 +37,10 @@ SQUEGGING_RATIO: Final = 10.0
 #: ours (common practice, no source): the transient is the judge.
 SQUEG_TAU_RATIO: Final = 100.0
 SQUEG_GAIN: Final = 6.0
+#: An RF choke whose self-resonance lies within this factor of f_osc (either
+#: side) resonates "near" it: its reactance swings from inductive to
+#: capacitive there (common practice, no source).
+CHOKE_SRF_BAND: Final = 1.5
 
 
 @dataclass(frozen=True)
@@ -56,7 +61,7 @@ def rule_checks(
         out.append(
             Finding(
                 "unused-part",
-                f"{part} is not part of the {s.design.topology.value} form and is ignored",
+                f"{part} is not part of the {s.design.form_text} and is ignored",
             )
         )
     if op.region is Region.CUTOFF:
@@ -206,3 +211,46 @@ def squegging_risk(s: Solved, poles: PoleFigures) -> list[Finding]:
             "margin or the bypass/coupling time constants, and confirm with the transient",
         )
     ]
+
+
+def choke_checks(s: Solved) -> list[Finding]:
+    r"""Warn when the RF choke's self-resonance is near f_osc, or below it.
+
+    A choke with self-resonance :math:`f_{ch}` is an inductance below it and a
+    capacitance above it; near :math:`f_{ch}` its impedance peaks and its
+    reactance changes fast, so it pulls the frequency and can act as a
+    second tank (a second frequency, or a jump between the two).  Well below
+    f_osc it feeds the collector through its self-capacitance only.
+    """
+    b, f = s.design.bias, s.f_osc
+    if not s.design.choke_fed or b.f_ch is None or f is None:
+        return []
+    ratio = b.f_ch / f
+    f_ch_t, f_t = format_si(b.f_ch, "Hz"), format_si(f, "Hz")
+    if 1.0 / CHOKE_SRF_BAND < ratio < CHOKE_SRF_BAND:
+        return [
+            Finding(
+                "choke-resonance",
+                f"the choke's self-resonance f_ch = {f_ch_t} is within a factor "
+                f"{CHOKE_SRF_BAND:g} of f_osc = {f_t} ({100 * (ratio - 1):+.0f} %): there its "
+                "reactance swings from inductive to capacitive, so it pulls the frequency and "
+                "may act as a second tank; choose a choke resonating at least "
+                f"{CHOKE_SRF_BAND:g}× above f_osc (a smaller inductance or a "
+                "lower-capacitance winding)",
+            )
+        ]
+    if ratio <= 1.0 / CHOKE_SRF_BAND:
+        X = 1.0 / (2.0 * math.pi * f * _choke_self_c(s))
+        return [
+            Finding(
+                "choke-capacitive",
+                f"the choke resonates at f_ch = {f_ch_t}, below f_osc = {f_t}: at f_osc it is a "
+                f"capacitance ({format_si(X, 'Ω')} of reactance), not a choke; choose one "
+                f"resonating at least {CHOKE_SRF_BAND:g}× above f_osc",
+            )
+        ]
+    return []
+
+
+def _choke_self_c(s: Solved) -> float:
+    return s.netlist[CHOKE_SELF_C].C  # type: ignore[union-attr]

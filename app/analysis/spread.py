@@ -45,8 +45,8 @@ from ringwise.circuit.mna import (
 )
 from ringwise.circuit.netlist import NPNParams
 from ringwise.circuit.npn import BETA_REVERSE, hybrid_pi, saturation_current, thermal_voltage
-from ringwise.circuit.topologies import build
-from ringwise.design import CAPACITOR_PARTS, Design, with_param
+from ringwise.circuit.topologies import CHOKE, CHOKE_LOSS, CHOKE_SELF_C, build
+from ringwise.design import CAPACITOR_PARTS, TOLERANCED_PARTS, Design, with_param
 from ringwise.errors import DesignError
 
 DEFAULT_SAMPLES: Final = 2000
@@ -94,6 +94,8 @@ def draw(design: Design, samples: int, seed: int) -> Draws:
         "C1": t.C1, "C2": t.C2, "C3": t.C3, "Cc1": design.coupling.Cc1,
         "Cc2": design.coupling.Cc2, "CE": b.CE, "CB": b.CB, "L": t.L, "Q_L": t.Q_L,
     }  # fmt: skip
+    if design.choke_fed:
+        nominal |= {"L_ch": b.L_ch, "Q_ch": b.Q_ch}
     for part, value in nominal.items():
         if value is None:
             continue
@@ -177,12 +179,20 @@ def analyse_batch(
     w0 = 1.0 / np.sqrt(vals["L"] * C_s)
     stamp: dict[tuple[str, str], np.ndarray] = {}
     for name, fld, _target, _M in pat.terms:
-        if fld == "G_R":
+        if fld == "G_R" and name == CHOKE_LOSS:
+            stamp[(name, fld)] = 1.0 / (vals["Q_ch"] * w0 * vals["L_ch"])
+        elif fld == "G_R":
             stamp[(name, fld)] = 1.0 / vals[name]
+        elif fld == "C" and name == CHOKE_SELF_C:
+            # the choke's self-resonance is the part's (held); its capacitance follows L_ch
+            w_self = 2.0 * math.pi * design.bias.f_ch
+            stamp[(name, fld)] = 1.0 / (w_self**2 * vals["L_ch"])
         elif fld == "C":
             stamp[(name, fld)] = vals[name]
         elif fld == "L":
-            stamp[(name, fld)] = vals["L"]
+            stamp[(name, fld)] = vals["L_ch" if name == CHOKE else "L"]
+        elif fld == "R_s" and name == CHOKE:
+            stamp[(name, fld)] = np.zeros(n_samples)  # its loss is Rch
         elif fld == "R_s":
             stamp[(name, fld)] = w0 * vals["L"] / vals["Q_L"]
         elif fld == "V":
@@ -364,7 +374,7 @@ def spread_out(design: Design, r: Spread):
     sens = []
     for s in sensitivities(design):
         t = {"beta": math.log(tol.beta_ratio) / 2, "IS": math.log(tol.IS_ratio) / 2}.get(
-            s.part, tol.of(s.part) if s.part in (*RESISTORS, *CAPACITOR_PARTS, "L", "Q_L") else 0.0
+            s.part, tol.of(s.part) if s.part in TOLERANCED_PARTS else 0.0
         )
         sens.append(
             SensitivityOut(

@@ -46,7 +46,7 @@ OFF_TANK_LIMIT: Final = 0.02
 PULLS_NAMED: Final = 3
 PULL_NAMED_MIN: Final = 0.002
 #: Loss elements that load the tank resistively (the budget's elements).
-RESISTIVE: Final = ("L_loss", "r_pi", "divider", "r_o", "R_load", "RC", "RE")
+RESISTIVE: Final = ("L_loss", "r_pi", "divider", "r_o", "R_load", "RC", "RE", "Rch")
 JUNCTION_LINE: Final = "C_pi_C_mu"
 
 

@@ -62,7 +62,7 @@ MAX_SWEEP_POINTS: Final = 1000
 LINEAR_PARAMS: Final = frozenset({"temperature_C"})
 #: Parameters whose increase raises the loop gain on the branch that matters:
 #: their threshold is the lowest value at which the loop gain reaches one.
-RISING_PARAMS: Final = frozenset({"RC", "Q_L", "R_load", "beta", "VA", "fT"})
+RISING_PARAMS: Final = frozenset({"RC", "Q_L", "Q_ch", "R_load", "beta", "VA", "fT"})
 #: Resistors that move the bias only through V_CE (the Early effect): their
 #: threshold is first found with the bias held, then polished.
 GUIDED_PARAMS: Final = frozenset({"RC", "R_load"})

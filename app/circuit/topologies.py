@@ -19,6 +19,16 @@ the collector, or the emitter in the common-collector form) and Cc2 (at the
 input terminal: the base, or the emitter in the common-base form).  The tank
 node nearest the output terminal is ``t1``; the optional load sits there.
 
+The collector of the common-emitter and common-base forms is fed from the
+supply through the resistor RC or, with ``bias.feed = "choke"``, through an
+RF choke: inductance ``Lch`` with its loss as a parallel resistance
+``Rch`` = Q_ch·ω0·L_ch (Q_ch taken at the tank's ideal resonance ω0; a
+choke's loss is mostly its core's, which acts across it) and, when its
+self-resonant frequency ``f_ch`` is given, its self-capacitance ``Cch`` =
+:math:`1/((2\pi f_{ch})^2 L_{ch})` across it.  At DC the choke is a short, so
+the collector sits at the supply; at resonance Rch takes RC's place in the
+hand formula.
+
 Inductor loss convention: the coil's unloaded Q, ``Q_L``, is taken at the
 tank's ideal resonance :math:`\omega_0 = 1/\sqrt{L C_s}` and represented by a
 series resistance :math:`R_s = \omega_0 L / Q_L`.
@@ -52,6 +62,17 @@ T1, T2, TL = "t1", "t2", "tl"
 
 #: Which resistor sets the loop gain in each form (the threshold finder's default).
 GAIN_SETTER: Final = {Topology.CE: "RC", Topology.CB: "RC", Topology.CC: "RE"}
+#: With the choke feed the choke's loss sets the gain: its threshold is the
+#: choke's Q at which the oscillator stops starting.
+CHOKE_SETTER: Final = "Q_ch"
+#: Netlist names of the choke, its loss resistance and its self-capacitance.
+CHOKE, CHOKE_LOSS, CHOKE_SELF_C = "Lch", "Rch", "Cch"
+
+
+def gain_setter(design: Design) -> str:
+    """The parameter that sets the loop gain of ``design`` (the threshold's default)."""
+    return CHOKE_SETTER if design.choke_fed else GAIN_SETTER[design.topology]
+
 
 #: Which node each form's output is taken at, in words.
 OUTPUT_NODE_LABEL: Final = {
@@ -86,6 +107,29 @@ def tank_figures(design: Design) -> TankFigures:
         R_s=w0 * t.L / t.Q_L,
         feedback_ratio=t.C1 / t.C2,
     )
+
+
+@dataclass(frozen=True)
+class ChokeFigures:
+    r"""The RF choke's figures at the tank's ideal resonance ω0.
+
+    ``R_p`` = Q_ch·ω0·L_ch, its parallel loss resistance (Ω); ``C_self`` =
+    1/((2π f_ch)²·L_ch), its self-capacitance (F, 0 without f_ch).
+    """
+
+    R_p: float
+    C_self: float
+
+
+def choke_figures(design: Design) -> ChokeFigures | None:
+    """The choke's figures, or ``None`` when the collector is not fed through it."""
+    if not design.choke_fed:
+        return None
+    b = design.bias
+    assert b.L_ch is not None and b.Q_ch is not None
+    w0 = 2.0 * math.pi * tank_figures(design).f_ideal
+    C_self = 0.0 if b.f_ch is None else 1.0 / ((2.0 * math.pi * b.f_ch) ** 2 * b.L_ch)
+    return ChokeFigures(R_p=b.Q_ch * w0 * b.L_ch, C_self=C_self)
 
 
 def device_params(design: Design) -> NPNParams:
@@ -133,24 +177,33 @@ def hand_formula(design: Design, gm: float) -> HandFormula:
     Integrated Circuits*, LC-oscillator chapter, states the same start-up
     condition :math:`g_m R_p \ge (C_1+C_2)^2/(C_1 C_2)` (from memory).
 
+    With the choke feed the choke's loss resistance R_p = Q_ch·ω0·L_ch takes
+    R_C's place (its reactance is left to the full model, as the tank's
+    loading by every other part is).
+
     These are the hand-method figures the full model is compared with.
     """
     t, b = design.tank, design.bias
-    clapp = "" if t.C3 is None else f"  (C3 = {format_si(t.C3, 'F')} sets f, not the gain)"
+    notes = "" if t.C3 is None else f"  (C3 = {format_si(t.C3, 'F')} sets f, not the gain)"
     gm_t, C1_t, C2_t = format_si(gm, "S"), format_si(t.C1, "F"), format_si(t.C2, "F")
-    if design.topology is Topology.CB:
-        assert b.RC is not None
-        value = gm * b.RC * t.C1 * t.C2 / (t.C1 + t.C2) ** 2
-        symbols = "g_m·RC·C1·C2/(C1+C2)²"
-        numbers = f"{gm_t} × {format_si(b.RC, 'Ω')} × {C1_t} × {C2_t} / ({C1_t} + {C2_t})²"
+    choke = choke_figures(design)
+    if design.topology is Topology.CC:
+        name, R = "RE", b.RE
+    elif choke is not None:
+        name, R = "R_p", choke.R_p
+        notes += f"  (R_p = Q_ch·ω0·L_ch = {format_si(R, 'Ω')}, the choke's loss)"
     else:
-        name = "RE" if design.topology is Topology.CC else "RC"
-        R = b.RE if design.topology is Topology.CC else b.RC
-        assert R is not None
+        name, R = "RC", b.RC
+    assert R is not None
+    if design.topology is Topology.CB:
+        value = gm * R * t.C1 * t.C2 / (t.C1 + t.C2) ** 2
+        symbols = f"g_m·{name}·C1·C2/(C1+C2)²"
+        numbers = f"{gm_t} × {format_si(R, 'Ω')} × {C1_t} × {C2_t} / ({C1_t} + {C2_t})²"
+    else:
         value = gm * R * t.C1 / t.C2
         symbols = f"g_m·{name}·C1/C2"
         numbers = f"{gm_t} × {format_si(R, 'Ω')} × {C1_t} / {C2_t}"
-    return HandFormula(symbols=symbols, numbers=f"{numbers} = {value:.4g}{clapp}", value=value)
+    return HandFormula(symbols=symbols, numbers=f"{numbers} = {value:.4g}{notes}", value=value)
 
 
 def ideal_gain(design: Design, gm: float) -> float:
@@ -176,19 +229,13 @@ def build(design: Design) -> Netlist:
     if design.topology is Topology.CE:
         c1, c2, lc = (T1, GROUND), (T2, GROUND), (T1, T2)
         cc1, cc2 = (COLLECTOR, T1), (T2, BASE)
-        assert b.RC is not None and b.CE is not None
-        form: list[Element] = [
-            Resistor("RC", VCC, COLLECTOR, b.RC),
-            Capacitor("CE", EMITTER, GROUND, b.CE),
-        ]
+        assert b.CE is not None
+        form: list[Element] = [*_collector_feed(design), Capacitor("CE", EMITTER, GROUND, b.CE)]
     elif design.topology is Topology.CB:
         c1, c2, lc = (T1, T2), (T2, GROUND), (T1, GROUND)
         cc1, cc2 = (COLLECTOR, T1), (T2, EMITTER)
-        assert b.RC is not None and b.CB is not None
-        form = [
-            Resistor("RC", VCC, COLLECTOR, b.RC),
-            Capacitor("CB", BASE, GROUND, b.CB),
-        ]
+        assert b.CB is not None
+        form = [*_collector_feed(design), Capacitor("CB", BASE, GROUND, b.CB)]
     else:
         c1, c2, lc = (T1, GROUND), (T2, T1), (T2, GROUND)
         cc1, cc2 = (EMITTER, T1), (T2, BASE)
@@ -206,3 +253,19 @@ def build(design: Design) -> Netlist:
     if design.load.R_load is not None:
         tank.append(Resistor("R_load", T1, GROUND, design.load.R_load))
     return Netlist(tuple(common + form + tank))
+
+
+def _collector_feed(design: Design) -> list[Element]:
+    """RC from the supply to the collector, or the RF choke (with its self-capacitance)."""
+    choke = choke_figures(design)
+    if choke is None:
+        assert design.bias.RC is not None
+        return [Resistor("RC", VCC, COLLECTOR, design.bias.RC)]
+    assert design.bias.L_ch is not None
+    out: list[Element] = [
+        Inductor(CHOKE, VCC, COLLECTOR, design.bias.L_ch),
+        Resistor(CHOKE_LOSS, VCC, COLLECTOR, choke.R_p),
+    ]
+    if choke.C_self > 0:
+        out.append(Capacitor(CHOKE_SELF_C, VCC, COLLECTOR, choke.C_self))
+    return out

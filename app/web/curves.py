@@ -85,7 +85,12 @@ def reactance_curves(design: Design, C_series: float, f_ideal: float) -> dict[st
 
 def sweepable(design: Design) -> list[str]:
     """Parameters of this design a what-if sweep can run over (present, log-scaled)."""
-    return [p for p in PARAMETERS if p not in LINEAR_PARAMS and (get_param(design, p) or 0) > 0]
+    unused = design.unused_parts()
+    return [
+        p
+        for p in PARAMETERS
+        if p not in LINEAR_PARAMS and p not in unused and (get_param(design, p) or 0) > 0
+    ]
 
 
 def sweep_range(current: float, threshold: float | None) -> tuple[float, float]:

@@ -145,6 +145,10 @@ FIELDS: Final[tuple[FormField, ...]] = (
     FormField("RE", "bias", "RE, emitter resistor", "Ω", slider=True),
     FormField("CE", "bias", "CE, emitter bypass", "F"),
     FormField("CB", "bias", "CB, base bypass", "F"),
+    FormField("feed", "bias", "Collector fed through", kind="choice", doc_section="bias"),
+    FormField("L_ch", "bias", "L_ch, RF choke inductance", "H"),
+    FormField("Q_ch", "bias", "Q_ch, choke's Q at the tank's resonance", ""),
+    FormField("f_ch", "bias", "f_ch, choke's self-resonance (blank: none)", "Hz"),
     FormField("preset", "transistor", "Class (fills the values below)", kind="choice"),
     FormField("beta", "transistor", "β, current gain", ""),
     FormField("IS", "transistor", "I_S, saturation current at 25 °C", "A"),
@@ -192,6 +196,12 @@ TOPOLOGY_LABELS: Final = {
 }
 
 
+FEED_LABELS: Final = {
+    "resistor": "the collector resistor RC",
+    "choke": "an RF choke (L_ch, Q_ch)",
+}
+
+
 #: The design's sections (its fields that are models of their own), in file order.
 _SECTIONS: Final = tuple(
     key
@@ -230,6 +240,8 @@ def choices(field: FormField) -> list[tuple[str, str]]:
         return [(t.value, TOPOLOGY_LABELS[t.value]) for t in Topology]
     if field.name == "preset":
         return [("", "custom values"), *DEVICE_PRESET_LABELS.items()]
+    if field.name == "feed":
+        return list(FEED_LABELS.items())
     if field.doc_sub == "dielectric":
         default = DEFAULT_DIELECTRIC[field.key]
         return [("", f"default ({default})"), *DIELECTRICS.items()]

@@ -25,7 +25,7 @@ from ringwise.web.view import (
     STABILITY_SHOWN,
     SUMMARY_PANELS,
     SUMMARY_STABILITY,
-    idle_by_topology,
+    idle_by_form,
 )
 
 # Starlette's Jinja2Templates turns autoescaping on for .html templates; it stays on.
@@ -84,7 +84,7 @@ def _static_context() -> dict[str, Any]:
                 "poll_ms": POLL_MS,
             },
             "presets": preset_texts(),
-            "idle": idle_by_topology(),
+            "idle": idle_by_form(),
             "ladders": {name: ladder(name)[1] for name in SPANS},
         },
     }

@@ -10,7 +10,7 @@ JSON twins return it as JSON.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any, Final
+from typing import Any, Final, get_args
 from urllib.parse import urlencode
 
 from pydantic import ValidationError
@@ -18,8 +18,8 @@ from pydantic import ValidationError
 from ringwise.analysis.analyze import analyze
 from ringwise.analysis.operating import solve
 from ringwise.analysis.stability import RATING_FRACTION
-from ringwise.circuit.topologies import GAIN_SETTER
-from ringwise.design import Design, Topology, get_param
+from ringwise.circuit.topologies import gain_setter
+from ringwise.design import Design, Feed, Topology, get_param
 from ringwise.errors import describe_validation_error
 from ringwise.web import curves
 from ringwise.web.fields import (
@@ -47,7 +47,8 @@ SHOWN: Final = (
     ("loop.gain_ideal", "", "Loop gain, hand method", "loop"),
     ("loop.gain", "", "Loop gain, full circuit", "loop"),
     ("startup.margin_dB", "dB", "Margin over the threshold of 1", "loop"),
-    ("startup.threshold_value", "param", "Value at loop gain 1", "loop"),
+    ("startup.threshold_param", "text", "Part set to loop gain 1", "loop"),
+    ("startup.threshold_value", "param", "Its value at loop gain 1", "loop"),
     ("tank.R_s", "Ω", "Coil series loss R_s", "loop"),
     ("loop.Z_out", "Ω", "Load on the controlled source", "loop"),
     ("poles.growth_time", "s", "Envelope growth time 1/σ", "loop"),
@@ -305,6 +306,7 @@ def build_view(
         "sweep_param": None,
         "query": query_string(texts),
         "topology": texts.get("topology", ""),
+        "idle_key": idle_key(texts.get("topology", ""), texts.get("feed", "")),
     }
     try:
         design = Design.model_validate(document(texts))
@@ -324,7 +326,7 @@ def build_view(
         problems.append({**_problem("design", str(err), "domain_error"), "input": None})
         return view
     options = curves.sweepable(design)
-    setter = GAIN_SETTER[design.topology]
+    setter = gain_setter(design)
     if sweep_param is not None and sweep_param not in options:
         problems.append(
             _problem(
@@ -361,25 +363,30 @@ def build_view(
 
 
 def _idle_parts(design: Design) -> list[str]:
-    """Bias parts the chosen form does not use and the design leaves blank."""
-    probe = design.model_copy(
-        update={
-            "bias": design.bias.model_copy(update={"RC": 1.0, "CE": 1.0, "CB": 1.0}),
-        }
-    )
-    return [p for p in probe.unused_parts() if get_param(design, p) is None]
+    """Bias parts the chosen form and feed do not use and the design leaves blank."""
+    return [p for p in design.idle_parts() if get_param(design, p) is None]
 
 
-def idle_by_topology() -> dict[str, list[str]]:
-    """For each form, the bias parts it does not use (the core's ``unused_parts``)."""
+def idle_key(topology: str, feed: str) -> str:
+    """The key of :func:`idle_by_form` for a form's texts (blank feed: the resistor)."""
+    return f"{topology}|{feed or 'resistor'}"
+
+
+def idle_by_form() -> dict[str, list[str]]:
+    """For each form and collector feed, the inputs it does not use (the core's
+    ``Design.idle_parts``, and the feed choice itself where there is no collector load)."""
     from ringwise.web.samples import DEFAULT_SAMPLE, samples
 
     base = Design.model_validate(samples()[DEFAULT_SAMPLE].document)
-    bias = base.bias.model_copy(update={"RC": 1.0, "CE": 1.0, "CB": 1.0})
-    return {
-        t.value: base.model_copy(update={"topology": t, "bias": bias}).unused_parts()
-        for t in Topology
-    }
+    out = {}
+    for t in Topology:
+        for feed in get_args(Feed):
+            probe = base.model_copy(
+                update={"topology": t, "bias": base.bias.model_copy(update={"feed": feed})}
+            )
+            extra = ["feed"] if t is Topology.CC else []
+            out[idle_key(t.value, feed)] = [*probe.idle_parts(), *extra]
+    return out
 
 
 def sweep_view(
@@ -395,7 +402,7 @@ def sweep_view(
     except ValidationError:
         return {"ok": False, "sweep": None}
     options = curves.sweepable(design)
-    setter = GAIN_SETTER[design.topology]
+    setter = gain_setter(design)
     chosen = param if param in options else setter
     try:
         data = curves.what_if(design, chosen, threshold_hint)

@@ -182,3 +182,25 @@ def test_tolerance_problem_goes_to_its_own_input_not_the_tank():
     assert not view["ok"]
     assert view["fields"]["L"]["error"] is None
     assert any("T_min" in p["message"] for p in view["problems"])
+
+
+def test_the_choke_feed_travels_through_form_document_and_link():
+    texts = {**SAMPLES[DEFAULT_SAMPLE], "feed": "choke", "L_ch": "4m7", "Q_ch": "35"}
+    doc = document(texts)
+    assert doc["bias"]["feed"] == "choke" and doc["bias"]["L_ch"] == "4m7"
+    assert doc["bias"]["f_ch"] is None  # blank self-resonance: none
+    design = Design.model_validate(doc)
+    assert design.choke_fed and design.bias.L_ch == pytest.approx(4.7e-3)
+    back = texts_from_document(doc)
+    assert (back["feed"], back["L_ch"], back["Q_ch"]) == ("choke", "4m7", "35")
+    assert ("feed", "choke") in to_query(texts)
+    assert check_field(BY_NAME["feed"], "coil").error is not None
+
+
+def test_idle_inputs_follow_the_form_and_the_feed():
+    from ringwise.web.view import idle_by_form
+
+    idle = idle_by_form()
+    assert "RC" in idle["common-emitter|choke"] and "L_ch" not in idle["common-emitter|choke"]
+    assert "L_ch" in idle["common-base|resistor"] and "RC" not in idle["common-base|resistor"]
+    assert {"RC", "L_ch", "feed"} <= set(idle["common-collector|resistor"])

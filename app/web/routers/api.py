@@ -11,7 +11,7 @@ from pydantic import ValidationError
 
 from ringwise.analysis.analyze import analyze
 from ringwise.analysis.threshold import ParameterError, find_threshold, sweep
-from ringwise.circuit.topologies import GAIN_SETTER
+from ringwise.circuit.topologies import gain_setter
 from ringwise.design import Design
 from ringwise.result import Result
 from ringwise.web.dependencies import ERRORS, form_texts, texts_for
@@ -78,7 +78,7 @@ def post_sweep(req: SweepRequest) -> SweepOut:
 @router.post("/threshold", response_model=ThresholdOut, responses=ERRORS)
 def post_threshold(req: ThresholdRequest) -> ThresholdOut:
     """Value of one part at which the loop gain is exactly 1 (default: the gain setter)."""
-    param = req.param or GAIN_SETTER[req.design.topology]
+    param = req.param or gain_setter(req.design)
     try:
         t = find_threshold(req.design, param)
     except ParameterError as err:

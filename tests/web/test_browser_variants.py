@@ -1,0 +1,48 @@
+"""The variants' inputs in a real Chromium: the RF-choke collector feed.
+
+Expected figures come from the same server's API, never from numbers typed
+into the test.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from tests.web.test_browser import VERDICT, Sheet, expected, settle, wait_for
+
+pytestmark = pytest.mark.browser
+
+THRESHOLD_PARAM = "[data-field='startup.threshold_param']"
+
+
+def test_choosing_the_choke_feed_switches_the_inputs_and_the_threshold(
+    context, live_server, client, artifacts
+):
+    sheet = Sheet(context, f"{live_server}/?design=proximity-exciter-150k")
+    page = sheet.page
+    assert page.input_value("[name='feed']") == "resistor"
+    # the choke's inputs are idle with the resistor feed, RC is not
+    assert "idle" in page.get_attribute("[data-input='L_ch']", "class")
+    assert "idle" not in page.get_attribute("[data-input='RC']", "class")
+    page.fill("[name='L_ch']", "10m")
+    page.fill("[name='Q_ch']", "40")
+    page.select_option("[name='feed']", "choke")
+    settle(sheet, client)
+    want = expected(client, sheet.inputs())
+    assert want["ok"]
+    wait_for(sheet, THRESHOLD_PARAM, "Q_ch")
+    assert sheet.attr(VERDICT) == want["shown"]["startup.verdict"]["raw"]
+    assert "idle" in page.get_attribute("[data-input='RC']", "class")
+    assert "idle" not in page.get_attribute("[data-input='L_ch']", "class")
+    # RC as typed is kept (nothing the user typed is lost) and the link carries the choke
+    assert page.input_value("[name='RC']") == "10k"
+    assert "feed=choke" in page.url and "L_ch=10m" in page.url
+    # a self-resonance near f_osc is warned about on the page
+    page.fill("[name='f_ch']", "180k")
+    settle(sheet, client)
+    page.locator("text=choke's self-resonance").first.wait_for()
+    page.screenshot(path=str(artifacts / "choke-feed.png"), full_page=True)
+    # the schematic draws the choke in RC's place
+    assert page.locator(".schematic-wrap:not([hidden]) [data-part='L_ch']").is_visible()
+    assert not page.locator(".schematic-wrap:not([hidden]) [data-part='RC']").is_visible()
+    assert sheet.errors == []
