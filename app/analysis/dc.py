@@ -19,6 +19,7 @@ from memory.
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 from typing import Final
 
@@ -26,14 +27,14 @@ import numpy as np
 
 from ringwise.analysis.criteria import Region, region_of
 from ringwise.circuit.mna import (
-    Incidence,
     LinearSystem,
+    Reduced,
     device_currents,
     incidence_of,
-    residual_and_device,
+    reduce_to_controls,
 )
 from ringwise.circuit.netlist import NPNParams
-from ringwise.circuit.npn import JunctionState
+from ringwise.circuit.npn import JunctionState, exp_and_slope_array, junction_currents
 from ringwise.errors import DesignError
 
 __all__ = [
@@ -46,7 +47,7 @@ __all__ = [
     "solve_dc_batch",
 ]
 
-#: Newton stops when no unknown moves more than this (V or A) ...
+#: Newton stops when neither control voltage moves more than this (V) ...
 STEP_TOL: Final = 1e-10
 #: ... relative to its size.
 REL_TOL: Final = 1e-9
@@ -56,6 +57,7 @@ SOURCE_STEPS: Final = (0.05, 0.1, 0.2, 0.35, 0.5, 0.7, 0.85, 1.0)
 GUESS_CURRENT: Final = 1e-3
 #: Smallest fraction of a Newton step that junction limiting may leave.
 MIN_DAMPING: Final = 1e-3
+SQRT2: Final = 2.0**0.5
 
 
 class DCConvergenceError(DesignError, ArithmeticError):
@@ -81,90 +83,158 @@ def _take(params: NPNParams, idx: np.ndarray) -> NPNParams:
     )
 
 
-def _pnjlim(v_new, v_old, VT, v_crit) -> np.ndarray:
+def _pnjlim(v_new: np.ndarray, v_old: np.ndarray, VT, v_crit) -> np.ndarray:
     """SPICE's junction-voltage limiting, elementwise (Nagel, SPICE2 thesis, 1975; from memory)."""
-    v_new = np.asarray(v_new, dtype=float)
     limit = (v_new > v_crit) & (np.abs(v_new - v_old) > 2.0 * VT)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        arg = 1.0 + (v_new - v_old) / VT
-        from_old = np.where(arg > 0, v_old + VT * np.log(np.where(arg > 0, arg, 1.0)), v_crit)
-        # (v_crit < 0 only for absurdly large I_S, as the describing function may try)
-        from_zero = np.where(v_new > 0, VT * np.log(np.where(v_new > 0, v_new, 1.0) / VT), v_new)
+    if not limit.any():
+        return v_new
+    arg = 1.0 + (v_new - v_old) / VT
+    from_old = np.where(arg > 0, v_old + VT * np.log(np.where(arg > 0, arg, 1.0)), v_crit)
+    # (v_crit < 0 only for absurdly large I_S, as the describing function may try)
+    from_zero = np.where(v_new > 0, VT * np.log(np.where(v_new > 0, v_new, VT) / VT), v_new)
     return np.where(limit, np.where(v_old > 0, from_old, from_zero), v_new)
 
 
-def _damping(inc: Incidence, params: NPNParams, x: np.ndarray, dx: np.ndarray) -> np.ndarray:
-    """Step fraction per member that keeps both junctions within ``pnjlim``."""
-    VT, IS = params.VT, params.IS
-    v_crit = VT * np.log(VT / (np.sqrt(2.0) * IS))
-    vbe0, vce0 = x @ inc.W_BE, x @ inc.W_CE
-    vbe1, vce1 = vbe0 + dx @ inc.W_BE, vce0 + dx @ inc.W_CE
-    alpha = np.ones(x.shape[0])
-    for v_old, v_new in ((vbe0, vbe1), (vbe0 - vce0, vbe1 - vce1)):
-        v_lim = _pnjlim(v_new, v_old, VT, v_crit)
-        moved = (v_lim != v_new) & (v_new != v_old)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            frac = np.maximum((v_lim - v_old) / (v_new - v_old), MIN_DAMPING)
-        alpha = np.where(moved, np.minimum(alpha, frac), alpha)
-    return alpha
+def _limited_fraction(v_old, step, VT, v_crit) -> np.ndarray:
+    """Fraction of a step on one junction voltage that ``pnjlim`` allows (1 when none)."""
+    v_new = v_old + step
+    v_lim = _pnjlim(v_new, v_old, VT, v_crit)
+    moved = (v_lim != v_new) & (step != 0.0)
+    if not moved.any():
+        return np.ones(np.shape(v_new))
+    frac = np.maximum((v_lim - v_old) / np.where(moved, step, 1.0), MIN_DAMPING)
+    return np.where(moved, frac, 1.0)
 
 
-def _newton(
-    system: LinearSystem, inc: Incidence, params: NPNParams, x: np.ndarray, scale: float
-) -> np.ndarray:
-    """Damped Newton for every member of ``x`` (B, n), updated in place; returns converged (B,)."""
-    B = x.shape[0]
-    G = np.broadcast_to(system.G, (B, *system.G.shape[-2:]))
-    b = np.broadcast_to(system.b, x.shape)
-    todo = np.arange(B)
-    ok = np.zeros(B, dtype=bool)
-    sub = LinearSystem(system.layout, G, system.C, b, system.devices)
+def _newton_step(vbe, vce, q: JunctionState, m00, m01, m10, m11, a0, a1):
+    """The Newton step (d_BE, d_CE) of v + M·φ(v) = a at v, and the Jacobian's determinant.
+
+    The Jacobian is I + M·Jφ with Jφ = [[dIC/dvbe, dIC/dvce], [dIB/dvbe, dIB/dvce]];
+    floats for one circuit, arrays for a batch.
+    """
+    g0 = vbe + m00 * q.IC + m01 * q.IB - a0
+    g1 = vce + m10 * q.IC + m11 * q.IB - a1
+    j00 = 1.0 + m00 * q.dIC_dvbe + m01 * q.dIB_dvbe
+    j01 = m00 * q.dIC_dvce + m01 * q.dIB_dvce
+    j10 = m10 * q.dIC_dvbe + m11 * q.dIB_dvbe
+    j11 = 1.0 + m10 * q.dIC_dvce + m11 * q.dIB_dvce
+    det = j00 * j11 - j01 * j10
+    return -(g0 * j11 - g1 * j01) / det, -(j00 * g1 - j10 * g0) / det, det
+
+
+def _newton(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, todo: np.ndarray):
+    """Damped Newton on v + M·φ(v) = s·a for the members in ``todo`` (a boolean mask).
+
+    ``v`` (B, 2) holds (v_BE, v_CE) and is updated in place; returns the mask
+    of members that converged.  Members outside ``todo`` are not touched, so
+    each member's iterates are those of its own single solve.
+    """
+    IS, beta, beta_R, VA, VT = params.IS, params.beta, params.beta_R, params.VA, params.VT
+    v_crit = VT * np.log(VT / (SQRT2 * IS))
+    m00, m01 = red.M[:, 0, 0], red.M[:, 0, 1]
+    m10, m11 = red.M[:, 1, 0], red.M[:, 1, 1]
+    a0, a1 = scale * red.a[:, 0], scale * red.a[:, 1]
+    vbe, vce = v[:, 0].copy(), v[:, 1].copy()
+    ok = np.zeros(len(vbe), dtype=bool)
+    live = todo.copy()
     for _ in range(MAX_NEWTON):
-        if todo.size == 0:
+        if not live.any():
             break
-        p = _take(params, todo) if todo.size < B else params
-        part = dataclasses.replace(sub, G=G[todo], b=b[todo]) if todo.size < B else sub
-        xt = x[todo]
-        F, J, _d = residual_and_device(part, inc, xt, scale, p)
-        try:
-            dx = -np.linalg.solve(J, F[..., None])[..., 0]
-        except np.linalg.LinAlgError:
-            dx = _solve_each(J, F)
-        alpha = _damping(inc, p, xt, dx)
-        xt = xt + alpha[:, None] * dx
-        x[todo] = xt
-        finite = np.all(np.isfinite(xt), axis=1)
-        done = (alpha == 1.0) & np.all(np.abs(dx) <= STEP_TOL + REL_TOL * np.abs(xt), axis=1)
-        ok[todo[done & finite]] = True
-        todo = todo[~done & finite]
+        q = junction_currents(vbe, vce, IS, beta, beta_R, VA, VT, exp_and_slope_array)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            d_be, d_ce, _det = _newton_step(vbe, vce, q, m00, m01, m10, m11, a0, a1)
+        # Junction limiting on v_BE and v_BC = v_BE − v_CE, one fraction per member.
+        alpha = np.minimum(
+            _limited_fraction(vbe, d_be, VT, v_crit),
+            _limited_fraction(vbe - vce, d_be - d_ce, VT, v_crit),
+        )
+        new_be = vbe + alpha * d_be
+        new_ce = vce + alpha * d_ce
+        finite = np.isfinite(new_be) & np.isfinite(new_ce)
+        vbe = np.where(live, new_be, vbe)
+        vce = np.where(live, new_ce, vce)
+        small = (np.abs(d_be) <= STEP_TOL + REL_TOL * np.abs(vbe)) & (
+            np.abs(d_ce) <= STEP_TOL + REL_TOL * np.abs(vce)
+        )
+        done = live & finite & (alpha == 1.0) & small
+        ok |= done
+        live &= finite & ~done
+    v[:, 0] = np.where(todo, vbe, v[:, 0])
+    v[:, 1] = np.where(todo, vce, v[:, 1])
     return ok
 
 
-def _solve_each(J: np.ndarray, F: np.ndarray) -> np.ndarray:
-    """−J⁻¹F member by member, NaN for a singular member."""
-    out = np.full(F.shape, np.nan)
-    for i in range(F.shape[0]):
+def _pnjlim_one(v_new: float, v_old: float, VT: float, v_crit: float) -> float:
+    """:func:`_pnjlim` for one junction, in float arithmetic."""
+    if v_new > v_crit and abs(v_new - v_old) > 2.0 * VT:
+        if v_old > 0:
+            arg = 1.0 + (v_new - v_old) / VT
+            return v_old + VT * math.log(arg) if arg > 0 else v_crit
+        return VT * math.log(v_new / VT) if v_new > 0 else v_new
+    return v_new
+
+
+def _fraction_one(v_old: float, step: float, VT: float, v_crit: float) -> float:
+    v_new = v_old + step
+    v_lim = _pnjlim_one(v_new, v_old, VT, v_crit)
+    if v_lim == v_new or step == 0.0:
+        return 1.0
+    return max((v_lim - v_old) / step, MIN_DAMPING)
+
+
+def _newton_one(red: Reduced, params: NPNParams, v: np.ndarray, scale: float) -> bool:
+    """:func:`_newton` for a batch of one, in float arithmetic: the same iterates
+    without array overhead (the pipeline's one scalar fast path, for single designs)."""
+    IS, beta, beta_R, VA, VT = (
+        float(np.reshape(p, -1)[0])
+        for p in (params.IS, params.beta, params.beta_R, params.VA, params.VT)
+    )
+    v_crit = VT * math.log(VT / (SQRT2 * IS))
+    (m00, m01), (m10, m11) = red.M[0].tolist()
+    a0, a1 = (scale * red.a[0]).tolist()
+    vbe, vce = v[0].tolist()
+    for _ in range(MAX_NEWTON):
         try:
-            out[i] = -np.linalg.solve(J[i], F[i])
-        except np.linalg.LinAlgError:
-            continue
-    return out
+            q = junction_currents(vbe, vce, IS, beta, beta_R, VA, VT)
+        except OverflowError:
+            return False
+        try:
+            d_be, d_ce, det = _newton_step(vbe, vce, q, m00, m01, m10, m11, a0, a1)
+        except ZeroDivisionError:
+            return False
+        if not math.isfinite(det):
+            return False
+        alpha = min(
+            _fraction_one(vbe, d_be, VT, v_crit),
+            _fraction_one(vbe - vce, d_be - d_ce, VT, v_crit),
+        )
+        vbe += alpha * d_be
+        vce += alpha * d_ce
+        if not (math.isfinite(vbe) and math.isfinite(vce)):
+            return False
+        v[0, 0], v[0, 1] = vbe, vce
+        if (
+            alpha == 1.0
+            and abs(d_be) <= STEP_TOL + REL_TOL * abs(vbe)
+            and abs(d_ce) <= STEP_TOL + REL_TOL * abs(vce)
+        ):
+            return True
+    return False
 
 
-def initial_guess(system: LinearSystem, params: NPNParams, batch: int) -> np.ndarray:
-    """Linear solution without the transistor, emitter one junction drop below the base.
+def _solve_controls(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, todo):
+    """Newton for the members in ``todo``: float arithmetic for a batch of one."""
+    if len(v) == 1:
+        return np.array([bool(todo[0]) and _newton_one(red, params, v, scale)])
+    return _newton(red, params, v, scale, todo)
 
-    The drop is V_T·ln(``GUESS_CURRENT``/I_S) per member; shape (batch, n).
-    """
-    G = np.broadcast_to(system.G, (batch, *system.G.shape[-2:]))
-    b = np.broadcast_to(system.b, (batch, system.G.shape[-1]))
-    x = np.linalg.solve(G, b[..., None])[..., 0]
-    lay = system.layout
-    dev = system.devices[0]
-    if dev.e in lay.node:
-        vbe = params.VT * np.log(GUESS_CURRENT / np.asarray(params.IS))
-        x[:, lay.node[dev.e]] = lay.v(x, dev.b) - vbe
-    return x
+
+def initial_controls(red: Reduced, params: NPNParams) -> np.ndarray:
+    """Start (v_BE, v_CE) per member: the linear solution without the transistor, the
+    emitter one junction drop V_T·ln(``GUESS_CURRENT``/I_S) below the base."""
+    vbe = params.VT * np.log(GUESS_CURRENT / np.asarray(params.IS))
+    vce = red.a[:, 1] - red.a[:, 0] + vbe  # v_C − v_E with v_E = v_B − v_BE
+    return np.column_stack(np.broadcast_arrays(vbe, vce)).astype(float)
 
 
 def solve_dc_batch(
@@ -178,40 +248,39 @@ def solve_dc_batch(
     ``system.G`` (B, n, n) or (n, n), ``system.b`` (B, n) or (n,);
     ``params`` the transistor's parameters, fields floats or arrays (B,)
     (default: the netlist's); ``x0`` a start, (n,) or (B, n) (default: each
-    member's :func:`initial_guess`).  Members whose plain Newton fails are
-    solved again by source stepping from zero.
+    member's :func:`initial_controls`).  The nodal equations are reduced to
+    the transistor's two controls (:func:`ringwise.circuit.mna.reduce_to_controls`:
+    G factorised once per member, Newton's iterates unchanged); members whose
+    plain Newton fails are solved again by source stepping from zero.
     """
     params = params or system.devices[0].params
+    n = system.layout.size
     if batch is None:
         shapes = [np.shape(system.G)[:-2], np.shape(system.b)[:-1]]
         shapes += [np.shape(v) for v in dataclasses.astuple(params)]
         shapes.append(np.shape(x0)[:-1] if x0 is not None else ())
         batch = int(np.prod(np.broadcast_shapes(*shapes))) or 1
     inc = incidence_of(system)
+    G = np.broadcast_to(system.G, (batch, n, n))
+    red = reduce_to_controls(G, np.broadcast_to(system.b, (batch, n)), inc)
     if x0 is None:
-        x = initial_guess(system, params, batch)
+        v = initial_controls(red, params)
     else:
-        x = np.array(np.broadcast_to(x0, (batch, system.layout.size)), dtype=float)
-    ok = _newton(system, inc, params, x, 1.0)
+        v = np.array(np.broadcast_to(x0, (batch, n)) @ inc.W, dtype=float)
+    ok = _solve_controls(red, params, v, 1.0, np.ones(batch, dtype=bool))
     stepped = ~ok
-    if np.any(stepped):
-        idx = np.nonzero(stepped)[0]
-        G = np.broadcast_to(system.G, (batch, *system.G.shape[-2:]))[idx]
-        b = np.broadcast_to(system.b, x.shape)[idx]
-        sub = LinearSystem(system.layout, G, system.C, b, system.devices)
-        p = _take(params, idx)
-        xs = np.zeros((idx.size, system.layout.size))
-        alive = np.ones(idx.size, dtype=bool)
+    if stepped.any():
+        v[stepped] = 0.0
+        alive = stepped.copy()
         for scale in SOURCE_STEPS:
-            live = np.nonzero(alive)[0]
-            if live.size == 0:
-                break
-            part = dataclasses.replace(sub, G=G[live], b=b[live])
-            xl = xs[live]
-            alive[live] = _newton(part, inc, _take(p, live), xl, scale)
-            xs[live] = xl
-        x[idx] = xs
-        ok[idx] = alive
+            alive &= _solve_controls(red, params, v, scale, alive)
+        ok |= alive
+    q = junction_currents(
+        v[:, 0], v[:, 1], params.IS, params.beta, params.beta_R, params.VA, params.VT,
+        exp_and_slope_array,
+    )  # fmt: skip
+    x = red.y - red.K[..., 0] * q.IC[:, None] - red.K[..., 1] * q.IB[:, None]
+    ok &= np.all(np.isfinite(x), axis=1)
     x[~ok] = np.nan
     return DCBatch(x=x, converged=ok, stepped=stepped)
 
@@ -251,11 +320,16 @@ def operating_point(
     system: LinearSystem, x: np.ndarray, params: NPNParams | None = None
 ) -> OperatingPoint:
     """Describe the (single) transistor's operating point in solution ``x`` (n,)."""
-    lay = system.layout
-    dev = system.devices[0]
-    d = device_currents(incidence_of(system), x, params or dev.params)
+    d = device_currents(incidence_of(system), x, params or system.devices[0].params)
     st = JunctionState(*(float(v) for v in d.junction))
-    vbe, vce = float(d.vbe), float(d.vce)
+    return operating_point_from(system, x, st, float(d.vbe), float(d.vce))
+
+
+def operating_point_from(
+    system: LinearSystem, x: np.ndarray, st: JunctionState, vbe: float, vce: float
+) -> OperatingPoint:
+    """The operating point of solution ``x`` whose device state is already known."""
+    lay, dev = system.layout, system.devices[0]
     return OperatingPoint(
         VB=float(lay.v(x, dev.b)),
         VE=float(lay.v(x, dev.e)),

@@ -39,8 +39,10 @@ from ringwise.circuit.mna import SmallSignal
 #: The zero-phase crossing is sought between f_ref / SPAN and f_ref * SPAN.
 SEARCH_SPAN: Final = 3.0
 SEARCH_POINTS: Final = 41
-#: Relative frequency tolerance of a refined crossing.
-FREQ_RTOL: Final = 1e-11
+#: A Newton step below this fraction of f ends the iteration: the step is
+#: taken and T extrapolated to it, leaving an error of order its square
+#: (about 1e-14 of f for Q ~ 100).
+ACCEPT_RTOL: Final = 1e-7
 #: Newton steps that stop shrinking below this relative size have reached the
 #: round-off floor of Im T and are accepted.
 NOISE_RTOL: Final = 1e-8
@@ -52,28 +54,53 @@ NEWTON_STEPS: Final = 30
 TWO_PI: Final = 2.0 * math.pi
 
 
+def loop_solve(
+    ss: SmallSignal, s: np.ndarray | complex, slope: bool = False
+) -> tuple[np.ndarray, np.ndarray | None]:
+    r"""The one solve of the broken loop: :math:`x = (G + sC)^{-1} u` and, with
+    ``slope``, :math:`dx/ds = -(G + sC)^{-1} C x`.
+
+    ``s`` (rad/s, complex) has the batch shape of ``ss`` plus optional trailing
+    axes of frequencies: with ``ss`` batched (B,) and ``s`` of shape (B, K) the
+    result has shape (B, K, n).  Every return-ratio figure comes from here.
+    """
+    s_arr = np.asarray(s, dtype=complex)
+    extra = s_arr.ndim - np.ndim(ss.gm)
+    G, C = ss.G, ss.C
+    for _ in range(extra):
+        G, C = G[..., None, :, :], C[..., None, :, :]
+    Y = G + s_arr[..., None, None] * C
+    if not slope:
+        rhs = np.broadcast_to(ss.u.astype(complex), Y.shape[:-1])[..., None]
+        return np.linalg.solve(Y, rhs)[..., 0], None
+    Yinv = np.linalg.inv(Y)
+    x = Yinv @ ss.u
+    dx = -(Yinv @ (C @ x[..., None]))[..., 0]
+    return x, dx
+
+
+def _gm(ss: SmallSignal, s: np.ndarray) -> np.ndarray:
+    """g_m broadcast over the trailing frequency axes of ``s``."""
+    gm = np.asarray(ss.gm)
+    return gm.reshape(gm.shape + (1,) * (np.ndim(s) - gm.ndim))
+
+
 def return_ratio(ss: SmallSignal, s: np.ndarray | complex) -> np.ndarray:
     """T(s) for complex frequencies ``s`` (rad/s).
 
     ``s`` broadcasts against the batch shape of ``ss``: for an unbatched
     circuit and ``s`` of shape (K,), the result has shape (K,).
     """
-    s_arr = np.asarray(s, dtype=complex)
-    Y = ss.G[..., None, :, :] + s_arr[..., :, None, None] * ss.C[..., None, :, :]
-    if s_arr.ndim == 0:
-        Y = ss.G + s_arr * ss.C
-    x = np.linalg.solve(Y, np.broadcast_to(ss.u.astype(complex), Y.shape[:-1])[..., None])
-    gm = np.asarray(ss.gm)[..., None] if s_arr.ndim else ss.gm
-    return -gm * (x[..., 0] @ ss.w)
+    x, _dx = loop_solve(ss, s)
+    return -_gm(ss, np.asarray(s)) * (x @ ss.w)
 
 
 def return_ratio_slope(ss: SmallSignal, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """T, dT/ds and x for one s per batch member (``s`` has the batch shape)."""
-    s = np.asarray(s)
-    Yinv = np.linalg.inv(ss.G + s[..., None, None] * ss.C)
-    x = Yinv @ ss.u
-    dx = -(Yinv @ (ss.C @ x[..., None]))[..., 0]
-    return -ss.gm * (x @ ss.w), -ss.gm * (dx @ ss.w), x
+    x, dx = loop_solve(ss, s, slope=True)
+    assert dx is not None
+    gm = ss.gm
+    return -gm * (x @ ss.w), -gm * (dx @ ss.w), x
 
 
 @dataclass(frozen=True)
@@ -110,65 +137,57 @@ def refine_crossing(
     """Newton on Im T(j2πf) = 0 for every batch member, kept inside [f_lo, f_hi].
 
     Members whose iteration leaves the interval, meets a rising phase or a
-    negative real part are returned with NaN figures.
+    negative real part are returned with NaN figures.  A member stops as soon
+    as its Newton step falls below ``ACCEPT_RTOL``·f: its crossing is then the
+    stepped frequency and T there the first-order extrapolation
+    T + T′·j2π·Δf (the neglected term is of order (Q·ACCEPT_RTOL)², far
+    below the tolerance of any figure).  Each iteration solves only the
+    members still moving.
     """
-    if np.ndim(ss.gm) == 0:
-        return _refine_one(ss, float(f0), float(f_lo), float(f_hi))
-    f = np.array(f0, dtype=float, copy=True)
-    alive = np.ones(f.shape, dtype=bool)
-    done = np.zeros(f.shape, dtype=bool)
-    prev_step = np.full(f.shape, np.inf)
-    last = None
-    for _ in range(NEWTON_STEPS):
-        T, dT_ds, x = return_ratio_slope(ss, TWO_PI * 1j * f)
-        last = (f, T, dT_ds, x)
-        slope = dT_ds.real  # d(Im T)/dω = Im(j dT/ds) = Re(dT/ds)
-        bad = (slope >= 0) | (T.real <= 0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = np.where(bad | done, 0.0, -T.imag / slope / TWO_PI)
-        f_new = f + step
-        bad |= (f_new < f_lo) | (f_new > f_hi)
-        alive &= ~(bad & ~done)
-        f = np.where(alive, f_new, f)
-        size = np.abs(step)
-        # Converged, or stuck at the round-off floor of Im T (steps no longer shrink).
-        done |= alive & (
-            (size <= FREQ_RTOL * f) | ((size <= NOISE_RTOL * f) & (size >= 0.5 * prev_step))
-        )
-        prev_step = size
-        if np.all(done | ~alive):
-            break
-    ok = done & alive
-    assert last is not None
-    f_last, T, dT_ds, x = last
-    # The figures of the last evaluation: its frequency is within the tolerance
-    # of the converged one, so no further solve is needed.
-    return _figures_from(ss, np.where(ok, f_last, np.nan), T, dT_ds, x)
+    shape = np.shape(f0)
+    f = np.array(f0, dtype=float, copy=True).reshape(-1)
+    f_lo = np.broadcast_to(np.asarray(f_lo, dtype=float), shape).reshape(-1)
+    f_hi = np.broadcast_to(np.asarray(f_hi, dtype=float), shape).reshape(-1)
+    B, n = f.size, ss.u.size
+    out_f = np.full(B, np.nan)
+    out_T = np.full(B, np.nan + 0j)
+    out_dT = np.full(B, np.nan + 0j)
+    out_x = np.full((B, n), np.nan + 0j)
+    idx = np.arange(B)
+    sub = ss
+    prev_step = np.full(B, np.inf)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for _ in range(NEWTON_STEPS):
+            T, dT_ds, x = return_ratio_slope(sub, TWO_PI * 1j * f)
+            slope = dT_ds.real  # d(Im T)/dω = Im(j dT/ds) = Re(dT/ds)
+            step = -T.imag / slope / TWO_PI
+            f_new = f + step
+            size = np.abs(step)
+            fail = (slope >= 0) | (T.real <= 0) | ~((f_new >= f_lo) & (f_new <= f_hi))
+            # Converged, or stuck at the round-off floor of Im T (steps no longer shrink).
+            conv = ~fail & (
+                (size <= ACCEPT_RTOL * f) | ((size <= NOISE_RTOL * f) & (size >= 0.5 * prev_step))
+            )
+            if conv.any():
+                k = idx[conv]
+                out_f[k] = f_new[conv]
+                out_T[k] = T[conv] + dT_ds[conv] * (TWO_PI * 1j * step[conv])
+                out_dT[k] = dT_ds[conv]
+                out_x[k] = x[conv]
+            go = ~fail & ~conv
+            if not go.any():
+                break
+            if not go.all():
+                idx, f_new, f_lo, f_hi, size = idx[go], f_new[go], f_lo[go], f_hi[go], size[go]
+                sub = _members(sub, go)
+            f, prev_step = f_new, size
+    out = _figures_from(ss, out_f, out_T, out_dT, out_x)
+    return LoopFigures(*(a.reshape(shape) for a in _astuple(out)))
 
 
-def _refine_one(ss: SmallSignal, f: float, f_lo: float, f_hi: float) -> LoopFigures:
-    """The same Newton iteration for one circuit, in scalar arithmetic (far less overhead)."""
-    gm, u, w, G, C = float(ss.gm), ss.u, ss.w, ss.G, ss.C
-    prev_step = math.inf
-    for _ in range(NEWTON_STEPS):
-        Yinv = np.linalg.inv(G + (TWO_PI * 1j * f) * C)
-        x = Yinv @ u
-        T = complex(-gm * (x @ w))
-        dT_ds = complex(gm * ((Yinv @ (C @ x)) @ w))
-        slope = dT_ds.real  # d(Im T)/dω
-        if slope >= 0 or T.real <= 0:
-            break
-        step = -T.imag / slope / TWO_PI
-        size = abs(step)
-        if size <= FREQ_RTOL * f or (size <= NOISE_RTOL * f and size >= 0.5 * prev_step):
-            return _figures_from(ss, np.asarray(f), np.asarray(T), np.asarray(dT_ds), x)
-        f += step
-        if not f_lo <= f <= f_hi:
-            break
-        prev_step = size
-    nan = np.asarray(math.nan)
-    cnan = np.asarray(complex(math.nan, math.nan))
-    return LoopFigures(nan, cnan, nan, nan, nan, nan, cnan)
+def _members(ss: SmallSignal, keep: np.ndarray) -> SmallSignal:
+    """The batch members ``keep`` (a boolean mask over the batch axis) of ``ss``."""
+    return dataclasses.replace(ss, G=ss.G[keep], C=ss.C[keep], gm=np.asarray(ss.gm)[keep])
 
 
 def _figures(ss: SmallSignal, f_osc: np.ndarray) -> LoopFigures:
@@ -208,18 +227,22 @@ def find_oscillation(
     fails get a grid search over f_ref/SPAN … f_ref·SPAN and a bracketed
     Newton refinement.
     """
+    if np.ndim(ss.gm) == 0:
+        # One circuit: a batch of one, the figures returned as 0-d arrays.
+        one = dataclasses.replace(ss, G=ss.G[None], C=ss.C[None], gm=np.asarray([ss.gm]))
+        figs = find_oscillation(
+            one, np.reshape(f_ref, 1), None if f_guess is None else np.reshape(f_guess, 1)
+        )
+        return LoopFigures(*(a[0] for a in _astuple(figs)))
     batch = np.shape(ss.gm)
     f_ref_a = np.broadcast_to(np.asarray(f_ref, dtype=float), batch)
     start = f_ref_a if f_guess is None else np.broadcast_to(np.asarray(f_guess, float), batch)
     first = refine_crossing(ss, start, start / SEARCH_SPAN, start * SEARCH_SPAN)
     if np.all(first.found):
         return first
-    if not batch:
-        return _grid_search(ss, f_ref_a)
     # Search the grid only for the members Newton could not settle.
     todo = ~first.found
-    sub = dataclasses.replace(ss, G=ss.G[todo], C=ss.C[todo], gm=np.asarray(ss.gm)[todo])
-    second = _grid_search(sub, f_ref_a[todo])
+    second = _grid_search(_members(ss, todo), f_ref_a[todo])
     merged = [a.copy() for a in _astuple(first)]
     for out, part in zip(merged, _astuple(second), strict=True):
         out[todo] = part

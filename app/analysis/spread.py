@@ -28,24 +28,17 @@ from dataclasses import dataclass, field
 from typing import Final
 
 import numpy as np
-from scipy import constants
 
-from ringwise.analysis.criteria import ACTIVE_CODE, MARGINAL_BELOW, region_codes, starts
-from ringwise.analysis.dc import solve_dc_batch
-from ringwise.analysis.loop import find_oscillation
+from ringwise.analysis.criteria import MARGINAL_BELOW
 from ringwise.analysis.operating import Solved, solve
-from ringwise.circuit.mna import (
-    LinearSystem,
-    Patterns,
-    assemble_batch,
-    device_currents,
-    incidence_of,
-    linear_patterns,
-    small_signal,
+from ringwise.analysis.pipeline import (
+    BatchSolution,
+    f_ideal_of,
+    part_values,
+    patterns_of_structure,
+    solve_values,
 )
-from ringwise.circuit.netlist import NPNParams
-from ringwise.circuit.npn import BETA_REVERSE, hybrid_pi, saturation_current, thermal_voltage
-from ringwise.circuit.topologies import CHOKE, CHOKE_LOSS, CHOKE_SELF_C, build
+from ringwise.circuit.mna import Patterns
 from ringwise.design import CAPACITOR_PARTS, TOLERANCED_PARTS, Design, with_param
 from ringwise.errors import DesignError
 
@@ -65,6 +58,8 @@ TEMPERATURE_BAND_SAMPLES: Final = 400
 HISTOGRAM_BINS: Final = 40
 WORST_CASES: Final = 5
 RESISTORS: Final = ("RB1", "RB2", "RC", "RE", "R_load")
+#: The choke's parts, drawn only when the collector is fed through it.
+CHOKE_PARTS: Final = ("L_ch", "Q_ch")
 
 
 class SpreadError(DesignError):
@@ -87,17 +82,14 @@ def draw(design: Design, samples: int, seed: int) -> Draws:
         raise SpreadError(f"samples must be between 1 and {MAX_SAMPLES}, got {samples}")
     rng = np.random.default_rng(seed)
     tol = design.tolerances
-    b, t, d = design.bias, design.tank, design.device
+    d = design.device
     values: dict[str, np.ndarray] = {}
-    nominal = {
-        "RB1": b.RB1, "RB2": b.RB2, "RC": b.RC, "RE": b.RE, "R_load": design.load.R_load,
-        "C1": t.C1, "C2": t.C2, "C3": t.C3, "Cc1": design.coupling.Cc1,
-        "Cc2": design.coupling.Cc2, "CE": b.CE, "CB": b.CB, "L": t.L, "Q_L": t.Q_L,
-    }  # fmt: skip
-    if design.choke_fed:
-        nominal |= {"L_ch": b.L_ch, "Q_ch": b.Q_ch}
-    for part, value in nominal.items():
-        if value is None:
+    nominal = part_values(design)
+    # In the order of TOLERANCED_PARTS: the order fixes which random numbers
+    # each part gets for a seed.
+    for part in TOLERANCED_PARTS:
+        value = nominal[part]
+        if value is None or (part in CHOKE_PARTS and not design.choke_fed):
             continue
         values[part] = value * (1.0 + tol.of(part) * rng.uniform(-1.0, 1.0, samples))
     for part, ratio, value in (("beta", tol.beta_ratio, d.beta), ("IS", tol.IS_ratio, d.IS)):
@@ -135,25 +127,46 @@ def sample_design(design: Design, draws: Draws, i: int, T_C: float) -> Design:
 
 @dataclass(frozen=True)
 class Batch:
-    """Figures of every sample at one temperature (arrays of shape (samples,))."""
+    """Figures of every sample at one temperature (arrays of shape (samples,)).
+
+    ``solution`` is the pipeline's own answer; ``starts`` and ``active`` use
+    the one definition of :mod:`ringwise.analysis.criteria`, so a sample
+    counts as starting exactly when its single-design verdict says it starts.
+    """
 
     T_C: float
-    f_osc: np.ndarray
-    gain: np.ndarray
+    solution: BatchSolution
+    #: σ of the dominant pole pair estimated from one Newton step of 1 − T(s) = 0
+    #: from jω_osc, 1/s (NaN where there is no crossing).
     sigma: np.ndarray
-    IC: np.ndarray
-    VCE: np.ndarray
-    converged: np.ndarray
-    #: Region of each sample as an index into ``criteria.REGIONS``.
-    region: np.ndarray
+
+    @property
+    def f_osc(self) -> np.ndarray:
+        return self.solution.loop.f_osc
+
+    @property
+    def gain(self) -> np.ndarray:
+        return self.solution.gain
+
+    @property
+    def IC(self) -> np.ndarray:
+        return self.solution.junction.IC
+
+    @property
+    def VCE(self) -> np.ndarray:
+        return self.solution.vce
+
+    @property
+    def converged(self) -> np.ndarray:
+        return self.solution.converged
 
     @property
     def active(self) -> np.ndarray:
-        return self.region == ACTIVE_CODE
+        return self.solution.active
 
     @property
     def starts(self) -> np.ndarray:
-        return starts(self.gain, self.active)
+        return self.solution.starts
 
 
 @dataclass(frozen=True)
@@ -165,64 +178,26 @@ class _Prepared:
 
 
 def _prepare(design: Design) -> _Prepared:
-    return _Prepared(solve(design), linear_patterns(build(design)))
+    return _Prepared(solve(design), patterns_of_structure(design))
 
 
 def analyse_batch(
     design: Design, vals: dict[str, np.ndarray], T_C: float, prepared: _Prepared | None = None
 ) -> Batch:
-    """The small-signal analysis of every sample at ``T_C``, in one batch."""
+    """The small-signal analysis of every sample at ``T_C``: one batch of the pipeline."""
     n_samples = len(vals["L"])
     prepared = prepared or _prepare(design)
-    nominal, pat = prepared.nominal, prepared.patterns
-    C_s = 1.0 / sum(1.0 / vals[c] for c in ("C1", "C2", "C3") if c in vals)
-    w0 = 1.0 / np.sqrt(vals["L"] * C_s)
-    stamp: dict[tuple[str, str], np.ndarray] = {}
-    for name, fld, _target, _M in pat.terms:
-        if fld == "G_R" and name == CHOKE_LOSS:
-            stamp[(name, fld)] = 1.0 / (vals["Q_ch"] * w0 * vals["L_ch"])
-        elif fld == "G_R":
-            stamp[(name, fld)] = 1.0 / vals[name]
-        elif fld == "C" and name == CHOKE_SELF_C:
-            # the choke's self-resonance is the part's (held); its capacitance follows L_ch
-            w_self = 2.0 * math.pi * design.bias.f_ch
-            stamp[(name, fld)] = 1.0 / (w_self**2 * vals["L_ch"])
-        elif fld == "C":
-            stamp[(name, fld)] = vals[name]
-        elif fld == "L":
-            stamp[(name, fld)] = vals["L_ch" if name == CHOKE else "L"]
-        elif fld == "R_s" and name == CHOKE:
-            stamp[(name, fld)] = np.zeros(n_samples)  # its loss is Rch
-        elif fld == "R_s":
-            stamp[(name, fld)] = w0 * vals["L"] / vals["Q_L"]
-        elif fld == "V":
-            stamp[(name, fld)] = np.full(n_samples, design.supply.Vcc)
-    system = assemble_batch(pat, stamp)
-    T_K = T_C + constants.zero_Celsius
-    dev = design.device
-    params = NPNParams(
-        IS=saturation_current(vals["IS"], T_K),
-        beta=vals["beta"],
-        beta_R=BETA_REVERSE,
-        VA=dev.VA,
-        VT=thermal_voltage(T_K),
-        fT=dev.fT,
-        C_mu=dev.C_mu,
-    )
-    dc = solve_dc_batch(system, params, nominal.op.x, n_samples)
-    d = device_currents(incidence_of(system), np.nan_to_num(dc.x), params)
-    hp = hybrid_pi(d.junction, dev.fT, dev.C_mu)
-    ss = small_signal(LinearSystem(pat.layout, system.G, system.C, system.b, pat.devices), hp)
-    f_ideal = w0 / (2.0 * math.pi)
+    nominal = prepared.nominal
+    values: dict = {**part_values(design), **vals, "temperature_C": T_C}
+    f_ideal = f_ideal_of(values, n_samples)
     # Start each sample's search where the nominal design's crossing sits
-    # relative to its ideal resonance.
+    # relative to its ideal resonance, and its Newton at the nominal DC point.
     offset = nominal.f_osc / nominal.tank.f_ideal if nominal.f_osc else 1.0
-    loop = find_oscillation(ss, f_ideal, f_ideal * offset)
+    sol = solve_values(prepared.patterns, values, n_samples, nominal.op.x, f_ideal * offset)
+    loop = sol.loop
     with np.errstate(divide="ignore", invalid="ignore"):
         sigma = np.where(loop.found, ((1.0 - loop.T) / loop.dT_ds).real, np.nan)
-    gain = np.where(np.isfinite(loop.f_osc), loop.gain, 0.0)
-    region = np.where(dc.converged, region_codes(d.junction.I_F, d.junction.I_R), 2)
-    return Batch(T_C, loop.f_osc, gain, sigma, d.junction.IC, d.vce, dc.converged, region)
+    return Batch(T_C, sol, sigma)
 
 
 @dataclass(frozen=True)

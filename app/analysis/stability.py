@@ -16,7 +16,8 @@ differ by 6 dB through other definitions of P_s and of single- versus
 double-sideband noise; this is Leeson's original single-sideband form.
 
 Pushing is df/dVcc from two full solves at Vcc ± a step; pulling is the
-change of f_osc from an open output to the given load, and df/dR_load there.
+change of f_osc from an open output to the given load, and df/dR_load there;
+the five solves are one batch of the pipeline.
 
 References
 ----------
@@ -34,9 +35,10 @@ import numpy as np
 from scipy import constants
 
 from ringwise.analysis.describing import LargeSignal
-from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.operating import Solved
+from ringwise.analysis.pipeline import solve_designs
 from ringwise.circuit.netlist import Capacitor, Inductor
-from ringwise.design import with_param
+from ringwise.design import Design, with_param
 
 #: Offsets reported and plotted, Hz.
 REPORT_OFFSETS: Final = (100.0, 1e3, 10e3, 100e3)
@@ -90,31 +92,40 @@ def leeson(
     )
 
 
-def pushing(solved: Solved) -> float | None:
-    """df_osc/dVcc, Hz/V, by a central difference of two full solves."""
-    Vcc = solved.design.supply.Vcc
-    dV = PUSH_STEP * Vcc
-    x0, f0 = solved.op.x, solved.f_osc
-    f = [solve(with_param(solved.design, "Vcc", Vcc + s * dV), x0, f0).f_osc for s in (1.0, -1.0)]
-    if None in f:
-        return None
-    return (f[0] - f[1]) / (2.0 * dV)
-
-
-def pulling(solved: Solved) -> tuple[float | None, float | None]:
-    """(f with the load − f open, Hz; df/dR_load at the load, Hz/Ω)."""
-    R = solved.design.load.R_load
-    if R is None or solved.f_osc is None:
-        return (0.0 if solved.f_osc is not None else None), None
+def _variants(solved: Solved) -> list[Design]:
+    """The designs pushing and pulling need: Vcc ± a step, then (with a load) the
+    load opened and R_load ± a step."""
     d = solved.design
-    open_design = d.model_copy(update={"load": d.load.model_copy(update={"R_load": None})})
-    x0, f0 = solved.op.x, solved.f_osc
-    f_open = solve(open_design, x0, f0).f_osc
-    f_hi = solve(with_param(d, "R_load", R * (1 + PULL_STEP)), x0, f0).f_osc
-    f_lo = solve(with_param(d, "R_load", R * (1 - PULL_STEP)), x0, f0).f_osc
+    Vcc = d.supply.Vcc
+    out = [with_param(d, "Vcc", Vcc * (1.0 + s * PUSH_STEP)) for s in (1.0, -1.0)]
+    R = d.load.R_load
+    if R is not None:
+        out.append(d.model_copy(update={"load": d.load.model_copy(update={"R_load": None})}))
+        out += [with_param(d, "R_load", R * (1.0 + s * PULL_STEP)) for s in (1.0, -1.0)]
+    return out
+
+
+def push_pull(solved: Solved) -> tuple[float | None, float | None, float | None]:
+    """(df_osc/dVcc, Hz/V; f with the load − f open, Hz; df/dR_load, Hz/Ω).
+
+    Central differences of full solves (operating point re-solved), all in
+    one batch of the pipeline; ``None`` where a figure does not exist.
+    """
+    if solved.f_osc is None:
+        return None, None, None
+    designs = _variants(solved)
+    batch = solve_designs(designs, solved.op.x, solved.f_osc, like=solved.design)
+    f = [float(v) if np.isfinite(v) else None for v in batch.loop.f_osc]
+    d = solved.design
+    dV = PUSH_STEP * d.supply.Vcc
+    push = (f[0] - f[1]) / (2.0 * dV) if None not in f[:2] else None
+    R = d.load.R_load
+    if R is None:
+        return push, 0.0, None
+    f_open, f_hi, f_lo = f[2:]
     shift = solved.f_osc - f_open if f_open is not None else None
     slope = (f_hi - f_lo) / (2 * PULL_STEP * R) if None not in (f_hi, f_lo) else None
-    return shift, slope
+    return push, shift, slope
 
 
 def part_stresses(solved: Solved, ls: LargeSignal) -> list[PartStress]:
@@ -157,8 +168,7 @@ def stability(solved: Solved, ls: LargeSignal) -> Stability:
         pn = [(o, float(leeson(o, *args))) for o in REPORT_OFFSETS]
         grid = np.logspace(*PLOT_DECADES, PLOT_POINTS)
         curve = list(zip(grid.tolist(), leeson(grid, *args).tolist(), strict=True))
-    push = pushing(solved) if solved.f_osc is not None else None
-    shift, slope = pulling(solved)
+    push, shift, slope = push_pull(solved)
     parts = part_stresses(solved, ls)
     notes: list[tuple[str, str]] = []
     if shift is not None and solved.f_osc and abs(shift) / solved.f_osc * 1e6 > PULL_BUFFER_PPM:

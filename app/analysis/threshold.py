@@ -32,6 +32,7 @@ from scipy.optimize import brentq
 from ringwise.analysis.dc import DCConvergenceError
 from ringwise.analysis.loop import find_oscillation
 from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.pipeline import solve_designs
 from ringwise.circuit.mna import restamp, small_signal
 from ringwise.circuit.netlist import Resistor
 from ringwise.design import Design, get_param, with_param
@@ -387,23 +388,31 @@ def sweep(
     if scale is None:
         scale = "linear" if param in LINEAR_PARAMS else "log"
     values = sweep_values(start, stop, points, scale)
-    f_osc: list[float | None] = []
-    gain: list[float | None] = []
-    valid: list[bool] = []
-    last: Solved | None = None
+    designs: list[Design | None] = []
     for v in values:
         try:
-            trial = with_param(design, param, float(v))
-            last = solve(trial, last.op.x if last else None, last.f_osc if last else None)
-        except (ValidationError, DCConvergenceError):
-            f_osc.append(None)
-            gain.append(None)
-            valid.append(False)
-            last = None
-            continue
-        f_osc.append(last.f_osc)
-        gain.append(last.gain if last.f_osc is not None else None)
-        valid.append(True)
+            designs.append(with_param(design, param, float(v)))
+        except ValidationError:
+            designs.append(None)
+    valid_designs = [d for d in designs if d is not None]
+    f_osc: list[float | None] = [None] * len(designs)
+    gain: list[float | None] = [None] * len(designs)
+    valid = [False] * len(designs)
+    if valid_designs:
+        # Every valid point is one member of one batch of the pipeline.
+        batch = solve_designs(valid_designs)
+        rows = iter(range(len(valid_designs)))
+        for k, d in enumerate(designs):
+            if d is None:
+                continue
+            i = next(rows)
+            if not batch.converged[i]:
+                continue
+            f = float(batch.loop.f_osc[i])
+            valid[k] = True
+            if math.isfinite(f):
+                f_osc[k] = f
+                gain[k] = float(batch.loop.gain[i])
     if threshold is not None and threshold.param == param:
         pass
     elif param in LINEAR_PARAMS:

@@ -23,6 +23,7 @@ IEEE Trans. Circuits and Systems, 1975 (from memory).
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass
 
@@ -214,6 +215,11 @@ class Incidence:
     P_B: np.ndarray
     S_BE: np.ndarray
     S_BC: np.ndarray
+    #: The four rank-one patterns P_k·W_jᵀ of the device Jacobian (k = C, B; j = BE, CE).
+    C_BE: np.ndarray
+    C_CE: np.ndarray
+    B_BE: np.ndarray
+    B_CE: np.ndarray
 
     @property
     def W_BE(self) -> np.ndarray:
@@ -233,15 +239,27 @@ class Incidence:
 
 
 def incidence(lay: Layout, dev: NPN) -> Incidence:
-    n = lay.size
-    S_BE, S_BC = np.zeros((n, n)), np.zeros((n, n))
-    _stamp_pair(S_BE, lay, dev.b, dev.e, 1.0)
-    _stamp_pair(S_BC, lay, dev.b, dev.c, 1.0)
+    """The transistor's incidence in layout ``lay`` (remembered per layout and terminals)."""
+    return _incidence(tuple(lay.node.items()), lay.size, dev.c, dev.b, dev.e)
+
+
+@functools.lru_cache(maxsize=64)
+def _incidence(nodes: tuple, size: int, c: str, b: str, e: str) -> Incidence:
+    lay = Layout(dict(nodes), {}, size)
+    S_BE, S_BC = np.zeros((size, size)), np.zeros((size, size))
+    _stamp_pair(S_BE, lay, b, e, 1.0)
+    _stamp_pair(S_BC, lay, b, c, 1.0)
+    P_C = lay.unit(c) - lay.unit(e)
+    P_B = lay.unit(b) - lay.unit(e)
     return Incidence(
-        P_C=lay.unit(dev.c) - lay.unit(dev.e),
-        P_B=lay.unit(dev.b) - lay.unit(dev.e),
+        P_C=P_C,
+        P_B=P_B,
         S_BE=S_BE,
         S_BC=S_BC,
+        C_BE=np.outer(P_C, P_B),
+        C_CE=np.outer(P_C, P_C),
+        B_BE=np.outer(P_B, P_B),
+        B_CE=np.outer(P_B, P_C),
     )
 
 
@@ -283,10 +301,10 @@ def device_currents(inc: Incidence, x: np.ndarray, params: NPNParams) -> DeviceC
     )
     current = q.IC[..., None] * inc.P_C + q.IB[..., None] * inc.P_B
     jacobian = (
-        _rank1(q.dIC_dvbe, inc.P_C, inc.W_BE)
-        + _rank1(q.dIC_dvce, inc.P_C, inc.W_CE)
-        + _rank1(q.dIB_dvbe, inc.P_B, inc.W_BE)
-        + _rank1(q.dIB_dvce, inc.P_B, inc.W_CE)
+        _scaled(q.dIC_dvbe, inc.C_BE)
+        + _scaled(q.dIC_dvce, inc.C_CE)
+        + _scaled(q.dIB_dvbe, inc.B_BE)
+        + _scaled(q.dIB_dvce, inc.B_CE)
     )
     return DeviceCurrents(current, jacobian, q, vbe, vce)
 
@@ -327,9 +345,43 @@ def residual_and_device(
     return F, system.G + d.jacobian, d
 
 
-def _rank1(k, a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """k · a bᵀ, with k a scalar or an array of batch coefficients."""
-    return np.asarray(k)[..., None, None] * np.outer(a, b)
+@dataclass(frozen=True)
+class Reduced:
+    r"""A x + P·φ(Wᵀx) = r reduced to the transistor's two controls v = Wᵀx.
+
+    With :math:`y = A^{-1} r`, :math:`K = A^{-1} P` and :math:`M = W^T K`,
+
+    .. math:: v + M\,arphi(v) = W^T y, \qquad x = y - K\,arphi(v),
+
+    exactly (the Woodbury identity in effect): Newton on the nodal equations
+    becomes Newton on two unknowns, with the same iterates.  Arrays carry the
+    batch axes of A: ``y`` (…, n), ``K`` (…, n, 2) with columns (C, B),
+    ``M`` (…, 2, 2) with rows (BE, CE), ``a`` = Wᵀy (…, 2).
+    """
+
+    y: np.ndarray
+    K: np.ndarray
+    M: np.ndarray
+    a: np.ndarray
+
+
+def reduce_to_controls(A: np.ndarray, r: np.ndarray, inc: Incidence) -> Reduced:
+    """Factor A once for the source vector ``r`` and the device columns P (see :class:`Reduced`).
+
+    The DC solve (A = G) and the transient's step (A = 2C/h + G) both use it.
+    """
+    rhs = np.empty((*A.shape[:-1], 3))
+    rhs[..., 0] = r
+    rhs[..., 1:] = inc.P
+    Y = np.linalg.solve(A, rhs)
+    y, K = Y[..., 0], Y[..., 1:]
+    W = inc.W
+    return Reduced(y=y, K=K, M=np.swapaxes(W, 0, 1) @ K, a=y @ W)
+
+
+def _scaled(k, M: np.ndarray) -> np.ndarray:
+    """k · M, with k a scalar or an array of batch coefficients."""
+    return np.asarray(k)[..., None, None] * M
 
 
 def small_signal(system: LinearSystem, hp: HybridPi) -> SmallSignal:
@@ -346,9 +398,9 @@ def small_signal(system: LinearSystem, hp: HybridPi) -> SmallSignal:
     # i_c (without g_m v_be) = g_o v_ce into the collector, out of the emitter.
     G = (
         system.G
-        + _rank1(hp.g_pi, inc.P_B, inc.W_BE)
-        + _rank1(hp.g_r, inc.P_B, inc.W_CE)
-        + _rank1(hp.g_o, inc.P_C, inc.W_CE)
+        + _scaled(hp.g_pi, inc.B_BE)
+        + _scaled(hp.g_r, inc.B_CE)
+        + _scaled(hp.g_o, inc.C_CE)
     )
     C = with_junction_capacitances(system.C, inc, hp.C_pi, hp.C_mu)
     return SmallSignal(system.layout, G, C, hp.gm, inc.P_C, inc.W_BE, hp)
@@ -417,23 +469,35 @@ def linear_patterns(netlist: Netlist) -> Patterns:
     return Patterns(lay, base.G, base.C, base.b, tuple(terms), base.devices)
 
 
-def assemble_batch(patterns: Patterns, values: dict[tuple[str, str], np.ndarray]) -> LinearSystem:
-    """G, C, b for a batch: ``values[(element, field)]`` holds one stamp value per circuit."""
-    n = patterns.layout.size
+def assemble_batch(
+    patterns: Patterns, values: dict[tuple[str, str], np.ndarray | float]
+) -> LinearSystem:
+    """G (B, n, n), C (B, n, n), b (B, n) for a batch: ``values[(element, field)]`` holds
+    each circuit's stamp value (an array (B,), or a float shared by all)."""
     out = {}
-    for target, base in (("G", patterns.G0), ("C", patterns.C0)):
-        terms = [(k, M) for k, M in _terms_of(patterns, values, target)]
-        if terms:
-            coeffs = np.stack([k for k, _M in terms], axis=1)  # (B, terms)
-            mats = np.stack([M.reshape(-1) for _k, M in terms])  # (terms, n·n)
-            out[target] = base + (coeffs @ mats).reshape(-1, n, n)
-        else:
+    for target, base in (("G", patterns.G0), ("C", patterns.C0), ("b", patterns.b0)):
+        keys, mats = _stacked(patterns, target)
+        if not keys:
             out[target] = base[None]
-    b = patterns.b0 + sum(k[:, None] * M for k, M in _terms_of(patterns, values, "b"))
-    return LinearSystem(patterns.layout, out["G"], out["C"], b, patterns.devices)
+            continue
+        coeffs = _coefficients([values[k] for k in keys])  # (B, terms)
+        out[target] = base + (coeffs @ mats).reshape(-1, *base.shape)
+    return LinearSystem(patterns.layout, out["G"], out["C"], out["b"], patterns.devices)
 
 
-def _terms_of(patterns: Patterns, values, target: str):
-    for name, field, kind, M in patterns.terms:
-        if kind == target:
-            yield np.asarray(values[(name, field)], dtype=float), M
+def _coefficients(column: list) -> np.ndarray:
+    """Stamp values as a (B, terms) matrix; plain floats make a batch of one."""
+    if not any(isinstance(k, np.ndarray) and k.ndim for k in column):
+        return np.array(column, dtype=float)[None, :]
+    return np.stack(np.broadcast_arrays(*(np.asarray(k, dtype=float) for k in column)), axis=1)
+
+
+def _stacked(patterns: Patterns, target: str) -> tuple[list, np.ndarray]:
+    """The keys and flattened unit stamps of one target, (terms, n·n or n), remembered."""
+    cache = patterns.__dict__.setdefault("_stacked", {})
+    if target not in cache:
+        picked = [(name, field, M) for name, field, kind, M in patterns.terms if kind == target]
+        keys = [(name, field) for name, field, _M in picked]
+        mats = np.stack([M.reshape(-1) for *_k, M in picked]) if picked else np.zeros((0, 0))
+        cache[target] = (keys, mats)
+    return cache[target]

@@ -40,6 +40,9 @@ import math
 from dataclasses import dataclass
 from typing import Final
 
+import numpy as np
+from scipy import constants
+
 from ringwise.circuit.netlist import (
     GROUND,
     NPN,
@@ -97,6 +100,12 @@ class TankFigures:
     feedback_ratio: float
 
 
+def coil_loss(L, C_series, Q_L):
+    r"""Series loss of the coil, Ω: :math:`R_s = \omega_0 L/Q_L` with
+    :math:`\omega_0 = 1/\sqrt{L C_s}` (floats or arrays; L in H, C_s in F)."""
+    return L / (np.sqrt(L * C_series) * Q_L)
+
+
 def tank_figures(design: Design) -> TankFigures:
     t = design.tank
     C_s = series(t.C1, t.C2, t.C3)
@@ -104,7 +113,7 @@ def tank_figures(design: Design) -> TankFigures:
     return TankFigures(
         C_series=C_s,
         f_ideal=w0 / (2.0 * math.pi),
-        R_s=w0 * t.L / t.Q_L,
+        R_s=float(coil_loss(t.L, C_s, t.Q_L)),
         feedback_ratio=t.C1 / t.C2,
     )
 
@@ -127,24 +136,39 @@ def choke_figures(design: Design) -> ChokeFigures | None:
         return None
     b = design.bias
     assert b.L_ch is not None and b.Q_ch is not None
-    w0 = 2.0 * math.pi * tank_figures(design).f_ideal
-    C_self = 0.0 if b.f_ch is None else 1.0 / ((2.0 * math.pi * b.f_ch) ** 2 * b.L_ch)
-    return ChokeFigures(R_p=b.Q_ch * w0 * b.L_ch, C_self=C_self)
+    t = design.tank
+    R_p = choke_loss(b.L_ch, b.Q_ch, t.L, series(t.C1, t.C2, t.C3))
+    C_self = 0.0 if b.f_ch is None else choke_self_capacitance(b.L_ch, b.f_ch)
+    return ChokeFigures(R_p=float(R_p), C_self=float(C_self))
+
+
+def choke_loss(L_ch, Q_ch, L, C_series):
+    r"""The choke's parallel loss resistance, Ω: :math:`R_p = Q_{ch}\,\omega_0 L_{ch}`
+    at the tank's ideal resonance :math:`\omega_0 = 1/\sqrt{L C_s}` (floats or arrays)."""
+    return Q_ch * L_ch / np.sqrt(L * C_series)
+
+
+def choke_self_capacitance(L_ch, f_ch):
+    r"""The choke's self-capacitance, F: :math:`C = 1/((2\pi f_{ch})^2 L_{ch})`
+    (floats or arrays)."""
+    return 1.0 / ((2.0 * math.pi * f_ch) ** 2 * L_ch)
+
+
+def device_params_at(IS, beta, VA, fT, C_mu, temperature_C) -> NPNParams:
+    """Transistor parameters at ``temperature_C`` (°C) from their 25 °C values
+    (I_S in A, V_A in V, f_T in Hz, C_μ in F); floats or arrays alike."""
+    T = np.asarray(temperature_C, dtype=float) + constants.zero_Celsius
+    VT = thermal_voltage(T)
+    IS_T = saturation_current(IS, T)
+    if np.ndim(IS_T) == 0:
+        IS_T, VT = float(IS_T), float(VT)
+    return NPNParams(IS=IS_T, beta=beta, beta_R=BETA_REVERSE, VA=VA, VT=VT, fT=fT, C_mu=C_mu)
 
 
 def device_params(design: Design) -> NPNParams:
     """Transistor parameters at the design's temperature."""
     d = design.device
-    T = design.temperature_C + 273.15
-    return NPNParams(
-        IS=saturation_current(d.IS, T),
-        beta=d.beta,
-        beta_R=BETA_REVERSE,
-        VA=d.VA,
-        VT=thermal_voltage(T),
-        fT=d.fT,
-        C_mu=d.C_mu,
-    )
+    return device_params_at(d.IS, d.beta, d.VA, d.fT, d.C_mu, design.temperature_C)
 
 
 @dataclass(frozen=True)

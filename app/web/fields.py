@@ -32,6 +32,7 @@ from ringwise.design import (
     Tolerances,
     Topology,
 )
+from ringwise.display import format_value
 from ringwise.errors import describe_validation_error
 from ringwise.presets import DEVICE_PRESET_LABELS, DEVICE_PRESETS
 from ringwise.units import format_si
@@ -341,12 +342,7 @@ def display(value: float | None, unit: str) -> str:
 
 @lru_cache(maxsize=DISPLAY_CACHE)
 def _display(value: float | None, unit: str) -> str:
-    if value is None:
-        return "—"
-    if unit in ("", "dB"):
-        text = f"{value:.4g}"
-        return f"{text} dB" if unit == "dB" else text
-    return format_si(value, unit)
+    return format_value(value, unit)
 
 
 def check_fields(texts: Mapping[str, str]) -> dict[str, FieldState]:

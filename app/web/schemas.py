@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
-from typing import Literal
+from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
 from ringwise.analysis.threshold import MAX_SWEEP_POINTS
 from ringwise.design import Design
+from ringwise.result import Result
 
 #: Points of a sweep when the request does not say.
 DEFAULT_SWEEP_POINTS = 50
@@ -96,3 +97,51 @@ class SampleOut(BaseModel):
 class ImportOut(BaseModel):
     fields: dict[str, str]
     query: str
+
+
+class FieldStateOut(BaseModel):
+    text: str = Field(description="The text as typed")
+    value: float | str | None = Field(
+        description="Its value in SI units (null when blank or wrong)"
+    )
+    display: str = Field(description="The value as the sheet shows it")
+    error: str | None = Field(description="What is wrong with it, naming the limit")
+    step: float | None = Field(description="Slider step near the value (null: no slider)")
+
+
+class SheetProblemOut(BaseModel):
+    field: str = Field(description="Dotted path of the problem (tank.C2, design, sweep_param)")
+    message: str
+    type: str
+    input: str | None = Field(description="The form field it belongs to (null: the design)")
+
+
+class ShownFigureOut(BaseModel):
+    value: Any = Field(description="Raw value (SI), a word, a flag, or null")
+    text: str = Field(description="Display text with unit")
+    raw: str = Field(description="The value as data-value holds it (shortest float text)")
+    hidden: bool | None = None
+
+
+class SheetView(BaseModel):
+    """What the sheet shows for a set of form texts (``POST /api/sheet``).
+
+    ``result`` is exactly ``POST /api/analyze``'s answer; ``shown`` holds the
+    display text of every figure of ``ringwise.display``, keyed by result path.
+    """
+
+    ok: bool = Field(description="The texts make a design and it was analysed")
+    fields: dict[str, FieldStateOut]
+    problems: list[SheetProblemOut]
+    link_problems: list[dict[str, Any]]
+    result: Result | None
+    design: dict[str, Any] | None = Field(description="The design document of the texts")
+    shown: dict[str, ShownFigureOut] | None
+    noise_offsets: list[dict[str, Any]]
+    part_rows: list[dict[str, Any]]
+    curves: dict[str, Any] | None = Field(description="Plot data of the sheet's plots")
+    unused: list[str]
+    sweep_options: list[Any]
+    sweep_param: str | None
+    query: str = Field(description="The share link's query for these texts")
+    topology: str

@@ -10,7 +10,7 @@ JSON twins return it as JSON.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any, Final, get_args
+from typing import Any, get_args
 from urllib.parse import urlencode
 
 from pydantic import ValidationError
@@ -20,10 +20,21 @@ from ringwise.analysis.operating import solve
 from ringwise.analysis.stability import RATING_FRACTION
 from ringwise.circuit.topologies import gain_setter
 from ringwise.design import Design, Feed, Topology, get_param
+from ringwise.display import (
+    ORDINALS,
+    PANELS,
+    RUN_SHOWN,
+    SHOWN,
+    STABILITY_SHOWN,
+    SUMMARY_PANELS,
+    SUMMARY_STABILITY,
+    format_value,
+    lookup,
+    unit_of,
+)
 from ringwise.errors import describe_validation_error
 from ringwise.web import curves
 from ringwise.web.fields import (
-    BY_NAME,
     BY_PATH,
     FIELDS,
     check_fields,
@@ -34,116 +45,24 @@ from ringwise.web.fields import (
 )
 from ringwise.web.ladders import nearest_step
 
-#: Figures the sheet shows, in order: (result path, display unit, label, panel).
-#: The unit ``"param"`` means "the unit of the threshold's parameter".
-SHOWN: Final = (
-    ("tank.f_ideal", "Hz", "Ideal resonance 1/(2π√(L·Cs))", "frequency"),
-    ("loop.f_osc", "Hz", "Oscillation frequency (zero loop phase)", "frequency"),
-    ("tank.C_series", "F", "Series capacitance Cs", "frequency"),
-    ("tank.feedback_ratio", "", "Feedback ratio C1/C2", "frequency"),
-    ("loop.Q_loaded", "", "Loaded Q (from the phase slope)", "frequency"),
-    ("large_signal.f", "Hz", "Frequency at full amplitude", "frequency"),
-    ("stability.pushing_Hz_per_V", "Hz/V", "Pushing df/dVcc", "frequency"),
-    ("loop.gain_ideal", "", "Loop gain, hand method", "loop"),
-    ("loop.gain", "", "Loop gain, full circuit", "loop"),
-    ("startup.margin_dB", "dB", "Margin over the threshold of 1", "loop"),
-    ("startup.threshold_param", "text", "Part set to loop gain 1", "loop"),
-    ("startup.threshold_value", "param", "Its value at loop gain 1", "loop"),
-    ("tank.R_s", "Ω", "Coil series loss R_s", "loop"),
-    ("loop.Z_out", "Ω", "Load on the controlled source", "loop"),
-    ("poles.growth_time", "s", "Envelope growth time 1/σ", "loop"),
-    ("large_signal.amp_out", "V", "Output amplitude (fundamental)", "swing"),
-    ("large_signal.output_node", "text", "Output taken at", "swing"),
-    ("large_signal.amp_be", "V", "Base-emitter amplitude", "swing"),
-    ("large_signal.x", "", "Drive V_be/V_T", "swing"),
-    ("large_signal.IC_avg", "A", "Average I_C with the swing", "swing"),
-    ("large_signal.P_tank", "W", "Signal power in the coil loss", "swing"),
-    ("large_signal.valid", "valid", "Estimate within its assumptions", "swing"),
-    ("operating_point.IC", "A", "Collector current I_C", "bias"),
-    ("operating_point.VCE", "V", "V_CE", "bias"),
-    ("operating_point.VBE", "V", "V_BE", "bias"),
-    ("operating_point.VB", "V", "Base voltage", "bias"),
-    ("operating_point.VE", "V", "Emitter voltage", "bias"),
-    ("operating_point.VC", "V", "Collector voltage", "bias"),
-    ("operating_point.I_divider", "A", "Divider current (RB2)", "bias"),
-    ("operating_point.P_device", "W", "Transistor dissipation", "bias"),
-    ("operating_point.region", "text", "Region", "bias"),
-    ("small_signal.gm", "S", "g_m", "bias"),
-    ("small_signal.r_pi", "Ω", "r_π", "bias"),
-    ("swing.V_ce", "V", "Collector swing estimate (fixed bias)", "bias"),
-)
-
-PANELS: Final = (
-    ("frequency", "Frequency and tank"),
-    ("loop", "Loop gain and startup"),
-    ("swing", "Steady swing (describing-function estimate)"),
-    ("bias", "Operating point"),
-)
-
-#: The summary's panels (its stability block and swing line are its own).
-SUMMARY_PANELS: Final = tuple(p for p in PANELS if p[0] != "swing")
-
-#: The stability panel's figures besides the phase-noise points: (path, unit, label).
-STABILITY_SHOWN: Final = (
-    ("stability.Q_loaded", "", "Loaded Q (phase slope)"),
-    ("stability.P_signal", "W", "Signal power P_s in the resonator loss"),
-    ("stability.F_dB", "dB", "Noise factor F used"),
-    ("stability.f_corner", "Hz", "Flicker corner used"),
-    ("stability.leeson_corner", "Hz", "Leeson corner f0/(2·Q)"),
-    ("stability.pushing_Hz_per_V", "Hz/V", "Pushing df/dVcc"),
-    ("stability.pulling_Hz", "Hz", "Pulling: f with the load − f open"),
-    ("stability.pulling_Hz_per_ohm", "Hz/Ω", "df/dR_load at the load"),
-)
-
-#: Of those, the ones the summary's stability block lists.
-SUMMARY_STABILITY: Final = (
-    "stability.Q_loaded",
-    "stability.P_signal",
-    "stability.pushing_Hz_per_V",
-    "stability.pulling_Hz",
-)
-
-#: The time-domain run's figures: (path in the simulation result, unit, label).
-RUN_SHOWN: Final = (
-    ("transient.f_meas", "Hz", "Measured frequency (zero crossings)"),
-    ("transient.amp_out_peak", "V", "Output peak amplitude"),
-    ("transient.amp_out_pp", "V", "Output peak-to-peak"),
-    ("transient.amp_out_fund", "V", "Output fundamental (FFT)"),
-    ("transient.amp_be_fund", "V", "Base-emitter fundamental (FFT)"),
-    ("transient.thd", "%", "THD at the output"),
-    ("transient.t_startup_90", "s", "Startup to 90 % of the final amplitude"),
-    ("transient.VE_shift", "V", "Shift of the average emitter voltage"),
-    ("transient.squegging", "yesno", "Squegging seen"),
-    ("transient.settled", "yesno", "Envelope settled"),
-    ("transient.cycles_run", "", "Cycles run"),
-    ("transient.bias_time_constant", "s", "Longest bias time constant"),
-)
-#: Names of the harmonics in ``transient.harmonics_dBc`` (2nd, 3rd, ...).
-ORDINALS: Final = ("2nd", "3rd", "4th", "5th", "6th", "7th", "8th", "9th")
-
-
-def lookup(result: Mapping[str, Any], path: str) -> Any:
-    """The value at a dotted path of the result (``None`` where the result has none);
-    a numeric part indexes a list (``stability.phase_noise.0.dBc_Hz``)."""
-    value: Any = result
-    for key in path.split("."):
-        if isinstance(value, list) and key.isdigit() and int(key) < len(value):
-            value = value[int(key)]
-        elif isinstance(value, Mapping) and key in value:
-            value = value[key]
-        else:
-            return None
-    return value
+__all__ = [
+    "ORDINALS",
+    "PANELS",
+    "RUN_SHOWN",
+    "SHOWN",
+    "STABILITY_SHOWN",
+    "SUMMARY_PANELS",
+    "SUMMARY_STABILITY",
+    "build_view",
+    "lookup",
+]
 
 
 def _text(value: Any, unit: str) -> str:
-    """Display text of a figure in one of the sheet's units (SI, or a few named kinds)."""
-    if unit == "text":
-        return str(value)
-    if unit == "yesno":
-        return "—" if value is None else ("yes" if value else "no")
-    if unit == "%":
-        return "—" if value is None else f"{100.0 * value:.3g} %"
+    """Display text of a figure (the core's :func:`ringwise.display.format_value`;
+    numbers through the web layer's cache of it)."""
+    if unit in ("text", "yesno", "%"):
+        return format_value(value, unit)
     return display(value, unit)
 
 
@@ -154,9 +73,7 @@ def shown_figures(result: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
         value = lookup(result, path)
         if unit == "valid":
             continue
-        if unit == "param":
-            unit = BY_NAME[result["startup"]["threshold_param"]].unit
-        out[path] = _figure(value, _text(value, unit))
+        out[path] = _figure(value, _text(value, unit_of(unit, result)))
     large = result["large_signal"]
     shift = None
     if large["IC_avg"] is not None and result["operating_point"]["IC"] is not None:

@@ -239,3 +239,19 @@ def test_no_value_gives_500_on_analyze(client, sample, value):
     sample["bias"]["RE"] = value
     r = client.post("/api/analyze", json=sample)
     assert r.status_code in (200, 422)
+
+
+def test_sheet_answer_has_its_declared_shape(client) -> None:
+    # POST /api/sheet documents SheetView in the OpenAPI and answers in that shape,
+    # for a design that analyses and for one that does not.
+    from ringwise.web.samples import DEFAULT_SAMPLE, sample_texts
+    from ringwise.web.schemas import SheetView
+
+    texts = sample_texts()[DEFAULT_SAMPLE]
+    for fields, ok in ((texts, True), ({**texts, "C1": "-3"}, False)):
+        answer = client.post("/api/sheet", json={"fields": fields})
+        assert answer.status_code == 200
+        view = SheetView.model_validate(answer.json())
+        assert view.ok is ok
+    schema = client.get("/openapi.json").json()["paths"]["/api/sheet"]["post"]
+    assert "SheetView" in str(schema["responses"]["200"])

@@ -29,6 +29,7 @@ from ringwise.web.schemas import (
     SampleOut,
     SheetRequest,
     SheetSweepRequest,
+    SheetView,
     SweepOut,
     SweepRequest,
     ThresholdOut,
@@ -105,13 +106,14 @@ def get_design(name: str) -> dict[str, Any]:
     return found.document
 
 
-@router.post("/sheet", responses=ERRORS)
+@router.post("/sheet", response_model=SheetView, responses=ERRORS)
 def post_sheet(req: SheetRequest) -> JSONResponse:
     """What the sheet shows for these form texts (the page's JSON twin), without the sweep.
 
     An invalid design is not an error here: the answer lists its problems,
     beside their fields, as the page does.  (The view is plain JSON data
-    already, so it is sent as it is, without FastAPI's slower generic encoder.)
+    already, so it is sent as it is, without FastAPI's slower generic encoder;
+    its shape is ``SheetView``, which a test checks against real answers.)
     """
     return JSONResponse(build_view(form_texts(req.fields), req.sweep_param, with_sweep=False))
 

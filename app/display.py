@@ -1,0 +1,208 @@
+"""The figures the result shows, declared once: result path, unit, label (and panel).
+
+The sheet, the summary, the JSON twins and the command line's table all
+read these tables; nothing else lists which figures exist or what they are
+called.  Units are SI symbols (``"Hz"``, ``"Ω"``, ``"A"``) or a few named
+kinds: ``""`` a plain ratio, ``"dB"``, ``"%"`` a fraction shown in per cent,
+``"text"`` a word, ``"yesno"`` a flag, ``"valid"`` the large-signal estimate's
+flag, and ``"param"`` the unit of the threshold's parameter
+(:data:`PARAM_UNITS`).  Formatting to text happens only here and in
+:mod:`ringwise.units`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any, Final, NamedTuple
+
+from ringwise.units import format_si
+
+
+class Figure(NamedTuple):
+    """One shown figure of the analysis: where it is in the result, its unit,
+    its label and the sheet panel it sits in."""
+
+    path: str
+    unit: str
+    label: str
+    panel: str
+
+
+class Row(NamedTuple):
+    """A shown figure outside the four panels (stability block, time-domain run)."""
+
+    path: str
+    unit: str
+    label: str
+
+
+#: Figures the sheet shows, in order: (result path, display unit, label, panel).
+#: The unit ``"param"`` means "the unit of the threshold's parameter".
+SHOWN: Final = tuple(
+    Figure(*row)
+    for row in (
+        ("tank.f_ideal", "Hz", "Ideal resonance 1/(2π√(L·Cs))", "frequency"),
+        ("loop.f_osc", "Hz", "Oscillation frequency (zero loop phase)", "frequency"),
+        ("tank.C_series", "F", "Series capacitance Cs", "frequency"),
+        ("tank.feedback_ratio", "", "Feedback ratio C1/C2", "frequency"),
+        ("loop.Q_loaded", "", "Loaded Q (from the phase slope)", "frequency"),
+        ("large_signal.f", "Hz", "Frequency at full amplitude", "frequency"),
+        ("stability.pushing_Hz_per_V", "Hz/V", "Pushing df/dVcc", "frequency"),
+        ("loop.gain_ideal", "", "Loop gain, hand method", "loop"),
+        ("loop.gain", "", "Loop gain, full circuit", "loop"),
+        ("startup.margin_dB", "dB", "Margin over the threshold of 1", "loop"),
+        ("startup.threshold_param", "text", "Part set to loop gain 1", "loop"),
+        ("startup.threshold_value", "param", "Its value at loop gain 1", "loop"),
+        ("tank.R_s", "Ω", "Coil series loss R_s", "loop"),
+        ("loop.Z_out", "Ω", "Load on the controlled source", "loop"),
+        ("poles.growth_time", "s", "Envelope growth time 1/σ", "loop"),
+        ("large_signal.amp_out", "V", "Output amplitude (fundamental)", "swing"),
+        ("large_signal.output_node", "text", "Output taken at", "swing"),
+        ("large_signal.amp_be", "V", "Base-emitter amplitude", "swing"),
+        ("large_signal.x", "", "Drive V_be/V_T", "swing"),
+        ("large_signal.IC_avg", "A", "Average I_C with the swing", "swing"),
+        ("large_signal.P_tank", "W", "Signal power in the coil loss", "swing"),
+        ("large_signal.valid", "valid", "Estimate within its assumptions", "swing"),
+        ("operating_point.IC", "A", "Collector current I_C", "bias"),
+        ("operating_point.VCE", "V", "V_CE", "bias"),
+        ("operating_point.VBE", "V", "V_BE", "bias"),
+        ("operating_point.VB", "V", "Base voltage", "bias"),
+        ("operating_point.VE", "V", "Emitter voltage", "bias"),
+        ("operating_point.VC", "V", "Collector voltage", "bias"),
+        ("operating_point.I_divider", "A", "Divider current (RB2)", "bias"),
+        ("operating_point.P_device", "W", "Transistor dissipation", "bias"),
+        ("operating_point.region", "text", "Region", "bias"),
+        ("small_signal.gm", "S", "g_m", "bias"),
+        ("small_signal.r_pi", "Ω", "r_π", "bias"),
+        ("swing.V_ce", "V", "Collector swing estimate (fixed bias)", "bias"),
+    )
+)
+
+PANELS: Final = (
+    ("frequency", "Frequency and tank"),
+    ("loop", "Loop gain and startup"),
+    ("swing", "Steady swing (describing-function estimate)"),
+    ("bias", "Operating point"),
+)
+
+#: The summary's panels (its stability block and swing line are its own).
+SUMMARY_PANELS: Final = tuple(p for p in PANELS if p[0] != "swing")
+
+#: The stability panel's figures besides the phase-noise points: (path, unit, label).
+STABILITY_SHOWN: Final = tuple(
+    Row(*row)
+    for row in (
+        ("stability.Q_loaded", "", "Loaded Q (phase slope)"),
+        ("stability.P_signal", "W", "Signal power P_s in the resonator loss"),
+        ("stability.F_dB", "dB", "Noise factor F used"),
+        ("stability.f_corner", "Hz", "Flicker corner used"),
+        ("stability.leeson_corner", "Hz", "Leeson corner f0/(2·Q)"),
+        ("stability.pushing_Hz_per_V", "Hz/V", "Pushing df/dVcc"),
+        ("stability.pulling_Hz", "Hz", "Pulling: f with the load − f open"),
+        ("stability.pulling_Hz_per_ohm", "Hz/Ω", "df/dR_load at the load"),
+    )
+)
+
+#: Of those, the ones the summary's stability block lists.
+SUMMARY_STABILITY: Final = (
+    "stability.Q_loaded",
+    "stability.P_signal",
+    "stability.pushing_Hz_per_V",
+    "stability.pulling_Hz",
+)
+
+#: The time-domain run's figures: (path in the simulation result, unit, label).
+RUN_SHOWN: Final = tuple(
+    Row(*row)
+    for row in (
+        ("transient.f_meas", "Hz", "Measured frequency (zero crossings)"),
+        ("transient.amp_out_peak", "V", "Output peak amplitude"),
+        ("transient.amp_out_pp", "V", "Output peak-to-peak"),
+        ("transient.amp_out_fund", "V", "Output fundamental (FFT)"),
+        ("transient.amp_be_fund", "V", "Base-emitter fundamental (FFT)"),
+        ("transient.thd", "%", "THD at the output"),
+        ("transient.t_startup_90", "s", "Startup to 90 % of the final amplitude"),
+        ("transient.VE_shift", "V", "Shift of the average emitter voltage"),
+        ("transient.squegging", "yesno", "Squegging seen"),
+        ("transient.settled", "yesno", "Envelope settled"),
+        ("transient.cycles_run", "", "Cycles run"),
+        ("transient.bias_time_constant", "s", "Longest bias time constant"),
+    )
+)
+#: Names of the harmonics in ``transient.harmonics_dBc`` (2nd, 3rd, ...).
+ORDINALS: Final = ("2nd", "3rd", "4th", "5th", "6th", "7th", "8th", "9th")
+
+
+#: Unit of each parameter a threshold can be sought on (the "param" unit).
+PARAM_UNITS: Final = {
+    "Vcc": "V", "RB1": "Ω", "RB2": "Ω", "RC": "Ω", "RE": "Ω", "R_load": "Ω",
+    "CE": "F", "CB": "F", "C1": "F", "C2": "F", "C3": "F", "Cc1": "F", "Cc2": "F",
+    "L": "H", "Q_L": "", "L_ch": "H", "Q_ch": "", "f_ch": "Hz",
+    "beta": "", "IS": "A", "VA": "V", "fT": "Hz", "C_mu": "F",
+    "F_dB": "dB", "f_corner": "Hz", "V_cap": "V", "temperature_C": "°C",
+}  # fmt: skip
+
+
+def lookup(result: Mapping[str, Any], path: str) -> Any:
+    """The value at a dotted path of the result (``None`` where the result has none);
+    a numeric part indexes a list (``stability.phase_noise.0.dBc_Hz``)."""
+    value: Any = result
+    for key in path.split("."):
+        if isinstance(value, list) and key.isdigit() and int(key) < len(value):
+            value = value[int(key)]
+        elif isinstance(value, Mapping) and key in value:
+            value = value[key]
+        else:
+            return None
+    return value
+
+
+def format_value(value: Any, unit: str) -> str:
+    """Display text of a figure in one of the units above ("—" for a missing value).
+
+    Quantities get SI prefixes (:func:`ringwise.units.format_si`), plain ratios
+    and decibels four significant digits.
+    """
+    if unit == "text":
+        return "—" if value is None else str(value)
+    if unit in ("yesno", "valid"):
+        return "—" if value is None else ("yes" if value else "no")
+    if value is None:
+        return "—"
+    if unit == "%":
+        return f"{100.0 * value:.3g} %"
+    if unit in ("", "dB"):
+        text = f"{value:.4g}"
+        return f"{text} dB" if unit == "dB" else text
+    return format_si(value, unit)
+
+
+def unit_of(figure_unit: str, result: Mapping[str, Any]) -> str:
+    """The concrete unit of a figure (``"param"`` resolved through the result)."""
+    if figure_unit == "param":
+        return PARAM_UNITS.get(lookup(result, "startup.threshold_param") or "", "")
+    return figure_unit
+
+
+def table(result: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """The analysis as rows of the shown figures, panel by panel:
+    ``{"panel", "path", "label", "unit", "value", "text"}`` (the command line's table)."""
+    titles = dict(PANELS)
+    rows = []
+    for key, _title in PANELS:
+        for fig in SHOWN:
+            if fig.panel != key:
+                continue
+            value = lookup(result, fig.path)
+            unit = unit_of(fig.unit, result)
+            rows.append(
+                {
+                    "panel": titles[key],
+                    "path": fig.path,
+                    "label": fig.label,
+                    "unit": unit,
+                    "value": value,
+                    "text": format_value(value, unit),
+                }
+            )
+    return rows
