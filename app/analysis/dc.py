@@ -29,7 +29,6 @@ from ringwise.analysis.criteria import Region, region_of
 from ringwise.circuit.mna import (
     LinearSystem,
     Reduced,
-    device_currents,
     incidence_of,
     reduce_to_controls,
 )
@@ -320,9 +319,13 @@ def operating_point(
     system: LinearSystem, x: np.ndarray, params: NPNParams | None = None
 ) -> OperatingPoint:
     """Describe the (single) transistor's operating point in solution ``x`` (n,)."""
-    d = device_currents(incidence_of(system), x, params or system.devices[0].params)
-    st = JunctionState(*(float(v) for v in d.junction))
-    return operating_point_from(system, x, st, float(d.vbe), float(d.vce))
+    p = params or system.devices[0].params
+    inc = incidence_of(system)
+    vbe, vce = float(x @ inc.W_BE), float(x @ inc.W_CE)
+    # Float arithmetic (the transport model for one transistor): an absurd
+    # trial device overflows to inf quietly, as a single number should.
+    st = junction_currents(vbe, vce, p.IS, p.beta, p.beta_R, p.VA, p.VT)
+    return operating_point_from(system, x, st, vbe, vce)
 
 
 def operating_point_from(

@@ -296,9 +296,11 @@ def device_currents(inc: Incidence, x: np.ndarray, params: NPNParams) -> DeviceC
     """
     vbe = x @ inc.W_BE
     vce = x @ inc.W_CE
-    q = junction_currents(
-        vbe, vce, params.IS, params.beta, params.beta_R, params.VA, params.VT, exp_and_slope_array
-    )
+    with np.errstate(over="ignore", invalid="ignore"):  # a runaway trial is inf, not an error
+        q = junction_currents(
+            vbe, vce, params.IS, params.beta, params.beta_R, params.VA, params.VT,
+            exp_and_slope_array,
+        )  # fmt: skip
     current = q.IC[..., None] * inc.P_C + q.IB[..., None] * inc.P_B
     jacobian = (
         _scaled(q.dIC_dvbe, inc.C_BE)
