@@ -28,6 +28,8 @@ MAX_LINE: Final = 300
 #: Most problem lines printed for one file.
 MAX_PROBLEMS: Final = 12
 STDIN: Final = "-"
+#: The progress bar: what runs, percent done, the bar, time spent and left.
+BAR_FORMAT: Final = "{desc}: {percentage:3.0f}% |{bar}| {elapsed} < {remaining}"
 
 
 def clip(text: str, limit: int = MAX_ECHO) -> str:
@@ -172,7 +174,7 @@ def progress(total: float, what: str) -> tuple[Callable[[float], bool], Callable
         return (lambda _fraction: True), (lambda: None)
     from tqdm import tqdm
 
-    bar = tqdm(total=total, desc=what, unit="", file=sys.stderr, leave=False)
+    bar = tqdm(total=total, desc=what, file=sys.stderr, leave=False, bar_format=BAR_FORMAT)
 
     def report(fraction: float) -> bool:
         bar.update(max(0.0, fraction * total - bar.n))

@@ -109,3 +109,34 @@ def temperature_table(result: Mapping[str, Any]) -> Table:
     keys = (("T_C", "T [°C]"), ("p5", "f_osc p5 [Hz]"), ("p50", "f_osc p50 [Hz]"))
     keys += (("p95", "f_osc p95 [Hz]"),)
     return [h for _, h in keys], [[r[k] for r in rows] for k, _ in keys]
+
+
+def loop_table(loop: Mapping[str, Any]) -> Table:
+    """The loop-gain curve the sheet plots (``curves.loop_curve``)."""
+    return (
+        ["f [Hz]", "|T|", "phase [deg]"],
+        [list(loop["f"]), list(loop["magnitude"]), list(loop["phase_deg"])],
+    )
+
+
+def what_if_table(sweep: Mapping[str, Any]) -> Table:
+    """The sheet's what-if sweep (``curves.what_if``)."""
+    unit = sweep.get("unit") or "SI"
+    return (
+        [f"{sweep['param']} [{unit}]", "f_osc [Hz]", "loop gain"],
+        [list(sweep["values"]), list(sweep["f_osc"]), list(sweep["gain"])],
+    )
+
+
+def reactance_table(reactance: Mapping[str, Any]) -> Table:
+    """The tank parts' reactances the sheet plots (``curves.reactance_curves``)."""
+    lines = reactance["lines"]
+    return (
+        ["f [Hz]", *(f"X_{line['part']} [Ω]" for line in lines)],
+        [list(reactance["f"]), *(list(line["X"]) for line in lines)],
+    )
+
+
+def noise_table(noise: Mapping[str, Any]) -> Table:
+    """The phase-noise curve the sheet plots (``curves.noise_curve``)."""
+    return ["offset [Hz]", "L(f) [dBc/Hz]"], [list(noise["offset"]), list(noise["dBc_Hz"])]

@@ -106,6 +106,15 @@ function updateLinks(texts) {
   $(SEL.share).value = `${location.origin}/?${q}`;
   $(SEL.exportLink).href = `/api/export?${q}`;
   $(SEL.summaryLink).href = `/summary?${q}`;
+  csvLinks(q);
+}
+
+// CSV downloads: each plot's data for the design in the link (the server writes the file).
+function csvLinks(q) {
+  for (const a of $$("a[data-csv]")) {
+    const sweep = a.dataset.csv === "sweep" && $(SEL.sweepParam).value ? `&sweep_param=${encodeURIComponent($(SEL.sweepParam).value)}` : "";
+    a.href = `/api/csv/sheet/${a.dataset.csv}?${q}${sweep}`;
+  }
 }
 
 function setField(name, text) {
@@ -627,7 +636,12 @@ async function poll(seq) {
     run.timer = setTimeout(() => poll(seq), config.run.poll_ms);
     return;
   }
+  const done = run.id;
   run.id = null;
+  for (const a of $$("a[data-run-csv]")) {
+    a.hidden = job.state !== "done";
+    a.href = `${API.jobs}/${encodeURIComponent(done)}/csv/${a.dataset.runCsv}`;
+  }
   if (job.state === "done") {
     renderRun(job.view);
     runState("done", "Finished");
@@ -804,6 +818,9 @@ async function runSpread() {
   rows($("[data-role='spread-worst']", p), a.worst_rows, ["sample", "T_C", "gain", "f_osc"], a.shown);
   tools.spread.answer = a;
   toolDone("spread", a.query);
+  const samplesCsv = $("a[data-spread-csv]");
+  samplesCsv.href = `/api/csv/spread?${a.query}&samples=${a.shown["spread.samples"].value}&seed=${a.shown["spread.seed"].value}`;
+  samplesCsv.hidden = false;
   toolState("spread", "done", `Done: ${a.shown["spread.samples"].text} samples`);
   plotHist(SEL.plots.fHist, a.curves.f_hist, "f_osc (Hz)", a.curves.f_hist.window || [], "Hz");
   plotHist(SEL.plots.gainHist, a.curves.gain_hist, "loop gain", [1, a.curves.gain_hist.margin], "");
@@ -1017,6 +1034,7 @@ function start() {
     e.preventDefault();
     recompute();
   });
+  $(SEL.sweepParam).addEventListener("change", () => csvLinks(query(formTexts())));
   $(SEL.sweepParam).addEventListener("change", () => state.view?.ok && requestSweep(formTexts(), { ...state.view, sweep_param: $(SEL.sweepParam).value }, performance.now()));
   $(SEL.copy).addEventListener("click", copyLink);
   $(SEL.run.start).addEventListener("click", startRun);

@@ -4,13 +4,18 @@ from __future__ import annotations
 
 import argparse
 import csv
+import fcntl
 import io
 import json
 import math
+import os
+import pty
 import re
 import signal
+import struct
 import subprocess
 import sys
+import termios
 import time
 from pathlib import Path
 
@@ -183,14 +188,44 @@ def test_stdin_equals_the_file() -> None:
     assert from_stdin.stdout == from_file.stdout
 
 
-def test_a_byte_order_mark_is_accepted_as_by_the_api(client_free_bom: bytes) -> None:
-    done = _cli("analyze", "-", stdin=client_free_bom)
+def test_a_byte_order_mark_is_accepted_by_both_cli_and_api() -> None:
+    from fastapi.testclient import TestClient
+
+    from ringwise.web.server import create_app
+
+    with_bom = b"\xef\xbb\xbf" + sample_paths()[0].read_bytes()
+    done = _cli("analyze", "-", stdin=with_bom)
     assert done.returncode == 0, done.stderr
+    with TestClient(create_app()) as client:
+        answer = client.post(
+            "/api/analyze", content=with_bom, headers={"content-type": "application/json"}
+        )
+    assert answer.status_code == 200
+    assert answer.json() == json.loads(done.stdout)
 
 
-@pytest.fixture
-def client_free_bom() -> bytes:
-    return b"\xef\xbb\xbf" + sample_paths()[0].read_bytes()
+def test_progress_bar_only_on_a_terminal() -> None:
+    argv = ["simulate", str(sample_paths()[0]), "--cycles", "200"]
+    piped = _cli(*argv)
+    assert piped.returncode == 0 and piped.stderr == b""  # silent when not a terminal
+    main_fd, tty_fd = pty.openpty()
+    # a new pseudo-terminal is 0 columns wide (tqdm draws nothing in that); make it 100x30
+    fcntl.ioctl(tty_fd, termios.TIOCSWINSZ, struct.pack("HHHH", 30, 100, 0, 0))
+    proc = subprocess.Popen([*RINGWISE, *argv], stdout=subprocess.PIPE, stderr=tty_fd)
+    os.close(tty_fd)  # the child holds the terminal now; read what it draws as it runs
+    seen = b""
+    try:
+        while chunk := os.read(main_fd, 4096):
+            seen += chunk
+    except OSError:  # EIO: the child closed its end of the terminal
+        pass
+    finally:
+        os.close(main_fd)
+    out, _ = proc.communicate(timeout=300)
+    done = subprocess.CompletedProcess(proc.args, proc.returncode, out, None)
+    assert done.returncode == 0
+    assert b"simulate" in seen and b"%" in seen  # tqdm's bar, on stderr
+    assert json.loads(done.stdout)["format"] == "ringwise.simulation"
 
 
 def test_a_closed_pipe_ends_quietly() -> None:

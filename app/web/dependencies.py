@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from fastapi import Request
+from fastapi import Request, Response
 
 from ringwise.web.errors import ApiError
 from ringwise.web.fields import BY_NAME, FIELDS, from_query
@@ -47,3 +47,12 @@ def form_texts(fields: dict[str, str]) -> dict[str, str]:
             ],
         )
     return {f.name: fields.get(f.name, "") for f in FIELDS}
+
+
+def csv_response(text: str, filename: str) -> Response:
+    """A CSV answer (RFC 4180, UTF-8) the browser saves as ``filename``."""
+    return Response(
+        text,
+        media_type="text/csv; charset=utf-8",
+        headers={"Content-Disposition": f'attachment; filename="{filename}"'},
+    )

@@ -20,7 +20,7 @@ from ringwise.web import apidocs, errors
 from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
 from ringwise.web.fields import texts_from_document
 from ringwise.web.paths import STATIC_DIR
-from ringwise.web.routers import api, pages, simulate, spread, tools
+from ringwise.web.routers import api, downloads, pages, simulate, spread, tools
 from ringwise.web.samples import DEFAULT_SAMPLE, OPENED_DESIGN, samples
 from ringwise.web.schemas import ErrorOut
 
@@ -196,6 +196,7 @@ def create_app(
     app.include_router(tools.router)
     app.include_router(simulate.router)
     app.include_router(spread.router)
+    app.include_router(downloads.router)
     app.include_router(pages.router)
     app.mount("/static", AssetFiles(directory=STATIC_DIR), name="static")
     apidocs.install(app)

@@ -29,7 +29,7 @@ import time
 from dataclasses import dataclass, field
 from typing import Annotated, Any, Final, Literal
 
-from fastapi import APIRouter, Query, Request
+from fastapi import APIRouter, Query, Request, Response
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict, Field
 
@@ -41,7 +41,9 @@ from ringwise.analysis.transient import (
     simulate,
 )
 from ringwise.design import Design
+from ringwise.exports import columns_csv, result_series
 from ringwise.result import SimulationResult
+from ringwise.web.dependencies import csv_response
 from ringwise.web.errors import ApiError, error_body, invalid
 from ringwise.web.view import run_view
 
@@ -290,6 +292,18 @@ def get_job(
 def delete_job(job_id: str, request: Request) -> JSONResponse:
     """Cancel a running job (the solver stops at its next progress report)."""
     return JSONResponse(jobs_of(request).cancel(_checked(job_id)).out())
+
+
+@router.get("/simulate/jobs/{job_id}/csv/{series}", responses=JOB_ERRORS, response_class=Response)
+def get_job_csv(
+    job_id: str, series: Literal["waveform", "envelope", "spectrum"], request: Request
+) -> Response:
+    """A finished run's waveform, envelope or spectrum as CSV (SI units)."""
+    job = jobs_of(request).get(_checked(job_id))
+    if job.state != "done" or job.result is None:
+        raise ApiError(409, f"the job is {job.state}; its curves exist once it is done")
+    header, cols = result_series(job.result, series)
+    return csv_response(columns_csv(header, cols), f"ringwise-run-{series}.csv")
 
 
 def _checked(job_id: str) -> str:
