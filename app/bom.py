@@ -36,6 +36,7 @@ from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.stability import RATING_FRACTION
 from ringwise.circuit.netlist import Capacitor, Inductor, Resistor
+from ringwise.circuit.topologies import CHOKE
 from ringwise.design import CAPACITOR_PARTS, PARAMETERS, Design, get_param
 from ringwise.preferred import (
     CAPACITORS,
@@ -55,6 +56,10 @@ RESISTOR_POWER_RATING: Final = 0.25
 SUGGESTED_SERIES: Final = {"R": "E24", "C": "E24", "L": INDUCTOR_SERIES_LIMIT}
 DIELECTRIC_CLASS: Final = {"C0G": "class 1 (C0G)", "X7R": "class 2 (X7R)"}
 UNITS: Final = {"R": "Ω", "C": "F", "L": "H"}
+#: The coils listed: the tank's and the collector feed's RF choke.
+COILS: Final = (*INDUCTORS, "L_ch")
+#: Design parameter -> element name in the netlist, where they differ.
+ELEMENT: Final = {"L_ch": CHOKE}
 KINDS: Final = {"R": "resistor", "C": "capacitor", "L": "inductor"}
 LETTERS: Final = {kind: letter for letter, kind in KINDS.items()}
 
@@ -153,16 +158,16 @@ def bill_of_materials(design: Design, document: Any = None) -> list[BomLine]:
     unused = design.unused_parts()
     tol = design.tolerances
     lines = []
-    for part in (*RESISTORS, *CAPACITORS, *INDUCTORS):
+    for part in (*RESISTORS, *CAPACITORS, *COILS):
         value = get_param(design, part)
         if value is None or part in unused:
             continue
-        letter = "L" if part in INDUCTORS else "C" if part in CAPACITORS else "R"
+        letter = "L" if part in COILS else "C" if part in CAPACITORS else "R"
         series = series_of(value)
         if letter == "L" and series not in (None, "E6", "E12"):
             series = None  # coils are stocked in E12 at most
         standard = value if series else nearest(value, SUGGESTED_SERIES[letter])
-        V_peak, P = stress.get(part, (None, None))
+        V_peak, P = stress.get(ELEMENT.get(part, part), (None, None))
         notes = []
         if series is None:
             notes.append("not a standard value")

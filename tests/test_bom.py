@@ -86,3 +86,11 @@ def test_bom_csv_parses_back_to_the_json(capsys) -> None:
     for row, rec in zip(rows, records, strict=True):
         assert float(row["value"]) == rec["value"]
         assert float(row["V_peak"]) == rec["V_peak"]
+
+
+def test_a_choke_fed_collector_lists_the_choke_not_rc() -> None:
+    design = design_from(BASE_CE, bias__feed="choke", bias__L_ch="1m", bias__Q_ch=40)
+    lines = {line.reference: line for line in bill_of_materials(design)}
+    assert "RC" not in lines
+    assert lines["L_ch"].kind == "inductor" and lines["L_ch"].series == "E6"  # 1.0 (IEC 60063)
+    assert lines["L_ch"].V_peak is not None and lines["L_ch"].V_peak > 0

@@ -11,6 +11,7 @@ import math
 import os
 import pty
 import re
+import select
 import signal
 import struct
 import subprocess
@@ -208,24 +209,15 @@ def test_progress_bar_only_on_a_terminal() -> None:
     argv = ["simulate", str(sample_paths()[0]), "--cycles", "200"]
     piped = _cli(*argv)
     assert piped.returncode == 0 and piped.stderr == b""  # silent when not a terminal
-    main_fd, tty_fd = pty.openpty()
-    # a new pseudo-terminal is 0 columns wide (tqdm draws nothing in that); make it 100x30
-    fcntl.ioctl(tty_fd, termios.TIOCSWINSZ, struct.pack("HHHH", 30, 100, 0, 0))
-    proc = subprocess.Popen([*RINGWISE, *argv], stdout=subprocess.PIPE, stderr=tty_fd)
-    os.close(tty_fd)  # the child holds the terminal now; read what it draws as it runs
-    seen = b""
+    proc, main_fd = _on_a_terminal(argv)
     try:
-        while chunk := os.read(main_fd, 4096):
-            seen += chunk
-    except OSError:  # EIO: the child closed its end of the terminal
-        pass
+        seen = _read_terminal(main_fd)
     finally:
         os.close(main_fd)
     out, _ = proc.communicate(timeout=300)
-    done = subprocess.CompletedProcess(proc.args, proc.returncode, out, None)
-    assert done.returncode == 0
+    assert proc.returncode == 0
     assert b"simulate" in seen and b"%" in seen  # tqdm's bar, on stderr
-    assert json.loads(done.stdout)["format"] == "ringwise.simulation"
+    assert json.loads(out)["format"] == "ringwise.simulation"
 
 
 def test_a_closed_pipe_ends_quietly() -> None:
@@ -244,17 +236,47 @@ def test_a_closed_pipe_ends_quietly() -> None:
     assert b"Traceback" not in err and err == b""
 
 
+def _on_a_terminal(argv: list[str]) -> tuple[subprocess.Popen, int]:
+    """The CLI with its standard error on a pseudo-terminal; returns it and the
+    terminal's reading end."""
+    main_fd, tty_fd = pty.openpty()
+    # a new pseudo-terminal is 0 columns wide (tqdm draws nothing in that); make it 100x30
+    fcntl.ioctl(tty_fd, termios.TIOCSWINSZ, struct.pack("HHHH", 30, 100, 0, 0))
+    proc = subprocess.Popen([*RINGWISE, *argv], stdout=subprocess.PIPE, stderr=tty_fd)
+    os.close(tty_fd)  # the child holds the terminal now
+    return proc, main_fd
+
+
+def _read_terminal(main_fd: int, until: bytes | None = None, timeout: float = 300) -> bytes:
+    """What the child drew, until ``until`` appears or it closes the terminal."""
+    seen = b""
+    deadline = time.monotonic() + timeout
+    while until is None or until not in seen:
+        ready, _, _ = select.select([main_fd], [], [], max(0.0, deadline - time.monotonic()))
+        if not ready:
+            break
+        try:
+            chunk = os.read(main_fd, 4096)
+        except OSError:  # EIO: the child closed its end of the terminal
+            break
+        if not chunk:
+            break
+        seen += chunk
+    return seen
+
+
 def test_ctrl_c_ends_quietly() -> None:
-    proc = subprocess.Popen(
-        [*RINGWISE, "simulate", str(sample_paths()[0]), "--cycles", "20000"],
-        stdout=subprocess.PIPE,
-        stderr=subprocess.PIPE,
-    )
-    time.sleep(3)  # well into the run (or still importing: both must end quietly)
-    proc.send_signal(signal.SIGINT)
-    out, err = proc.communicate(timeout=120)
+    proc, main_fd = _on_a_terminal(["simulate", str(sample_paths()[0]), "--cycles", "20000"])
+    try:
+        started = _read_terminal(main_fd, until=b"simulate")
+        assert b"simulate" in started  # the run is under way (its progress bar shows)
+        proc.send_signal(signal.SIGINT)
+        rest = _read_terminal(main_fd)
+    finally:
+        os.close(main_fd)
+    out, _ = proc.communicate(timeout=120)
     assert proc.returncode == 128 + signal.SIGINT
-    assert b"Traceback" not in err and out == b""
+    assert b"Traceback" not in started + rest and out == b""
 
 
 @pytest.mark.parametrize(
