@@ -137,26 +137,69 @@ class WarningOut(_Out):
     message: str
 
 
-class SwingOut(_Out):
-    V_be: Num = Field(description="Base-emitter fundamental amplitude, V (fixed-bias estimate)")
-    V_ce: Num = Field(
-        description="Collector-emitter fundamental amplitude, V (fixed-bias estimate)"
+class MultiplierOut(_Out):
+    re: Num = Field(description="Real part of a Floquet multiplier")
+    im: Num = Field(description="Imaginary part of a Floquet multiplier")
+
+
+class PeriodOut(_Out):
+    t: list[Num] = Field(description="Time over one period, s")
+    v_out: list[Num] = Field(description="Output tank node voltage, V")
+    v_be: list[Num] = Field(description="Base-emitter voltage, V")
+    v_ce: list[Num] = Field(description="Collector-emitter voltage, V")
+    i_L: list[Num] = Field(description="Coil current, A")
+
+
+class SteadyStateOut(_Out):
+    behaviour: Literal["settles", "squegs", "period-doubling", "unstable", "no-orbit"] = Field(
+        description="What the Floquet multipliers of the periodic orbit say it does"
     )
-
-
-class LargeSignalOut(_Out):
-    x: Num = Field(description="Base-emitter fundamental amplitude over V_T")
-    amp_be: Num = Field(description="Base-emitter fundamental amplitude, V")
+    reason: str | None = Field(description="Why there is no orbit, when there is none")
+    f: Num = Field(description="Oscillation frequency of the periodic steady state, Hz")
     amp_out: Num = Field(description="Fundamental amplitude at the output tank node, V")
+    amp_be: Num = Field(description="Base-emitter fundamental amplitude, V")
     amp_ce: Num = Field(description="Collector-emitter fundamental amplitude, V")
-    IC_avg: Num = Field(description="Average collector current with the drive applied, A")
-    VBE_avg: Num = Field(description="Average base-emitter voltage with the drive applied, V")
-    f: Num = Field(description="Oscillation frequency at that amplitude, Hz")
-    P_tank: Num = Field(description="Signal power dissipated in the coil loss, W")
-    x_fixed_bias: Num = Field(description="Drive the fixed-bias shortcut would give, V/V_T")
+    thd: Num = Field(description="Total harmonic distortion at the output node (ratio)")
+    harmonics_dBc: list[Num] = Field(description="2nd … 7th harmonic at the output node, dBc")
+    IC_avg: Num = Field(description="Average collector current over the period, A")
+    VE_avg: Num = Field(description="Average emitter voltage over the period, V")
+    VE_shift: Num = Field(description="Average emitter voltage minus its DC value, V")
+    VCE_min: Num = Field(description="Lowest collector-emitter voltage over the period, V")
+    P_tank: Num = Field(description="Power dissipated in the coil's loss, W")
+    P_load: Num = Field(description="Power delivered to the load resistor, W")
+    P_in: Num = Field(description="DC input power from the supply, W")
+    efficiency: Num = Field(description="(coil loss + load power) / DC input power")
+    multipliers: list[MultiplierOut] = Field(
+        description="Non-trivial Floquet multipliers, largest magnitude first"
+    )
+    trivial_multiplier: MultiplierOut | None = Field(
+        description="The multiplier along the orbit (1 to round-off)"
+    )
+    settle_cycles: Num = Field(
+        description="Periods for a deviation to fall to 1 % (from the largest multiplier)"
+    )
+    steps: int = Field(description="Equal time steps per period of the orbit")
     output_node: str
-    valid: bool
-    reason: str | None
+    period: PeriodOut
+
+
+class VerdictOut(_Out):
+    code: Literal[
+        "settles-cleanly",
+        "settles-with-warnings",
+        "saturates",
+        "marginal",
+        "squegs",
+        "period-doubles",
+        "unstable",
+        "unresolved",
+        "wont-start",
+        "pending",
+    ] = Field(description="Start and large-signal health in one word")
+    label: str = Field(description="The verdict in words")
+    icon: Literal["ok", "caution", "stop", "pending"] = Field(
+        description="The symbol the sheet shows beside the words"
+    )
 
 
 class NoisePointOut(_Out):
@@ -172,8 +215,8 @@ class NoiseCurveOut(_Out):
 class PartStressOut(_Out):
     part: str
     I_rms: Num = Field(description="RMS signal current, A")
-    V_peak: Num = Field(description="Peak voltage, DC plus signal amplitude, V")
-    P: Num = Field(description="Dissipated signal power, W")
+    V_peak: Num = Field(description="Peak voltage across it, DC plus signal, V")
+    P: Num = Field(description="Average dissipated power, W")
 
 
 class StabilityOut(_Out):
@@ -201,8 +244,10 @@ class Result(_Out):
     loop: LoopOut
     poles: PolesOut
     startup: StartupOut
-    swing: SwingOut
-    large_signal: LargeSignalOut
+    steady_state: SteadyStateOut | None = Field(
+        description="Periodic steady state (null on the sheet's first, small-signal answer)"
+    )
+    verdict: VerdictOut
     stability: StabilityOut
     warnings: list[WarningOut]
 

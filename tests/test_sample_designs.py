@@ -28,6 +28,7 @@ def test_sample_starts_with_margin(path) -> None:
     # Advice about the load pulling the frequency is expected where a load is
     # given; nothing else may be flagged.
     assert {w.code for w in r.warnings} <= {"load-pulling"}
-    assert r.large_signal.valid and r.large_signal.amp_out > 0
+    assert r.steady_state.behaviour == "settles" and r.steady_state.amp_out > 0
+    assert r.verdict.code == "settles-cleanly" and r.verdict.icon == "ok"
     data = json.loads(r.model_dump_json())
     assert all_finite(data)

@@ -6,35 +6,38 @@ import functools
 from typing import Final
 
 from ringwise.analysis.budget import loop_budget
-from ringwise.analysis.checks import Finding, choke_checks, rule_checks, squegging_risk
-from ringwise.analysis.describing import describing_function
-from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.checks import Finding, choke_checks, rule_checks, steady_checks
+from ringwise.analysis.operating import solve
+from ringwise.analysis.periodic import SteadyState, steady_state
 from ringwise.analysis.poles import natural_frequencies
 from ringwise.analysis.stability import stability
-from ringwise.analysis.startup import fixed_bias_drive, gm_ratio, verdict
+from ringwise.analysis.startup import verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
 from ringwise.analysis.threshold import find_threshold
-from ringwise.circuit.topologies import OUTPUT_NODE_LABEL, gain_setter, hand_formula
+from ringwise.analysis.verdict import combined_verdict
+from ringwise.circuit.topologies import OUTPUT_NODE_LABEL, T1, gain_setter, hand_formula
 from ringwise.design import Design
 from ringwise.result import (
     BudgetLineOut,
     GainStoryOut,
-    LargeSignalOut,
     LoopOut,
     LossOut,
+    MultiplierOut,
     NoiseCurveOut,
     NoisePointOut,
     OperatingPointOut,
     PartStressOut,
+    PeriodOut,
     PoleOut,
     PolesOut,
     Result,
     SmallSignalOut,
     StabilityOut,
     StartupOut,
-    SwingOut,
+    SteadyStateOut,
     TankOut,
+    VerdictOut,
     WarningOut,
 )
 
@@ -43,13 +46,16 @@ from ringwise.result import (
 CACHE_SIZE: Final = 256
 
 
-def analyze(design: Design) -> Result:
-    """Operating point, loop, poles, budget, threshold, verdict and warnings.
+def analyze(design: Design, large_signal: bool = True) -> Result:
+    """Operating point, loop, poles, budget, threshold, steady state, verdict and warnings.
 
-    The analysis is a pure function of the design, so results are remembered
-    for the last ``CACHE_SIZE`` designs; each caller gets its own copy.
+    ``large_signal=False`` leaves out the periodic steady state and what
+    depends on it (the sheet's first answer: the small-signal verdict at
+    once, the rest on a second request).  The analysis is a pure function of
+    the design, so results are remembered for the last ``CACHE_SIZE``
+    designs; each caller gets its own copy.
     """
-    return _analyze_json(design.model_dump_json()).model_copy(deep=True)
+    return _analyze_json(design.model_dump_json(), large_signal).model_copy(deep=True)
 
 
 def forget() -> None:
@@ -58,11 +64,11 @@ def forget() -> None:
 
 
 @functools.lru_cache(maxsize=CACHE_SIZE)
-def _analyze_json(design_json: str) -> Result:
-    return _analyze(Design.model_validate_json(design_json))
+def _analyze_json(design_json: str, large_signal: bool) -> Result:
+    return _analyze(Design.model_validate_json(design_json), large_signal)
 
 
-def _analyze(design: Design) -> Result:
+def _analyze(design: Design, large_signal: bool = True) -> Result:
     s = solve(design)
     op, hp = s.op, s.hybrid
     f_osc = s.f_osc
@@ -72,15 +78,13 @@ def _analyze(design: Design) -> Result:
     poles = natural_frequencies(s.ss, s.tank.f_ideal, f_osc)
     threshold = find_threshold(design, setter, start=s)
     v = verdict(gain, op)
-    V_be, V_ce = _fixed_bias_swing(s, gain)
-    findings = rule_checks(s, budget, poles, V_ce)
+    findings = rule_checks(s, budget, poles)
     findings += tank_checks(s, budget)
     findings += choke_checks(s)
-    ls = describing_function(s)
-    findings += squegging_risk(s, poles)
-    if not ls.valid and ls.x is not None and ls.reason:
-        findings.append(Finding("amplitude-estimate", ls.reason))
-    st = stability(s, ls)
+    ss = steady_state(s) if large_signal else None
+    if ss is not None:
+        findings += steady_checks(s, ss)
+    st = stability(s, ss)
     findings += [Finding(code, message) for code, message in st.notes]
     if threshold.value is None and threshold.reason:
         findings.append(Finding("no-threshold", threshold.reason))
@@ -144,21 +148,8 @@ def _analyze(design: Design) -> Result:
             threshold_value=threshold.value,
             threshold_RC=threshold.value if setter == "RC" else None,
         ),
-        swing=SwingOut(V_be=V_be, V_ce=V_ce),
-        large_signal=LargeSignalOut(
-            x=ls.x,
-            amp_be=ls.amp_be,
-            amp_out=ls.amp_out,
-            amp_ce=ls.amp_ce,
-            IC_avg=ls.IC_avg,
-            VBE_avg=ls.VBE_avg,
-            f=ls.f,
-            P_tank=ls.P_tank,
-            x_fixed_bias=ls.x_fixed_bias,
-            output_node=OUTPUT_NODE_LABEL[design.topology],
-            valid=ls.valid,
-            reason=ls.reason,
-        ),
+        steady_state=None if ss is None else steady_out(ss, OUTPUT_NODE_LABEL[design.topology]),
+        verdict=VerdictOut(**vars(combined_verdict(v, ss, [f.code for f in findings]))),
         stability=StabilityOut(
             Q_loaded=st.Q_loaded,
             P_signal=st.P_signal,
@@ -176,14 +167,44 @@ def _analyze(design: Design) -> Result:
     )
 
 
-def _fixed_bias_swing(s: Solved, gain: float | None) -> tuple[float | None, float | None]:
-    """Fundamental amplitudes at v_be and v_ce with the bias current held fixed."""
-    if gain is None:
-        return None, None
-    x = fixed_bias_drive(gain)
-    if x is None:
-        return None, None
-    V_be = x * s.VT
-    # fundamental collector current G_m·V_be drives Z_out
-    V_ce = s.hybrid.gm * gm_ratio(x) * V_be * float(s.loop.Z_out)
-    return V_be, V_ce
+def _multiplier(z: complex) -> MultiplierOut:
+    return MultiplierOut(re=z.real, im=z.imag)
+
+
+def steady_out(ss: SteadyState, output_node: str) -> SteadyStateOut:
+    """The steady state as the result contract."""
+    w = ss.waveforms
+    orbit = ss.orbit
+    period = PeriodOut(
+        t=w.get("t", []),
+        v_out=w.get(T1, []),
+        v_be=w.get("v_be", []),
+        v_ce=w.get("v_ce", []),
+        i_L=w.get("i_L", []),
+    )
+    return SteadyStateOut(
+        behaviour=ss.behaviour,
+        reason=ss.reason,
+        f=ss.f,
+        amp_out=ss.amp_out,
+        amp_be=ss.amp_be,
+        amp_ce=ss.amp_ce,
+        thd=ss.thd,
+        harmonics_dBc=ss.harmonics_dBc,
+        IC_avg=ss.IC_avg,
+        VE_avg=ss.VE_avg,
+        VE_shift=ss.VE_shift,
+        VCE_min=ss.VCE_min,
+        P_tank=ss.P_tank,
+        P_load=ss.P_load,
+        P_in=ss.P_in,
+        efficiency=ss.efficiency,
+        multipliers=[_multiplier(z) for z in ss.multipliers],
+        trivial_multiplier=None
+        if ss.trivial_multiplier is None
+        else _multiplier(ss.trivial_multiplier),
+        settle_cycles=ss.settle_cycles,
+        steps=orbit.N if orbit is not None else 0,
+        output_node=output_node,
+        period=period,
+    )

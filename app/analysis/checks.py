@@ -7,13 +7,16 @@ except where noted.
 
 from __future__ import annotations
 
+import cmath
 import math
 from dataclasses import dataclass
 from typing import Final
 
+from ringwise.analysis import floquet
 from ringwise.analysis.budget import BudgetLine
 from ringwise.analysis.criteria import VCE_HEADROOM, Region
 from ringwise.analysis.operating import Solved
+from ringwise.analysis.periodic import SteadyState
 from ringwise.analysis.poles import PoleFigures
 from ringwise.circuit.topologies import CHOKE_SELF_C
 from ringwise.units import format_si
@@ -29,14 +32,8 @@ RATIO_BAND: Final = (0.1, 10.0)
 COUPLING_COST_DB: Final = 0.5
 #: ... or move f_osc by more than this fraction.
 COUPLING_SHIFT: Final = 0.002
-#: Extra RHP poles below f_osc / this are flagged as a squegging risk.
+#: Extra RHP poles below f_osc / this are called a low-frequency loop.
 SQUEGGING_RATIO: Final = 10.0
-#: Squegging risk from time constants: the bias network's time constant over
-#: the envelope's (1/σ) above this, with a loop gain above SQUEG_GAIN.  A
-#: heuristic, calibrated against the transient on a handful of designs of
-#: ours (common practice, no source): the transient is the judge.
-SQUEG_TAU_RATIO: Final = 100.0
-SQUEG_GAIN: Final = 6.0
 #: An RF choke whose self-resonance lies within this factor of f_osc (either
 #: side) resonates "near" it: its reactance swings from inductive to
 #: capacitive there (common practice, no source).
@@ -53,7 +50,6 @@ def rule_checks(
     solved: Solved,
     budget: list[BudgetLine],
     poles: PoleFigures,
-    V_ce_swing: float | None,
 ) -> list[Finding]:
     s, op = solved, solved.op
     out: list[Finding] = []
@@ -90,17 +86,6 @@ def rule_checks(
                 "point will follow β and temperature",
             )
         )
-    if V_ce_swing is not None and op.region is Region.ACTIVE:
-        floor = op.VCE - V_ce_swing
-        if floor < VCE_HEADROOM:
-            out.append(
-                Finding(
-                    "low-headroom",
-                    f"expected V_CE swing {format_si(V_ce_swing, 'V')} (amplitude) on "
-                    f"VCE = {format_si(op.VCE, 'V')} leaves {format_si(floor, 'V')} "
-                    f"(want ≥ {VCE_HEADROOM:g} V): the swing will run into saturation",
-                )
-            )
     if op.P_device > P_DEVICE_WARN:
         out.append(
             Finding(
@@ -161,8 +146,8 @@ def _pole_checks(s: Solved, poles: PoleFigures) -> list[Finding]:
     for p in poles.other_rhp:
         near_dc = f is not None and p.f < f / SQUEGGING_RATIO
         extra = (
-            ": a low-frequency loop through the coupling or bypass capacitors, "
-            "the usual cause of squegging (the envelope collapses and rebuilds)"
+            ": a low-frequency loop through the coupling or bypass capacitors; "
+            "the steady state's multipliers tell whether the envelope holds steady"
             if near_dc
             else ""
         )
@@ -185,32 +170,51 @@ def _pole_checks(s: Solved, poles: PoleFigures) -> list[Finding]:
     return out
 
 
-def squegging_risk(s: Solved, poles: PoleFigures) -> list[Finding]:
-    """Warn, from time constants and margin alone, that the bias network may squeg.
-
-    The amplitude is regulated by the bias capacitors charging from the
-    transistor's rectified current; when they are much slower than the
-    envelope grows (1/σ) and the margin is large, the regulation overshoots:
-    the transistor is starved, the oscillation dies and restarts.
-    """
-    from ringwise.analysis.transient import bias_time_constant
-
-    dom = poles.dominant
-    if dom is None or dom.sigma <= 0 or s.gain <= SQUEG_GAIN:
-        return []
-    tau = bias_time_constant(s.design)
-    ratio = tau * dom.sigma
-    if ratio <= SQUEG_TAU_RATIO:
-        return []
-    return [
-        Finding(
-            "squegging-risk",
-            f"the bias network's time constant ({format_si(tau, 's')}) is {ratio:.0f}× the "
-            f"envelope's growth time ({format_si(1 / dom.sigma, 's')}) at a loop gain of "
-            f"{s.gain:.3g}: the oscillation may die and restart (squegging); lower the "
-            "margin or the bypass/coupling time constants, and confirm with the transient",
+def steady_checks(s: Solved, ss: SteadyState) -> list[Finding]:
+    """Warnings from the periodic steady state: saturation at the bottom of the swing,
+    and an orbit that does not hold (from its Floquet multipliers)."""
+    out: list[Finding] = []
+    if ss.VCE_min is not None and ss.VCE_min < VCE_HEADROOM:
+        out.append(
+            Finding(
+                "low-headroom",
+                f"V_CE falls to {format_si(ss.VCE_min, 'V')} at the bottom of the swing "
+                f"(want ≥ {VCE_HEADROOM:g} V): the collector runs into saturation; lower the "
+                "loop gain or raise the DC V_CE",
+            )
         )
-    ]
+    worst = ss.multipliers[0] if ss.multipliers else None
+    if ss.behaviour == floquet.SQUEGS and worst is not None:
+        out.append(
+            Finding(
+                "squegging",
+                f"a pair of Floquet multipliers lies outside the unit circle (|μ| = "
+                f"{abs(worst):.4g}): the envelope swings about the steady amplitude every "
+                f"{2 * math.pi / abs(cmath.phase(worst)):.0f} periods and grows — it squegs; "
+                "lower the loop gain or the bias network's time constants",
+            )
+        )
+    elif ss.behaviour == floquet.PERIOD_DOUBLING and worst is not None:
+        out.append(
+            Finding(
+                "period-doubling",
+                f"a Floquet multiplier of {worst.real:.3g} (below −1): alternate cycles "
+                "differ and a line at f/2 appears; the figures are those of the unstable "
+                "period-one orbit — lower the loop gain or the drive into saturation",
+            )
+        )
+    elif ss.behaviour == floquet.UNSTABLE and worst is not None:
+        out.append(
+            Finding(
+                "unstable-orbit",
+                f"a Floquet multiplier of {worst.real:.4g} (above 1): the periodic orbit is "
+                "unstable and the circuit leaves it; run the time-domain simulation",
+            )
+        )
+    elif ss.behaviour == floquet.NO_ORBIT and s.f_osc is not None and s.gain > 1.0:
+        out.append(Finding("no-orbit", ss.reason or "no periodic orbit was found"))
+    return out
+
 
 
 def choke_checks(s: Solved) -> list[Finding]:

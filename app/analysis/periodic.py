@@ -334,6 +334,8 @@ def _figures(
     for name, idx in lay.node.items():
         waveforms[name] = X[:, idx].tolist()
     waveforms["i_L"] = X[:, lay.branch["L"]].tolist()
+    waveforms["v_be"] = v_be.tolist()
+    waveforms["v_ce"] = v_ce.tolist()
     return SteadyState(
         behaviour=fl.behaviour,
         reason=None,

@@ -32,8 +32,8 @@ from typing import Final
 import numpy as np
 from scipy.optimize import least_squares
 
-from ringwise.analysis.describing import describing_function
 from ringwise.analysis.operating import solve
+from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.threshold import find_threshold
 from ringwise.design import Design, get_param, with_param
 from ringwise.errors import DesignError
@@ -109,7 +109,7 @@ def _model(design: Design, threshold_param: str | None, want_amp: bool) -> dict[
             raise ReconcileError(f"the model has no threshold in {threshold_param}")
         out["threshold"] = th.value
     if want_amp:
-        amp = describing_function(s).amp_out
+        amp = steady_state(s).amp_out
         if amp is None:
             raise ReconcileError("the model has no steady amplitude at these values")
         out["amplitude"] = amp

@@ -10,14 +10,16 @@ Phase noise follows Leeson's single-sideband model,
 
 with :math:`Q_L` the loaded Q from the loop's phase slope, :math:`P_s` the
 signal power dissipated in the resonator's loss (the coil's series
-resistance, at the describing-function amplitude), F the device's effective
+resistance, in the periodic steady state), F the device's effective
 noise factor and f_c its flicker corner.  Forms of the formula that circulate
 differ by 6 dB through other definitions of P_s and of single- versus
 double-sideband noise; this is Leeson's original single-sideband form.
 
-Pushing is df/dVcc from two full solves at Vcc ± a step; pulling is the
-change of f_osc from an open output to the given load, and df/dR_load there;
-the five solves are one batch of the pipeline.
+Pushing is df/dVcc at full amplitude: the steady state's frequency at
+Vcc ± a step (each warm-started from the nominal orbit), or the small-signal
+f_osc when there is no steady state; pulling is the change of f_osc from an
+open output to the given load, and df/dR_load there; the small-signal
+solves are one batch of the pipeline.
 
 References
 ----------
@@ -27,17 +29,15 @@ Proc. IEEE 54(2), 1966 (from memory).
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Final
 
 import numpy as np
 from scipy import constants
 
-from ringwise.analysis.describing import LargeSignal
-from ringwise.analysis.operating import Solved
+from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.periodic import PartPower, SteadyState, steady_state
 from ringwise.analysis.pipeline import solve_designs
-from ringwise.circuit.netlist import Capacitor, Inductor
 from ringwise.design import Design, with_param
 
 #: Offsets reported and plotted, Hz.
@@ -56,14 +56,6 @@ RATING_FRACTION: Final = 0.8
 
 
 @dataclass(frozen=True)
-class PartStress:
-    part: str
-    I_rms: float
-    V_peak: float
-    P: float
-
-
-@dataclass(frozen=True)
 class Stability:
     Q_loaded: float | None
     P_signal: float | None
@@ -75,7 +67,7 @@ class Stability:
     pushing_Hz_per_V: float | None
     pulling_Hz: float | None
     pulling_Hz_per_ohm: float | None
-    parts: list[PartStress]
+    parts: list[PartPower]
     notes: list[tuple[str, str]]
 
 
@@ -90,6 +82,18 @@ def leeson(
     return 10.0 * np.log10(
         floor * (1.0 + (f0 / (2.0 * Q_loaded * df)) ** 2) * (1.0 + f_corner / df)
     )
+
+
+def pushing_at_amplitude(solved: Solved) -> float | None:
+    """df/dVcc, Hz/V, of the steady state's frequency (Vcc ± a step, warm-started)."""
+    Vcc = solved.design.supply.Vcc
+    dV = PUSH_STEP * Vcc
+    x0, f0 = solved.op.x, solved.f_osc
+    near = [solve(with_param(solved.design, "Vcc", Vcc + s * dV), x0, f0) for s in (1.0, -1.0)]
+    f = [steady_state(n).f for n in near]
+    if None in f:
+        return None
+    return (f[0] - f[1]) / (2.0 * dV)
 
 
 def _variants(solved: Solved) -> list[Design]:
@@ -128,35 +132,16 @@ def push_pull(solved: Solved) -> tuple[float | None, float | None, float | None]
     return push, shift, slope
 
 
-def part_stresses(solved: Solved, ls: LargeSignal) -> list[PartStress]:
-    """RMS current and voltage, peak voltage (DC + AC) and dissipation of each tank part."""
-    if ls.phasors is None or ls.x_avg is None:
-        return []
-    lay = solved.system.layout
-    ph, avg = ls.phasors, ls.x_avg
+def stability(solved: Solved, ss: SteadyState | None) -> Stability:
+    """All stability figures of a solved design with its periodic steady state.
 
-    def v(node: str, x: np.ndarray) -> complex:
-        return complex(x[lay.node[node]]) if node in lay.node else 0j
-
-    out = []
-    w = 2.0 * math.pi * (ls.f or 0.0)
-    for el in solved.netlist:
-        if isinstance(el, Inductor):
-            I_pk = abs(ph[lay.branch[el.name]])
-            V = abs(v(el.a, ph) - v(el.b, ph))
-            out.append(PartStress(el.name, I_pk / math.sqrt(2), V, 0.5 * I_pk**2 * el.R_s))
-        elif isinstance(el, Capacitor) and el.name in ("C1", "C2", "C3", "Cc1", "Cc2"):
-            V_ac = abs(v(el.a, ph) - v(el.b, ph))
-            V_dc = abs((v(el.a, avg) - v(el.b, avg)).real)
-            out.append(PartStress(el.name, w * el.C * V_ac / math.sqrt(2), V_dc + V_ac, 0.0))
-    return out
-
-
-def stability(solved: Solved, ls: LargeSignal) -> Stability:
-    """All stability figures of a solved design with its describing-function state."""
+    Without a steady state (``None``: the sheet's first answer) the figures
+    that need the amplitude (signal power, phase noise, part stresses) are
+    absent and pushing is the small-signal one.
+    """
     d = solved.design
     Q = float(solved.loop.Q_loaded) if solved.f_osc is not None else None
-    P_s = ls.P_tank
+    P_s = ss.P_tank if ss is not None else None
     T = d.temperature_C + constants.zero_Celsius
     pn: list[tuple[float, float]] = []
     curve: list[tuple[float, float]] = []
@@ -169,7 +154,9 @@ def stability(solved: Solved, ls: LargeSignal) -> Stability:
         grid = np.logspace(*PLOT_DECADES, PLOT_POINTS)
         curve = list(zip(grid.tolist(), leeson(grid, *args).tolist(), strict=True))
     push, shift, slope = push_pull(solved)
-    parts = part_stresses(solved, ls)
+    if ss is not None and ss.orbit is not None:
+        push = pushing_at_amplitude(solved)
+    parts = list(ss.parts) if ss is not None else []
     notes: list[tuple[str, str]] = []
     if shift is not None and solved.f_osc and abs(shift) / solved.f_osc * 1e6 > PULL_BUFFER_PPM:
         notes.append(

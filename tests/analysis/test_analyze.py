@@ -57,3 +57,17 @@ def test_remembered_results_are_equal_and_independent(base_ce) -> None:
     assert a == b and a is not b
     a.loop.budget.clear()  # a caller changing its copy changes nothing remembered
     assert analyze(base_ce) == b
+
+
+def test_steady_state_section_of_the_contract(base_ce) -> None:
+    """``steady_state`` carries the issue's fields; no ``large_signal`` or ``swing`` remain."""
+    data = analyze(base_ce).model_dump(mode="json")
+    assert "large_signal" not in data and "swing" not in data
+    ss = data["steady_state"]
+    for key in ("f", "amp_out", "amp_be", "thd", "IC_avg", "VCE_min", "P_tank"):
+        assert isinstance(ss[key], float), key
+    # this design (loop gain 18) period-doubles: no settling time
+    assert ss["behaviour"] == "period-doubling" and ss["settle_cycles"] is None
+    assert ss["behaviour"] in ("settles", "squegs", "period-doubling", "unstable", "no-orbit")
+    assert all(set(m) == {"re", "im"} for m in ss["multipliers"])
+    assert data["verdict"]["code"] and data["verdict"]["icon"] in ("ok", "caution", "stop")

@@ -2,25 +2,29 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 from ringwise.analysis.budget import loop_budget
 from ringwise.analysis.checks import (
     P_DEVICE_WARN,
     STIFF_DIVIDER,
     Finding,
     rule_checks,
+    steady_checks,
 )
 from ringwise.analysis.criteria import VCE_HEADROOM
 from ringwise.analysis.operating import solve
+from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.poles import natural_frequencies
 from ringwise.circuit.topologies import GAIN_SETTER
 from tests.conftest import BASE_CE, design_from
 
 
-def _codes(design, V_ce_swing=None) -> list[str]:
+def _codes(design) -> list[str]:
     s = solve(design)
     budget = loop_budget(s, GAIN_SETTER[design.topology]) if s.f_osc else []
     poles = natural_frequencies(s.ss, s.tank.f_ideal, s.f_osc)
-    found = rule_checks(s, budget, poles, V_ce_swing)
+    found = rule_checks(s, budget, poles)
     assert all(isinstance(f, Finding) and f.message for f in found)
     return [f.code for f in found]
 
@@ -41,11 +45,13 @@ def test_soft_divider() -> None:
 
 
 def test_headroom_from_the_one_limit() -> None:
+    """The steady state's lowest V_CE against the one headroom limit."""
     s = solve(design_from(BASE_CE))
-    just_over = s.op.VCE - 0.9 * VCE_HEADROOM
-    just_under = s.op.VCE - 1.1 * VCE_HEADROOM
-    assert "low-headroom" in _codes(design_from(BASE_CE), V_ce_swing=just_over)
-    assert "low-headroom" not in _codes(design_from(BASE_CE), V_ce_swing=just_under)
+    ss = steady_state(s)
+    low = dataclasses.replace(ss, VCE_min=0.9 * VCE_HEADROOM)
+    high = dataclasses.replace(ss, VCE_min=1.1 * VCE_HEADROOM)
+    assert "low-headroom" in [f.code for f in steady_checks(s, low)]
+    assert "low-headroom" not in [f.code for f in steady_checks(s, high)]
 
 
 def test_extreme_ratio_and_small_coupling() -> None:

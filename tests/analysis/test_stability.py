@@ -58,11 +58,22 @@ def test_loaded_Q_is_the_parallel_RLC_value_when_only_a_resistor_loads_the_tank(
 
 
 def test_pushing_is_the_difference_of_two_full_analyses(base_ce) -> None:
+    """At full amplitude: the steady state's frequency at Vcc ± 1 %."""
     r = analyze(base_ce)
+    step = 0.01 * base_ce.supply.Vcc
+    hi = analyze(with_param(base_ce, "Vcc", base_ce.supply.Vcc + step)).steady_state.f
+    lo = analyze(with_param(base_ce, "Vcc", base_ce.supply.Vcc - step)).steady_state.f
+    assert r.stability.pushing_Hz_per_V == pytest.approx((hi - lo) / (2 * step), rel=1e-4)
+
+
+def test_small_signal_answer_has_pushing_but_no_amplitude_figures(base_ce) -> None:
+    r = analyze(base_ce, large_signal=False)
     step = 0.01 * base_ce.supply.Vcc
     hi = analyze(with_param(base_ce, "Vcc", base_ce.supply.Vcc + step)).loop.f_osc
     lo = analyze(with_param(base_ce, "Vcc", base_ce.supply.Vcc - step)).loop.f_osc
     assert r.stability.pushing_Hz_per_V == pytest.approx((hi - lo) / (2 * step), rel=1e-6)
+    assert r.steady_state is None and r.stability.P_signal is None and r.stability.parts == []
+    assert r.verdict.code == "pending"
 
 
 def test_resistive_load_does_not_pull_the_ideal_common_emitter_tank() -> None:

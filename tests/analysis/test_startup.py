@@ -52,7 +52,9 @@ def test_gain_five_to_six_starts_but_is_driven_hard() -> None:
     assert r.startup.verdict == "will-start"
     x = fixed_bias_drive(r.loop.gain)
     assert x > 5.0
-    assert r.swing.V_be == pytest.approx(x * 0.0257, rel=0.01)
+    # the steady state's drive is larger still: the bias shifts and the
+    # junction conducts in pulses
+    assert r.steady_state.amp_be > x * 0.0257
 
 
 def test_loop_gain_of_at_least_one_is_needed() -> None:
