@@ -37,7 +37,7 @@ def load(source: str | PathLike[str] | dict[str, Any]) -> Design:
 
 
 def analyze(design: Design) -> Result:
-    """The full small-signal and describing-function analysis of ``design``."""
+    """The full analysis of ``design``: small signal, periodic steady state, one verdict."""
     return _analyze(design)
 
 

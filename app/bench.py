@@ -15,7 +15,7 @@ from typing import Final
 from ringwise.analysis.analyze import _analyze, analyze
 from ringwise.analysis.threshold import sweep
 from ringwise.circuit.topologies import gain_setter
-from ringwise.design import Design, get_param
+from ringwise.design import Design, get_param, with_param
 from ringwise.resources import sample_files
 
 #: Targets, seconds.
@@ -28,6 +28,11 @@ SPREAD_LOOP_SAMPLES: Final = 100
 SPREAD_TARGET: Final = 1.0
 TRANSIENT_TARGET: Final = 1.0
 PHASE_NOISE_TARGET: Final = 50e-3
+#: Periodic steady state per sample design: ceiling and aim (cold), and the
+#: warm re-solve after a 1 % edit, s.
+STEADY_TARGET: Final = 50e-3
+STEADY_AIM: Final = 20e-3
+STEADY_WARM_TARGET: Final = 15e-3
 
 
 def median_time(fn: Callable[[], object], repeat: int, warmup: int = 2) -> float:
@@ -57,32 +62,36 @@ def _line(label: str, seconds: float, target: float) -> str:
 
 def bench_core() -> list[str]:
     from ringwise.analysis.budget import loop_budget
-    from ringwise.analysis.describing import describing_function
     from ringwise.analysis.operating import solve
+    from ringwise.analysis.periodic import steady_state
     from ringwise.analysis.poles import natural_frequencies
     from ringwise.analysis.stability import stability
     from ringwise.analysis.threshold import find_threshold
 
-    lines = ["analysis core (median CPU time of 30 runs each):"]
+    lines = [
+        "analysis core (median CPU time of 30 runs each; 'analyze' is the small-signal "
+        "first answer, the steady state is timed apart below):"
+    ]
     designs = [
         Design.model_validate(json.loads(p.read_text(encoding="utf-8"))) for p in sample_files()
     ]
     for d in designs:
         lines.append(
             _line(
-                f"analyze {d.name[:36]}", median_time(lambda d=d: _analyze(d), 30), ANALYZE_TARGET
+                f"analyze {d.name[:36]}",
+                median_time(lambda d=d: _analyze(d, large_signal=False), 30),
+                ANALYZE_TARGET,
             )
         )
         s = solve(d)
-        ls = describing_function(s)
+        ss = steady_state(s, warm=False)
         setter = gain_setter(d)
         stages = {
             "solve": lambda d=d: solve(d),
             "threshold": lambda d=d, s=s, p=setter: find_threshold(d, p, start=s),
             "budget": lambda s=s, p=setter: loop_budget(s, p),
             "poles": lambda s=s: natural_frequencies(s.ss, s.tank.f_ideal, s.f_osc),
-            "describing fn": lambda s=s: describing_function(s),
-            "stability": lambda s=s, ls=ls: stability(s, ls),
+            "stability": lambda s=s, ss=ss: stability(s, ss),
         }
         parts = "  ".join(f"{k} {median_time(fn, 15) * 1e3:.2f}" for k, fn in stages.items())
         lines.append(f"      stages, ms: {parts}")
@@ -98,6 +107,46 @@ def bench_core() -> list[str]:
     lines.append(
         "  analyze of a design seen before (remembered): "
         f"{median_time(lambda: analyze(d), 30) * 1e3:.2f} ms"
+    )
+    return lines
+
+
+def bench_steady() -> list[str]:
+    """Periodic steady state of every sample: cold start, and warm after a 1 % edit."""
+    from ringwise.analysis.operating import solve
+    from ringwise.analysis.periodic import forget, steady_state
+
+    lines = [
+        "periodic steady state (median CPU time of 15 runs; solve excluded; aim "
+        f"{STEADY_AIM * 1e3:g} ms cold):"
+    ]
+    designs = [
+        Design.model_validate(json.loads(p.read_text(encoding="utf-8"))) for p in sample_files()
+    ]
+    colds = []
+    for d in designs:
+        s = solve(d)
+
+        def cold(s=s) -> None:
+            forget()
+            steady_state(s)
+
+        t_cold = median_time(cold, 15)
+        colds.append(t_cold)
+        lines.append(_line(f"steady state, cold, {d.name[:28]}", t_cold, STEADY_TARGET))
+        part = gain_setter(d)
+        edited = [solve(with_param(d, part, get_param(d, part) * k)) for k in (1.01, 0.99)]
+        warm_times: list[float] = []
+        for i in range(15):
+            forget()
+            steady_state(s)
+            t0 = time.process_time()
+            steady_state(edited[i % 2])
+            warm_times.append(time.process_time() - t0)
+        t_warm = statistics.median(warm_times)
+        lines.append(_line(f"  warm after a 1 % edit of {part}", t_warm, STEADY_WARM_TARGET))
+    lines.append(
+        _line("steady state, cold, median of the samples", statistics.median(colds), STEADY_TARGET)
     )
     return lines
 
@@ -204,6 +253,8 @@ def bench_web() -> list[str]:
 
 def main() -> None:
     for line in bench_core():
+        print(line, flush=True)
+    for line in bench_steady():
         print(line, flush=True)
     for line in bench_phase_noise():
         print(line, flush=True)

@@ -6,19 +6,11 @@ holds it, or "not standard"), its tolerance and dielectric class, and what
 the part sees in the running oscillator: the peak voltage across it and the
 power it dissipates, from the periodic steady state
 (:func:`~ringwise.analysis.periodic.steady_state`, the whole waveform).  A
-design without a steady orbit falls back to the describing-function state
-(DC plus the fundamental's amplitude):
-
-.. math::
-
-    V_{pk} = |V_{DC}| + |\\hat V_1|, \\qquad
-    P_R = V_{DC}^2/R + |\\hat V_1|^2/(2R), \\qquad
-    P_L = |\\hat I_1|^2 R_s / 2 .
-
-Voltages come from the one circuit model: the element's nodes in the
-netlist and the solution vectors (``x_avg`` and the fundamental's
-``phasors``) of :func:`~ringwise.analysis.describing.describing_function`;
-without oscillation only the DC operating point is used.  A note marks a
+design without a steady orbit (it does not start, or no orbit was found)
+shows what the DC operating point alone puts on each part: V_pk = |V_DC|,
+P_R = V_DC²/R, P_L = 0.  Voltages come from the one circuit model: the
+element's nodes in the netlist and the orbit's (or the DC point's) solution
+vectors.  A note marks a
 capacitor over :data:`~ringwise.analysis.stability.RATING_FRACTION` of its
 voltage rating and a resistor over its assumed power rating.
 """
@@ -28,10 +20,8 @@ from __future__ import annotations
 import math
 from typing import Any, Final
 
-import numpy as np
 from pydantic import BaseModel, Field
 
-from ringwise.analysis.describing import describing_function
 from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.stability import RATING_FRACTION
@@ -75,7 +65,7 @@ class BomLine(BaseModel):
     dielectric: str | None = Field(description="Dielectric class of a capacitor")
     V_peak: float | None = Field(description="Peak voltage across the part, V")
     P: float | None = Field(description="Power dissipated in the part, W")
-    stress_from: str = Field(description="steady state, or describing function without one")
+    stress_from: str = Field(description="steady state, or the DC operating point without one")
     note: str = Field(description="Where a rating is exceeded or the value is not standard")
 
     def table_row(self) -> list[str]:
@@ -123,31 +113,20 @@ def _stresses(design: Design) -> tuple[dict[str, tuple[float, float]], str]:
     steady = steady_state(solved)
     if steady.parts:
         return {p.part: (p.V_peak, p.P) for p in steady.parts}, "steady state"
-    return _fundamental_stresses(solved), "describing function"
+    return _dc_stresses(solved), "DC operating point (no steady oscillation)"
 
 
-def _fundamental_stresses(solved: Solved) -> dict[str, tuple[float, float]]:
-    """(V_peak, P) from the DC state plus the describing function's fundamental."""
-    ls = describing_function(solved)
-    x_dc = ls.x_avg if ls.x_avg is not None else solved.op.x
-    x_ac = ls.phasors if ls.phasors is not None else np.zeros(len(x_dc), dtype=complex)
+def _dc_stresses(solved: Solved) -> dict[str, tuple[float, float]]:
+    """(V_peak, P) of each element at the DC operating point alone."""
+    x_dc = solved.op.x
     lay = solved.system.layout
-
-    def across(el: Resistor | Capacitor | Inductor, x: np.ndarray) -> complex:
-        return complex(lay.v(x, el.a)) - complex(lay.v(x, el.b))
-
     out = {}
     for el in solved.netlist:
         if not isinstance(el, Resistor | Capacitor | Inductor):
             continue
-        V_dc, V_ac = abs(across(el, x_dc).real), abs(across(el, x_ac))
-        if isinstance(el, Resistor):
-            P = V_dc**2 / el.R + V_ac**2 / (2 * el.R) if math.isfinite(el.R) else 0.0
-        elif isinstance(el, Inductor):
-            P = 0.5 * abs(complex(x_ac[lay.branch[el.name]])) ** 2 * el.R_s
-        else:
-            P = 0.0
-        out[el.name] = (V_dc + V_ac, P)
+        V_dc = abs(float(lay.v(x_dc, el.a)) - float(lay.v(x_dc, el.b)))
+        P = V_dc**2 / el.R if isinstance(el, Resistor) and math.isfinite(el.R) else 0.0
+        out[el.name] = (V_dc, P)
     return out
 
 

@@ -4,8 +4,9 @@ The sheet, the summary, the JSON twins and the command line's table all
 read these tables; nothing else lists which figures exist or what they are
 called.  Units are SI symbols (``"Hz"``, ``"Ω"``, ``"A"``) or a few named
 kinds: ``""`` a plain ratio, ``"dB"``, ``"%"`` a fraction shown in per cent,
-``"text"`` a word, ``"yesno"`` a flag, ``"valid"`` the large-signal estimate's
-flag, and ``"param"`` the unit of the threshold's parameter
+``"text"`` a word, ``"yesno"`` a flag, ``"behaviour"`` the steady state's
+behaviour in words, ``"cycles"`` a count of periods, and ``"param"`` the unit
+of the threshold's parameter
 (:data:`PARAM_UNITS`).  Formatting to text happens only here and in
 :mod:`ringwise.units`.
 """
@@ -46,7 +47,7 @@ SHOWN: Final = tuple(
         ("tank.C_series", "F", "Series capacitance Cs", "frequency"),
         ("tank.feedback_ratio", "", "Feedback ratio C1/C2", "frequency"),
         ("loop.Q_loaded", "", "Loaded Q (from the phase slope)", "frequency"),
-        ("large_signal.f", "Hz", "Frequency at full amplitude", "frequency"),
+        ("steady_state.f", "Hz", "Frequency at full amplitude", "frequency"),
         ("stability.pushing_Hz_per_V", "Hz/V", "Pushing df/dVcc", "frequency"),
         ("loop.gain_ideal", "", "Loop gain, hand method", "loop"),
         ("loop.gain", "", "Loop gain, full circuit", "loop"),
@@ -56,13 +57,17 @@ SHOWN: Final = tuple(
         ("tank.R_s", "Ω", "Coil series loss R_s", "loop"),
         ("loop.Z_out", "Ω", "Load on the controlled source", "loop"),
         ("poles.growth_time", "s", "Envelope growth time 1/σ", "loop"),
-        ("large_signal.amp_out", "V", "Output amplitude (fundamental)", "swing"),
-        ("large_signal.output_node", "text", "Output taken at", "swing"),
-        ("large_signal.amp_be", "V", "Base-emitter amplitude", "swing"),
-        ("large_signal.x", "", "Drive V_be/V_T", "swing"),
-        ("large_signal.IC_avg", "A", "Average I_C with the swing", "swing"),
-        ("large_signal.P_tank", "W", "Signal power in the coil loss", "swing"),
-        ("large_signal.valid", "valid", "Estimate within its assumptions", "swing"),
+        ("steady_state.behaviour", "behaviour", "Once running, the oscillation", "swing"),
+        ("steady_state.settle_cycles", "cycles", "Periods to settle to 1 %", "swing"),
+        ("steady_state.amp_out", "V", "Output amplitude (fundamental)", "swing"),
+        ("steady_state.output_node", "text", "Output taken at", "swing"),
+        ("steady_state.amp_be", "V", "Base-emitter amplitude", "swing"),
+        ("steady_state.thd", "%", "THD at the output", "swing"),
+        ("steady_state.IC_avg", "A", "Average I_C over the period", "swing"),
+        ("steady_state.VCE_min", "V", "Lowest V_CE (saturation margin)", "swing"),
+        ("steady_state.P_tank", "W", "Signal power in the coil loss", "swing"),
+        ("steady_state.P_in", "W", "DC input power", "swing"),
+        ("steady_state.efficiency", "%", "Efficiency (coil loss + load over DC input)", "swing"),
         ("operating_point.IC", "A", "Collector current I_C", "bias"),
         ("operating_point.VCE", "V", "V_CE", "bias"),
         ("operating_point.VBE", "V", "V_BE", "bias"),
@@ -74,18 +79,17 @@ SHOWN: Final = tuple(
         ("operating_point.region", "text", "Region", "bias"),
         ("small_signal.gm", "S", "g_m", "bias"),
         ("small_signal.r_pi", "Ω", "r_π", "bias"),
-        ("swing.V_ce", "V", "Collector swing estimate (fixed bias)", "bias"),
     )
 )
 
 PANELS: Final = (
     ("frequency", "Frequency and tank"),
     ("loop", "Loop gain and startup"),
-    ("swing", "Steady swing (describing-function estimate)"),
+    ("swing", "Steady oscillation (periodic steady state)"),
     ("bias", "Operating point"),
 )
 
-#: The summary's panels (its stability block and swing line are its own).
+#: The summary's panels (its stability block and steady-state line are its own).
 SUMMARY_PANELS: Final = tuple(p for p in PANELS if p[0] != "swing")
 
 #: The stability panel's figures besides the phase-noise points: (path, unit, label).
@@ -157,6 +161,16 @@ def lookup(result: Mapping[str, Any], path: str) -> Any:
     return value
 
 
+#: The steady state's behaviour in words (the sheet, the summary, the table).
+BEHAVIOUR_WORDS: Final = {
+    "settles": "settles to a steady amplitude",
+    "squegs": "squegs: the envelope swings and grows",
+    "period-doubling": "period-doubles: alternate cycles differ",
+    "unstable": "leaves its periodic orbit (unstable)",
+    "no-orbit": "no steady oscillation",
+}
+
+
 def format_value(value: Any, unit: str) -> str:
     """Display text of a figure in one of the units above ("—" for a missing value).
 
@@ -165,6 +179,10 @@ def format_value(value: Any, unit: str) -> str:
     """
     if unit == "text":
         return "—" if value is None else str(value)
+    if unit == "behaviour":
+        return "—" if value is None else BEHAVIOUR_WORDS[value]
+    if unit == "cycles":
+        return "—" if value is None else f"{value:.3g}"
     if unit in ("yesno", "valid"):
         return "—" if value is None else ("yes" if value else "no")
     if value is None:

@@ -60,6 +60,7 @@ const SEL = {
 const EVENTS = {
   rendered: "ringwise:rendered", // results, indicator, schematic and plots a, c, d drawn
   swept: "ringwise:swept", // the what-if plot drawn
+  steady: "ringwise:steady", // the steady-state answer rendered (verdict, swing, stability)
   ran: "ringwise:ran", // a time-domain run ended (detail.state: done, cancelled, failed)
   tool: "ringwise:tool", // an on-demand panel answered (detail.tool: spread, snap, synth, bench; detail.state)
 };
@@ -67,6 +68,7 @@ const EVENTS = {
 const API = {
   sheet: "/api/sheet",
   sweep: "/api/sheet/sweep",
+  steady: "/api/sheet/steady",
   importFile: "/api/import",
   jobs: "/api/simulate/jobs",
   spread: "/api/sheet/spread",
@@ -82,7 +84,7 @@ const $$ = (sel, root = document) => Array.from(root.querySelectorAll(sel));
 const form = $(SEL.form);
 const config = JSON.parse($(SEL.config).textContent);
 
-const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, timer: 0, inputAt: 0, view: null };
+const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, steady: null, timer: 0, inputAt: 0, view: null };
 // The time-domain run: the job being polled, and the query of the design it ran on.
 const run = { id: null, timer: 0, query: null, seq: 0 };
 
@@ -152,6 +154,7 @@ async function recompute() {
   const seq = ++state.mainSeq;
   const inputAt = state.inputAt;
   state.main?.abort();
+  state.steady?.abort();
   state.main = new AbortController();
   const texts = formTexts();
   $(SEL.outcome).dataset.state = "busy";
@@ -161,8 +164,26 @@ async function recompute() {
     render(view);
     document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq, inputAt, at: performance.now() } }));
     if (view.ok) requestSweep(texts, view, inputAt);
+    if (view.ok && view.result.steady_state === null) requestSteady(texts, seq, inputAt);
   } catch (err) {
     if (err.name !== "AbortError" && seq === state.mainSeq) status(`Not computed: ${err.message}`);
+  }
+}
+
+// The small-signal answer is shown first; the steady state follows on a second
+// request.  An edit in between aborts it (its answer would be for an older design).
+async function requestSteady(texts, seq, inputAt) {
+  state.steady?.abort();
+  state.steady = new AbortController();
+  $(SEL.outcome).dataset.steady = "pending";
+  try {
+    const view = await post(API.steady, { fields: texts, sweep_param: $(SEL.sweepParam).value || null }, state.steady.signal);
+    if (seq !== state.mainSeq) return;
+    render(view);
+    $(SEL.outcome).dataset.steady = "done";
+    document.dispatchEvent(new CustomEvent(EVENTS.steady, { detail: { seq, inputAt, at: performance.now() } }));
+  } catch (err) {
+    if (err.name !== "AbortError" && seq === state.mainSeq) status(`Steady state not computed: ${err.message}`);
   }
 }
 
@@ -222,9 +243,13 @@ function render(view) {
   renderStress(view);
   markRunStale(view);
   markToolsStale(view);
-  const verdict = view.shown["startup.verdict"];
+  const verdict = view.shown["verdict"];
   $(SEL.verdictLabel).textContent = verdict.text;
-  $(SEL.glyph).setAttribute("href", `#glyph-${verdict.value}`);
+  $(SEL.verdict).dataset.icon = verdict.icon;
+  // the small-signal verdict beside the one verdict, unless it says the same
+  for (const el of $$(".verdict-start, .verdict [data-field='startup.verdict']")) el.hidden = verdict.value === "wont-start";
+  $(SEL.glyph).setAttribute("href", `#glyph-${verdict.icon}`);
+  $(SEL.glyph).parentElement.setAttribute("aria-label", verdict.icon);
   const list = $(SEL.warnings);
   list.replaceChildren(...(view.result.warnings.length ? view.result.warnings.map(warningItem) : [noneItem()]));
   renderSweepOptions(view);

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import functools
+import threading
 from typing import Final
 
 from ringwise.analysis.budget import loop_budget
@@ -55,7 +56,22 @@ def analyze(design: Design, large_signal: bool = True) -> Result:
     the design, so results are remembered for the last ``CACHE_SIZE``
     designs; each caller gets its own copy.
     """
-    return _analyze_json(design.model_dump_json(), large_signal).model_copy(deep=True)
+    key = (design.model_dump_json(), large_signal)
+    with _flight_lock:
+        gate = _in_flight.setdefault(key, threading.Lock())
+    # One computation per design at a time: a request that arrives while the
+    # same design is being analysed waits for that answer instead of solving
+    # again from another start (the steady state's last digits depend on it).
+    with gate:
+        result = _analyze_json(*key)
+    with _flight_lock:
+        if _in_flight.get(key) is gate and not gate.locked():
+            del _in_flight[key]
+    return result.model_copy(deep=True)
+
+
+_in_flight: dict[tuple[str, bool], threading.Lock] = {}
+_flight_lock = threading.Lock()
 
 
 def forget() -> None:

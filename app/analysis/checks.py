@@ -216,7 +216,6 @@ def steady_checks(s: Solved, ss: SteadyState) -> list[Finding]:
     return out
 
 
-
 def choke_checks(s: Solved) -> list[Finding]:
     r"""Warn when the RF choke's self-resonance is near f_osc, or below it.
 

@@ -58,10 +58,14 @@ __all__ = [
 ]
 
 
+#: Shown while the steady state is still being computed (the sheet's first answer).
+PENDING_TEXT = "computing…"
+
+
 def _text(value: Any, unit: str) -> str:
     """Display text of a figure (the core's :func:`ringwise.display.format_value`;
     numbers through the web layer's cache of it)."""
-    if unit in ("text", "yesno", "%"):
+    if unit in ("text", "yesno", "%", "behaviour", "cycles"):
         return format_value(value, unit)
     return display(value, unit)
 
@@ -71,21 +75,25 @@ def shown_figures(result: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
     out = {}
     for path, unit, _label, _panel in SHOWN:
         value = lookup(result, path)
-        if unit == "valid":
-            continue
         out[path] = _figure(value, _text(value, unit_of(unit, result)))
-    large = result["large_signal"]
-    shift = None
-    if large["IC_avg"] is not None and result["operating_point"]["IC"] is not None:
-        shift = large["IC_avg"] - result["operating_point"]["IC"]
-    if shift is not None:
-        sign = "+" if shift >= 0 else "−"
-        text = f"{display(large['IC_avg'], 'A')} ({sign}{display(abs(shift), 'A')} from DC)"
-        out["large_signal.IC_avg"] = _figure(large["IC_avg"], text)
-    valid = bool(large["valid"])
-    out["large_signal.valid"] = _figure(valid, "yes" if valid else "no: see the note")
-    reason = large["reason"] or ""
-    out["large_signal.reason"] = {**_figure(reason, reason), "hidden": valid or not reason}
+    steady = result["steady_state"]
+    if steady is None:
+        for fig in SHOWN:
+            if fig.path.startswith("steady_state."):
+                out[fig.path] = _figure(None, PENDING_TEXT)
+        out["steady_state.reason"] = {**_figure("", ""), "hidden": True}
+    else:
+        shift = None
+        if steady["IC_avg"] is not None and result["operating_point"]["IC"] is not None:
+            shift = steady["IC_avg"] - result["operating_point"]["IC"]
+        if shift is not None:
+            sign = "+" if shift >= 0 else "−"
+            text = f"{display(steady['IC_avg'], 'A')} ({sign}{display(abs(shift), 'A')} from DC)"
+            out["steady_state.IC_avg"] = _figure(steady["IC_avg"], text)
+        reason = steady["reason"] or ""
+        out["steady_state.reason"] = {**_figure(reason, reason), "hidden": not reason}
+    verdict = result["verdict"]
+    out["verdict"] = {**_figure(verdict["code"], verdict["label"]), "icon": verdict["icon"]}
     out.update(stability_figures(result))
     startup = result["startup"]
     out["startup.margin"] = _figure(startup["margin"], display(startup["margin"], ""))
@@ -192,11 +200,13 @@ def build_view(
     sweep_param: str | None = None,
     link_problems: list[dict] | None = None,
     with_sweep: bool = True,
+    with_steady: bool = True,
 ) -> dict[str, Any]:
     """Everything a page shows for these form texts (JSON-ready).
 
-    ``with_sweep=False`` leaves out the what-if sweep (the slowest part), which
-    the live sheet fetches separately so the indicator never waits for it.
+    ``with_sweep=False`` leaves out the what-if sweep and ``with_steady=False``
+    the periodic steady state (the slowest parts), which the live sheet
+    fetches separately so the small-signal verdict never waits for them.
     """
     states = check_fields(texts)
     fields = {name: vars(state).copy() for name, state in states.items()}
@@ -237,7 +247,7 @@ def build_view(
             problems.append({**p, "input": name})
         return view
     try:
-        result = analyze(design).model_dump(mode="json")
+        result = analyze(design, large_signal=with_steady).model_dump(mode="json")
         solved = solve(design)
     except (ValueError, ArithmeticError) as err:
         problems.append({**_problem("design", str(err), "domain_error"), "input": None})

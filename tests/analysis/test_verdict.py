@@ -1,4 +1,4 @@
-"""One verdict from the startup verdict, the steady state and the warnings (never contradicting them)."""
+"""One verdict from startup, steady state and warnings, never contradicting them."""
 
 from __future__ import annotations
 

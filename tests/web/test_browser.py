@@ -59,6 +59,11 @@ def expected(client, texts: dict[str, str]) -> dict[str, Any]:
     return client.post("/api/sheet", json={"fields": texts}).json()
 
 
+def expected_steady(client, texts: dict[str, str]) -> dict[str, Any]:
+    """What the sheet shows once the steady state has arrived, from the API."""
+    return client.post("/api/sheet/steady", json={"fields": texts}).json()
+
+
 def wait_for(sheet: Sheet, selector: str, value: str) -> None:
     sheet.page.wait_for_function(
         "([sel, v]) => document.querySelector(sel)?.dataset.value === v", arg=[selector, value]
@@ -95,10 +100,13 @@ def test_typing_c2_updates_f_osc_and_indicator(context, live_server, client):
     wait_for(sheet, F_OSC, want["shown"]["loop.f_osc"]["raw"])
     assert sheet.attr(F_OSC) != before
     assert sheet.attr(VERDICT) == want["result"]["startup"]["verdict"]
+    # the one verdict: the small-signal one first, then the steady state's
+    full = expected_steady(client, sheet.inputs())
+    wait_for(sheet, ".verdict", full["shown"]["verdict"]["raw"])
     assert (
-        sheet.page.text_content("[data-role='verdict-label']")
-        == want["shown"]["startup.verdict"]["text"]
+        sheet.page.text_content("[data-role='verdict-label']") == full["shown"]["verdict"]["text"]
     )
+    assert sheet.attr(".verdict", "data-icon") == full["result"]["verdict"]["icon"]
     assert sheet.page.text_content("[data-shown='C2']") == "3.3 nF"
     assert "C2=3n3" in sheet.page.url
     assert sheet.errors == []
@@ -126,13 +134,21 @@ def test_dragging_rc_below_threshold_stops_it(context, live_server):
     assert sheet.errors == []
 
 
+def settle_steady(sheet: Sheet, client) -> None:
+    """Wait until the page shows the steady-state answer for what its form now holds."""
+    settle(sheet, client)
+    sheet.page.wait_for_function(
+        "() => document.querySelector('.outcome').dataset.steady === 'done'"
+    )
+
+
 def test_copied_link_restores_the_design(context, live_server, client):
     context.grant_permissions(["clipboard-read", "clipboard-write"], origin=live_server)
     sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")
     sheet.page.fill("[name='name']", "Bench unit #2 · 10 MHz <test> & µ")
     sheet.page.fill("[name='C2']", "1.2 nF")
     sheet.page.fill("[name='R_load']", "")
-    settle(sheet, client)
+    settle_steady(sheet, client)
     sheet.page.click("#copy-link")
     sheet.page.wait_for_function("() => document.querySelector('#tool-status').textContent !== ''")
     link = sheet.page.evaluate("navigator.clipboard.readText()")

@@ -10,7 +10,7 @@ import pytest
 
 from ringwise.analysis.transient import MIN_CYCLES
 from ringwise.web.routers.simulate import SHEET_POINTS
-from tests.web.test_browser import Sheet, expected, settle, wait_for
+from tests.web.test_browser import Sheet, expected, expected_steady, settle, wait_for
 
 pytestmark = pytest.mark.browser
 
@@ -39,12 +39,13 @@ def _run_state(sheet: Sheet, state: str) -> None:
 
 def test_stability_panel_shows_the_four_offsets(context, live_server, client):
     sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
-    want = expected(client, sheet.inputs())
+    want = expected_steady(client, sheet.inputs())
     points = want["result"]["stability"]["phase_noise"]
     assert [p["offset"] for p in points] == [100.0, 1e3, 10e3, 100e3]
     for i in range(len(points)):
         path = f"stability.phase_noise.{i}.dBc_Hz"
         selector = f".stability-panel [data-field='{path}']"
+        wait_for(sheet, selector, want["shown"][path]["raw"])
         assert sheet.attr(selector) == want["shown"][path]["raw"] == repr(points[i]["dBc_Hz"])
         assert sheet.page.text_content(selector) == want["shown"][path]["text"]
     for path in ("stability.Q_loaded", "stability.P_signal", "stability.pushing_Hz_per_V"):
@@ -61,31 +62,62 @@ def test_stability_panel_shows_the_four_offsets(context, live_server, client):
     # live: a higher noise factor raises every offset's figure
     sheet.page.fill("[name='F_dB']", "12")
     settle(sheet, client)
-    again = expected(client, sheet.inputs())
+    again = expected_steady(client, sheet.inputs())
     path = "stability.phase_noise.1.dBc_Hz"
     wait_for(sheet, f".stability-panel [data-field='{path}']", again["shown"][path]["raw"])
     assert float(again["shown"][path]["raw"]) > float(want["shown"][path]["raw"])
     assert sheet.errors == []
 
 
-def test_swing_panel_shows_the_describing_function(context, live_server, client):
+def test_steady_panel_shows_the_periodic_steady_state(context, live_server, client):
     sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")
-    want = expected(client, sheet.inputs())
+    want = expected_steady(client, sheet.inputs())
     for path in (
-        "large_signal.amp_out",
-        "large_signal.amp_be",
-        "large_signal.IC_avg",
-        "large_signal.P_tank",
-        "large_signal.output_node",
+        "steady_state.amp_out",
+        "steady_state.amp_be",
+        "steady_state.IC_avg",
+        "steady_state.P_tank",
+        "steady_state.VCE_min",
+        "steady_state.thd",
+        "steady_state.behaviour",
+        "steady_state.output_node",
     ):
-        assert sheet.attr(f".outcome [data-field='{path}']") == want["shown"][path]["raw"]
+        wait_for(sheet, f".outcome [data-field='{path}']", want["shown"][path]["raw"])
         assert (
             sheet.page.text_content(f".outcome [data-field='{path}']")
             == (want["shown"][path]["text"])
         )
-    assert "from DC" in sheet.page.text_content(".outcome [data-field='large_signal.IC_avg']")
-    reason = sheet.page.locator(".swing-note")
-    assert reason.is_hidden() == want["result"]["large_signal"]["valid"]
+    assert "from DC" in sheet.page.text_content(".outcome [data-field='steady_state.IC_avg']")
+    assert sheet.page.locator(".swing-note").is_hidden()
+    # words and a symbol, never colour alone
+    assert sheet.attr(".verdict", "data-icon") == "ok"
+    assert sheet.attr(".verdict svg", "aria-label") == "ok"
+    assert sheet.page.text_content("[data-role='verdict-label']") == "Starts and settles cleanly"
+    assert sheet.errors == []
+
+
+def test_small_signal_first_then_the_steady_state_and_an_edit_is_never_blocked(
+    context, live_server, client
+):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.evaluate(
+        """() => { window.log = [];
+        for (const e of ["ringwise:rendered", "ringwise:steady"])
+          document.addEventListener(e, () => window.log.push(e)); }"""
+    )
+    # two edits in a row: the first's steady state is dropped, the second's arrives
+    sheet.page.fill("[name='C2']", "3n3")
+    sheet.page.fill("[name='C2']", "3n9")
+    full = expected_steady(client, sheet.inputs())
+    wait_for(
+        sheet,
+        ".outcome [data-field='steady_state.amp_out']",
+        full["shown"]["steady_state.amp_out"]["raw"],
+    )
+    log = sheet.page.evaluate("window.log")
+    assert log[-1] == "ringwise:steady" and "ringwise:rendered" in log
+    assert log.index("ringwise:rendered") < log.index("ringwise:steady")
+    assert sheet.attr(".outcome", "data-steady") == "done"
     assert sheet.errors == []
 
 
