@@ -43,6 +43,7 @@ from typing import Final
 
 import numpy as np
 
+from ringwise.analysis import runlines
 from ringwise.analysis.operating import Solved, solve
 from ringwise.circuit.mna import LinearSystem, incidence, with_junction_capacitances
 from ringwise.circuit.npn import junction_currents
@@ -80,8 +81,6 @@ SAMPLES_PER_CYCLE_FFT: Final = 64
 #: falls below SQUEG_LOW of it and recovers again (common practice, no source).
 SQUEG_HIGH: Final = 0.8
 SQUEG_LOW: Final = 0.3
-#: Run shorter than this many bias time constants: say squegging is not excluded.
-BIAS_TAU_COVER: Final = 3.0
 
 
 class SimulationError(DesignError):
@@ -324,7 +323,9 @@ def run(
     f_ref = solved.f_osc or solved.tank.f_ideal
     h0 = 1.0 / (f_ref * STEPS_PER_CYCLE)
     trace = integrate(system, x0, h0, cycles / f_ref, T1, progress)
-    return _measure(solved, trace, f_ref, points, h0)
+    from ringwise.analysis.periodic import steady_state
+
+    return _measure(solved, trace, f_ref, points, h0, steady_state(solved).settle_cycles)
 
 
 @dataclass(frozen=True)
@@ -422,7 +423,17 @@ def _crossings(t: np.ndarray, v: np.ndarray) -> np.ndarray:
     return t[k] + frac * (t[k + 1] - t[k])
 
 
-def _measure(solved: Solved, trace: Trace, f_ref: float, points: int, h0: float) -> Transient:
+def _measure(
+    solved: Solved,
+    trace: Trace,
+    f_ref: float,
+    points: int,
+    h0: float,
+    settle_cycles: float | None = None,
+) -> Transient:
+    """Figures of a run.  ``settle_cycles`` (from the steady state's largest Floquet
+    multiplier) is how long the slowest deviation takes to fall to 1 %; without it
+    the bias network's time constant stands in (ln 100 of them)."""
     t, vo, vb, ve = trace.t, trace.v_out, trace.v_be, trace.v_e
     steps, rejected = trace.steps, trace.rejected
     t_end = float(t[-1])
@@ -471,6 +482,15 @@ def _measure(solved: Solved, trace: Trace, f_ref: float, points: int, h0: float)
     t90 = None
     settled = False
     squeg = False
+    found_lines: list[runlines.Line] = []
+    mod = runlines.Modulation(0.0, None)
+    # How long the slowest deviation needs to fall to 1 %, periods.
+    slowest = settle_cycles if settle_cycles is not None else math.log(100.0) * tau * f_ref
+    source = (
+        "from the largest Floquet multiplier"
+        if settle_cycles is not None
+        else "from the bias network's time constant"
+    )
     if grew and env_arr.size:
         reached = np.nonzero(env_arr >= 0.9 * amp_peak)[0]
         t90 = float(env_t[reached[0]]) if reached.size else None
@@ -481,20 +501,40 @@ def _measure(solved: Solved, trace: Trace, f_ref: float, points: int, h0: float)
             dips = np.nonzero(after < SQUEG_LOW * peak)[0]
             if dips.size and np.any(after[dips[0] :] >= SQUEG_HIGH * peak):
                 squeg = True
-        last = env_arr[np.array(env_t) >= t_end - tail_cycles / f_ref]
-        settled = bool(last.size and (last.max() - last.min()) <= 0.02 * last.mean())
+        in_tail = np.array(env_t) >= t_end - tail_cycles / f_ref
+        last = env_arr[in_tail]
+        found_lines = runlines.lines(t[tail], vo[tail], tail_cross)
+        mod = runlines.modulation(np.array(env_t)[in_tail], last)
+        doubled = runlines.alternates(last)
+        if doubled:
+            # judged on the larger amplitude of each pair of periods
+            last = np.asarray(runlines.upper_envelope(list(range(last.size)), list(last))[1])
+            low = env_arr[in_tail]
+            notes.append(
+                "period-doubled: alternate cycles reach "
+                f"{float(np.max(low)):.3g} V and {float(np.min(low)):.3g} V"
+            )
+        steady_envelope = bool(last.size and (last.max() - last.min()) <= 0.02 * last.mean())
+        covered = t90 is None or (t_end - t90) * f_ref >= slowest
+        settled = steady_envelope and covered
         if squeg:
             notes.append(
-                "squegging: the envelope collapses and rebuilds — the bias network "
-                f"(time constant {tau:.3g} s) relaxes slower than the amplitude settles"
+                "squegging: the envelope collapses and rebuilds (see the steady state's "
+                "Floquet multipliers)"
             )
-        elif not settled:
+        for line in found_lines:
+            notes.append(f"{line.kind}: {line.f:.4g} Hz at {line.dBc:.1f} dBc")
+        if mod.depth > runlines.MODULATION_FLOOR and not doubled:
+            every = f" every {mod.period * f_ref:.3g} periods" if mod.period else ""
+            notes.append(f"envelope modulation: ±{100 * mod.depth:.3g} %{every}")
+        if not squeg and not steady_envelope:
             notes.append("the envelope has not settled by the end of the run")
-    if t_end < BIAS_TAU_COVER * tau and not squeg:
-        notes.append(
-            f"the run ({t_end:.3g} s) covers {t_end / tau:.2g} bias time constants "
-            f"({tau:.3g} s); squegging cannot be excluded without a longer run"
-        )
+        elif not covered:
+            notes.append(
+                f"the run covers {(t_end - t90) * f_ref:.3g} periods after startup; the slowest "
+                f"deviation needs {slowest:.3g} periods to fall to 1 % ({source}): "
+                "not yet settled"
+            )
     VE_shift = float(np.mean(ve[tail]) - solved.op.VE) if grew else None
     # Keep the last cycles at full resolution, thinned to ``points`` samples.
     keep = max(2, min(points, len(t)))
@@ -502,6 +542,9 @@ def _measure(solved: Solved, trace: Trace, f_ref: float, points: int, h0: float)
     window = t >= t_end - last_cycles / f_ref
     tw, vow, vbw = t[window], vo[window], vb[window]
     pick = np.unique(np.linspace(0, len(tw) - 1, min(keep, len(tw))).astype(int))
+    if grew and runlines.alternates(env_arr[-max(6, len(env_arr) // 5) :]):
+        # period-doubled: alternate periods' amplitudes would draw as a solid band
+        env_t, env = runlines.upper_envelope(env_t, env)
     env_pick = np.unique(np.linspace(0, len(env_t) - 1, min(keep, len(env_t))).astype(int))
     return Transient(
         f_meas=f_meas,
@@ -549,8 +592,11 @@ def simulate(
 
     r = run(design, cycles, points, progress)
     warnings = []
+    doubled = next((n for n in r.notes if n.startswith("period-doubled")), None)
     if r.squegging:
         warnings.append(WarningOut(code="squegging", message=r.notes[0]))
+    elif doubled:
+        warnings.append(WarningOut(code="period-doubling", message=doubled))
     elif not r.settled and r.amp_out_peak is not None:
         warnings.append(
             WarningOut(code="not-settled", message="the envelope has not settled by the end")

@@ -148,3 +148,15 @@ def test_progress_is_reported_and_cancels() -> None:
     assert seen and all(0 < a < b <= 1 for a, b in itertools.pairwise(seen))
     with pytest.raises(SimulationCancelledError):
         run(d, cycles=60, progress=lambda f: False)
+
+
+def test_settled_is_judged_against_the_slowest_multiplier():
+    """A run shorter than the steady state's settling time is not called settled, and says why."""
+    from ringwise.analysis.periodic import steady_state
+    from tests.conftest import load_sample, sample_paths
+
+    design = load_sample(next(p for p in sample_paths() if p.stem == "proximity-exciter-150k"))
+    slow = steady_state(solve(design)).settle_cycles
+    r = run(design, cycles=100)
+    assert slow > 1000 and not r.settled
+    assert any("Floquet multiplier" in n for n in r.notes)
