@@ -208,7 +208,9 @@ def steady_checks(s: Solved, ss: SteadyState) -> list[Finding]:
             Finding(
                 "unstable-orbit",
                 f"a Floquet multiplier of {worst.real:.4g} (above 1): the periodic orbit is "
-                "unstable and the circuit leaves it; run the time-domain simulation",
+                "unstable and the envelope drifts off it — expect it to collapse and rebuild "
+                "(squegging) or jump to another amplitude; lower the loop gain or the bias "
+                "network's time constants, and see the time-domain simulation",
             )
         )
     elif ss.behaviour == floquet.NO_ORBIT and s.f_osc is not None and s.gain > 1.0:

@@ -30,7 +30,7 @@ LABELS: Final = {
     "marginal": ("Marginal: starts, but tolerances or temperature may stop it", "caution"),
     "squegs": ("Starts, but squegs: the envelope will not hold steady", "stop"),
     "period-doubles": ("Starts, but period-doubles: alternate cycles differ", "stop"),
-    "unstable": ("Starts, but its steady oscillation is unstable", "stop"),
+    "unstable": ("Starts, but its steady oscillation is unstable: expect squegging", "stop"),
     "unresolved": (
         "Starts; no steady oscillation found — run the time-domain simulation",
         "caution",

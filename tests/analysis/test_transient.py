@@ -112,7 +112,11 @@ def test_squegging_is_detected_and_warned_before_simulating() -> None:
             "coupling": clapp.coupling.model_copy(update={"Cc1": 100e-9, "Cc2": 100e-9}),
         }
     )
-    assert "squegging-risk" in {w.code for w in analyze(squegger).warnings}
+    # the steady state's multipliers say so before any run: a real multiplier
+    # above 1 (the envelope drifts off the orbit) or a complex pair outside
+    r = analyze(squegger)
+    assert {"squegging", "unstable-orbit"} & {w.code for w in r.warnings}
+    assert r.verdict.code in ("squegs", "unstable") and r.verdict.icon == "stop"
     tr = run(squegger, cycles=300)
     assert tr.squegging
     assert any("squegging" in n for n in tr.notes)
@@ -123,7 +127,10 @@ def test_squegging_is_detected_and_warned_before_simulating() -> None:
 @pytest.mark.parametrize("path", sample_paths(), ids=lambda p: p.name)
 def test_sample_transients_report_everything(path) -> None:
     tr = run(load_sample(path), cycles=150)
-    assert tr.settled and not tr.squegging
+    assert not tr.squegging
+    # settled only once the slowest deviation (the steady state's largest
+    # multiplier) has had time to fall to 1 %; otherwise the run says so
+    assert tr.settled or any("periods to fall to 1 %" in n for n in tr.notes)
     assert tr.f_meas == pytest.approx(solve(load_sample(path)).f_osc, rel=0.02)
     assert 0 < tr.thd < 0.5
     assert len(tr.harmonics_dBc) == 6 and all(h < 0 for h in tr.harmonics_dBc)
