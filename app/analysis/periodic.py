@@ -167,12 +167,12 @@ def steady_state(solved: Solved, warm: bool = True) -> SteadyState:
                 try:
                     start = x_prev + (solved.op.x - dc_prev)
                     orbit = _refined(dyn, start, T_prev, scale, floating, steps)
-                except ShootingError:
+                except ArithmeticError:  # ShootingError, or a step's overflow
                     orbit = None
     if orbit is None:
         try:
             orbit = _cold(solved, dyn, scale, floating, T_small)
-        except ShootingError as err:
+        except ArithmeticError as err:  # ShootingError, or a step's overflow
             return no_orbit(f"no periodic orbit was found ({err}); run the time-domain simulation")
     if warm:
         with _warm_lock:
@@ -279,8 +279,8 @@ def _cold(
         x0 = 0.5 * (X[-1] + X[-1 - N]) if middle else X[-1]
         try:
             return _refined(dyn, x0, T0, scale, floating, N)
-        except ShootingError as err:
-            error = err
+        except ArithmeticError as err:
+            error = ShootingError(str(err))
         x0 = X[-1]
     assert error is not None
     raise error

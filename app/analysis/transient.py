@@ -282,6 +282,8 @@ class _Stepper:
             j10 = m10 * q[4] + m11 * q[6]
             j11 = 1.0 + m10 * q[5] + m11 * q[7]
             det = j00 * j11 - j01 * j10
+            if det == 0.0 or det != det:
+                return None  # singular (or NaN): this start does not converge
             d0 = (g0 * j11 - g1 * j01) / det
             d1 = (j00 * g1 - j10 * g0) / det
             if d0 > clamp or d0 < -clamp or d1 > clamp or d1 < -clamp:
