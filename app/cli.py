@@ -179,6 +179,14 @@ def parser() -> argparse.ArgumentParser:
         "--port", type=_bounded_int(*PORT_RANGE, "--port"), default=8000, help="default 8000"
     )
     v.add_argument("--design", dest="sample", default=None, help="sample design to open with")
+    v.add_argument(
+        "--allow-host",
+        action="append",
+        default=[],
+        metavar="NAME",
+        help="a host name the sheet may be opened under besides 127.0.0.1, localhost and "
+        "[::1] (repeatable; e.g. this computer's name on your network)",
+    )
     return p
 
 

@@ -300,9 +300,14 @@ def cmd_serve(args: argparse.Namespace) -> None:
     if target is not None and (target == "-" or target.endswith(".json") or "/" in target):
         document = read_json(target)
         validate_design(document, target)  # a bad file is refused here, in one message
-        serve(host=args.host, port=args.port, document=document)
+        serve(host=args.host, port=args.port, document=document, allow_hosts=args.allow_host)
     else:
-        serve(host=args.host, port=args.port, design=target or args.sample)
+        serve(
+            host=args.host,
+            port=args.port,
+            design=target or args.sample,
+            allow_hosts=args.allow_host,
+        )
 
 
 COMMANDS: dict[str, Callable[[argparse.Namespace], None]] = {

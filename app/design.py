@@ -9,12 +9,13 @@ refused with a message that names the field, the value and the limit.
 
 from __future__ import annotations
 
+import math
 from enum import Enum
-from typing import Annotated, Any, Final, Literal
+from functools import cache
+from typing import Any, Final, Literal
 
 from pydantic import (
     BaseModel,
-    BeforeValidator,
     ConfigDict,
     Field,
     ValidationError,
@@ -23,7 +24,7 @@ from pydantic import (
 from pydantic_core import InitErrorDetails, PydanticCustomError
 
 from ringwise.presets import DEVICE_PRESETS
-from ringwise.units import parse_quantity
+from ringwise.quantities import SI
 
 FORMAT: Final = "ringwise.design"
 VERSION: Final = 1
@@ -37,26 +38,15 @@ class Topology(str, Enum):
     CC = "common-collector"
 
 
-def _si(unit: str) -> BeforeValidator:
-    def parse(value: Any) -> Any:
-        if value is None or isinstance(value, bool):
-            return value
-        if isinstance(value, int | float | str):
-            return parse_quantity(value, unit)
-        return value
-
-    return BeforeValidator(parse)
-
-
 # Bounds are generous on purpose: wide enough for 1 kHz - 1 GHz designs and for
 # the "ideal limit" checks (huge coupling capacitors, huge beta and VA).
 # Lower bounds are far below any real part but keep the arithmetic finite.
-Volts = Annotated[float, _si("V"), Field(ge=0.01, le=1000, description="volt")]
-Ohms = Annotated[float, _si("Ω"), Field(ge=1e-3, le=1e12, description="ohm")]
-Farads = Annotated[float, _si("F"), Field(ge=1e-15, le=1e3, description="farad")]
-Henries = Annotated[float, _si("H"), Field(ge=1e-12, le=1e3, description="henry")]
-Quality = Annotated[float, _si(""), Field(ge=0.01, le=1e6)]
-Hertz = Annotated[float, _si("Hz"), Field(ge=1e3, le=1e12, description="hertz")]
+Volts = SI("V", ge=0.01, le=1000, description="volt")
+Ohms = SI("Ω", ge=1e-3, le=1e12, description="ohm")
+Farads = SI("F", ge=1e-15, le=1e3, description="farad")
+Henries = SI("H", ge=1e-12, le=1e3, description="henry")
+Quality = SI("", ge=0.01, le=1e6)
+Hertz = SI("Hz", ge=1e3, le=1e12, description="hertz")
 #: How the collector is fed from the supply in the forms that have a collector
 #: load: through the resistor RC, or through an RF choke.
 Feed = Literal["resistor", "choke"]
@@ -119,19 +109,11 @@ class Device(_Part):
     preset: str | None = Field(
         default=None, description="Transistor class the values were taken from (informative)"
     )
-    beta: Annotated[float, _si(""), Field(ge=1, le=1e9)] = Field(
-        description="Forward current gain β"
-    )
-    IS: Annotated[float, _si("A"), Field(ge=1e-30, le=1e-6)] = Field(
-        description="Transport saturation current at 25 °C, A"
-    )
-    VA: Annotated[float, _si("V"), Field(ge=1, le=1e12)] = Field(description="Early voltage, V")
-    fT: Annotated[float, _si("Hz"), Field(ge=1e3, le=1e12)] = Field(
-        description="Transition frequency, Hz"
-    )
-    C_mu: Annotated[float, _si("F"), Field(ge=0, le=1e-6)] = Field(
-        description="Base-collector capacitance, F"
-    )
+    beta: SI("", ge=1, le=1e9) = Field(description="Forward current gain β")
+    IS: SI("A", ge=1e-30, le=1e-6) = Field(description="Transport saturation current at 25 °C, A")
+    VA: SI("V", ge=1, le=1e12) = Field(description="Early voltage, V")
+    fT: SI("Hz", ge=1e3, le=1e12) = Field(description="Transition frequency, Hz")
+    C_mu: SI("F", ge=0, le=1e-6) = Field(description="Base-collector capacitance, F")
 
     @model_validator(mode="before")
     @classmethod
@@ -149,22 +131,22 @@ class Noise(_Part):
     """Inputs of the phase-noise figures: Leeson's comparison (F, corner) and the
     device's flicker law and the supply's noise for the computed spectrum."""
 
-    F_dB: Annotated[float, _si(""), Field(ge=0, le=40)] = Field(
+    F_dB: SI("", ge=0, le=40) = Field(
         default=6.0, description="Effective device noise factor, dB (typical, from memory)"
     )
-    f_corner: Annotated[float, _si("Hz"), Field(ge=1e-3, le=1e9)] = Field(
+    f_corner: SI("Hz", ge=1e-3, le=1e9) = Field(
         default=10e3, description="Flicker corner of the device, Hz (typical, from memory)"
     )
-    K_F: Annotated[float, _si(""), Field(ge=0, le=1e-6)] = Field(
+    K_F: SI("", ge=0, le=1e-6) = Field(
         default=1e-15,
         description="Flicker coefficient of the base current, K_F in K_F·I_B^A_F/f, "
         "A^(2−A_F) (typical of small-signal transistors, from memory; 0 switches it off)",
     )
-    A_F: Annotated[float, _si(""), Field(ge=0.5, le=2.5)] = Field(
+    A_F: SI("", ge=0.5, le=2.5) = Field(
         default=1.0,
         description="Flicker exponent of the base current, A_F (typical, from memory)",
     )
-    e_supply: Annotated[float, _si("V"), Field(ge=0, le=1e-3)] | None = Field(
+    e_supply: SI("V", ge=0, le=1e-3) | None = Field(
         default=None,
         description="Noise voltage density of the supply, V/√Hz (blank: a noiseless supply)",
     )
@@ -178,7 +160,7 @@ class Ratings(_Part):
     )
 
 
-Fraction = Annotated[float, _si(""), Field(ge=0, le=0.5)]
+Fraction = SI("", ge=0, le=0.5)
 Dielectric = Literal["C0G", "X7R"]
 #: Capacitors whose dielectric may be stated, and the default class of each:
 #: class 1 in the tank (where the frequency is set), class 2 for blocking and bypass.
@@ -205,10 +187,10 @@ class Tolerances(_Part):
     C: Fraction = Field(default=0.05, description="Capacitor tolerance (fraction)")
     L: Fraction = Field(default=0.10, description="Inductor tolerance (fraction)")
     Q_L: Fraction = Field(default=0.20, description="Spread of the coil's Q (fraction)")
-    beta_ratio: Annotated[float, _si(""), Field(ge=1, le=100)] = Field(
+    beta_ratio: SI("", ge=1, le=100) = Field(
         default=3.0, description="Highest over lowest β of the part type (log-uniform)"
     )
-    IS_ratio: Annotated[float, _si(""), Field(ge=1, le=100)] = Field(
+    IS_ratio: SI("", ge=1, le=100) = Field(
         default=2.0, description="Highest over lowest I_S of the part type (log-uniform)"
     )
     per_part: dict[str, Fraction] = Field(
@@ -218,13 +200,13 @@ class Tolerances(_Part):
         default_factory=dict,
         description="Dielectric class per capacitor (default C0G in the tank, X7R elsewhere)",
     )
-    L_tempco_ppm: Annotated[float, _si(""), Field(ge=-5000, le=5000)] = Field(
+    L_tempco_ppm: SI("", ge=-5000, le=5000) = Field(
         default=100.0, description="Inductor temperature coefficient, ppm/°C (typical, from memory)"
     )
-    T_min: Annotated[float, _si(""), Field(ge=-60, le=200)] = Field(
+    T_min: SI("°C", ge=-60, le=200) = Field(
         default=-40.0, description="Lowest operating temperature, °C"
     )
-    T_max: Annotated[float, _si(""), Field(ge=-60, le=200)] = Field(
+    T_max: SI("°C", ge=-60, le=200) = Field(
         default=85.0, description="Highest operating temperature, °C"
     )
 
@@ -269,7 +251,7 @@ class Design(_Part):
     coupling: Coupling
     load: Load = Field(default_factory=Load)
     device: Device
-    temperature_C: Annotated[float, _si(""), Field(ge=-60, le=200)] = Field(
+    temperature_C: SI("°C", ge=-60, le=200) = Field(
         default=25.0, description="Operating temperature, °C"
     )
     noise: Noise = Field(default_factory=Noise)
@@ -379,6 +361,25 @@ def with_param(design: Design, name: str, value: float) -> Design:
     # model_copy skips validation; construct to keep the bounds in force.
     new_part = type(part).model_validate({**part.model_dump(), name: value})
     return design.model_copy(update={section: new_part})
+
+
+@cache
+def param_limits(name: str) -> tuple[float, float]:
+    """The lowest and highest value a parameter may take (its field's bounds; ±inf where open)."""
+    section = Design.model_fields[_section_of(name)].annotation
+    schema = section.model_json_schema()["properties"][name]  # type: ignore[union-attr]
+    lo, hi = -math.inf, math.inf
+    for option in [schema, *schema.get("anyOf", [])]:
+        lo = max(lo, option.get("ge", option.get("minimum", option.get("gt", lo))))
+        hi = min(hi, option.get("le", option.get("maximum", option.get("lt", hi))))
+    return lo, hi
+
+
+def step_within(name: str, value: float, step: float) -> tuple[float, float]:
+    """Values ``value ± step`` moved inside the parameter's bounds, for a central
+    difference at a value on or near a bound (divide by their difference)."""
+    lo, hi = param_limits(name)
+    return min(value + step, hi), max(value - step, lo)
 
 
 def _section_of(name: str) -> str:

@@ -12,6 +12,13 @@ from typing import Any
 
 from pydantic import ValidationError
 
+from ringwise.units import SHOWN_TEXT, shown
+
+#: Whole numbers longer than this (in bits, about 30 digits) are described, not printed.
+MAX_SHOWN_BITS = 100
+#: log10(2): decimal digits per bit.
+LOG10_2 = 0.30103
+
 
 class DesignError(ValueError):
     """A design (or a request about one) that the analyses cannot serve as asked.
@@ -32,9 +39,11 @@ _LIMIT_WORDS = {
 def _message(error: dict[str, Any]) -> str:
     kind = error["type"]
     ctx = error.get("ctx") or {}
-    given = error.get("input")
+    given = _given(error.get("input"))
+    if kind in _LIMIT_WORDS and "limit_text" in ctx:
+        return str(error["msg"])  # ringwise.quantities: the value as typed, the limit with its unit
     if kind in _LIMIT_WORDS:
-        return f"{_LIMIT_WORDS[kind].format(**ctx)}, got {given!r}"
+        return f"{_LIMIT_WORDS[kind].format(**ctx)}, got {given}"
     if kind == "missing":
         return "is required"
     if kind == "part_required":
@@ -44,12 +53,28 @@ def _message(error: dict[str, Any]) -> str:
     if kind == "value_error":
         return str(ctx.get("error", error["msg"]))
     if kind in ("float_parsing", "float_type"):
-        return f"must be a number (e.g. 2.2n, 2n2, 39k), got {given!r}"
+        if "given" in ctx:
+            return str(error["msg"])
+        return f"must be a number (e.g. 2.2n, 2n2, 39k), got {given}"
     if kind == "literal_error":
-        return f"must be {ctx.get('expected')}, got {given!r}"
+        return f"must be {ctx.get('expected')}, got {given}"
     if kind == "enum":
-        return f"must be one of {ctx.get('expected')}, got {given!r}"
-    return f"{error['msg']}, got {given!r}"
+        return f"must be one of {ctx.get('expected')}, got {given}"
+    return f"{error['msg']}, got {given}"
+
+
+def _given(value: Any) -> str:
+    """A value as a message repeats it: JSON-like, cut to a readable length."""
+    if isinstance(value, bool):
+        return str(value).lower()
+    if value is None:
+        return "null"
+    if isinstance(value, int) and value.bit_length() > MAX_SHOWN_BITS:
+        return f"a number of about {int(value.bit_length() * LOG10_2)} digits"
+    if isinstance(value, str):
+        return shown(value)
+    text = str(value)
+    return f"{text[:SHOWN_TEXT]}… ({len(text)} characters)" if len(text) > SHOWN_TEXT else text
 
 
 def describe_validation_error(err: ValidationError, prefix: tuple[str, ...] = ()) -> list[dict]:
@@ -65,3 +90,21 @@ def describe_validation_error(err: ValidationError, prefix: tuple[str, ...] = ()
             }
         )
     return problems
+
+
+def domain_message(err: Exception) -> str:
+    """One line for an error the core raised while analysing a valid design.
+
+    A pydantic ``ValidationError`` there means a value the analysis derived
+    (a step of a difference, a trial of a search) crossed a field's bound:
+    it is told as such, in our words, never as pydantic's multi-line text.
+    """
+    if isinstance(err, ValidationError):
+        problems = describe_validation_error(err)
+        first = problems[0] if problems else {"field": "design", "message": "is not valid"}
+        name = first["field"].rsplit(".", 1)[-1]
+        return (
+            f"a value the analysis derived from this design is out of bounds: {name} "
+            f"{first['message']}; move {name} away from its limit"
+        )
+    return str(err) or type(err).__name__

@@ -1085,6 +1085,8 @@ function start() {
     const file = e.dataTransfer.files[0];
     if (file) await importText(await file.text());
   });
+  // the server writes the link relative (it never builds URLs from the Host header)
+  $(SEL.share).value = new URL($(SEL.share).value, location.origin).href;
   const initial = JSON.parse($(SEL.initial).textContent);
   render(initial);
   if (initial.ok) plotSweep(initial.curves.sweep);

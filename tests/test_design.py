@@ -41,7 +41,7 @@ def test_negative_capacitor_names_field_and_limit() -> None:
     assert _problems(data) == [
         {
             "field": "tank.C2",
-            "message": "must be at least 1e-15, got '-2n2'",
+            "message": "must be at least 1 fF, got '-2n2' = -2.2 nF",
             "type": "greater_than_equal",
         }
     ]

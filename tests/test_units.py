@@ -3,10 +3,18 @@
 from __future__ import annotations
 
 import math
+import re
 
 import pytest
 
-from ringwise.units import UnitError, format_si, parse_quantity
+from ringwise.units import (
+    MAX_DIGITS,
+    MAX_TEXT,
+    UnitError,
+    format_si,
+    parse_quantity,
+    parse_whole,
+)
 
 
 @pytest.mark.parametrize(
@@ -65,3 +73,57 @@ def test_format() -> None:
     assert format_si(39e3, "Ω") == "39 kΩ"
     assert format_si(None, "F") == "—"
     assert format_si(math.inf, "F") == "—"
+
+
+@pytest.mark.parametrize(
+    ("text", "unit", "needle"),
+    [
+        # a decimal comma is never read as a thousands separator (x10) nor dropped
+        ("4,7n", "F", "write 4.7n or 4n7"),
+        ("4,7 nF", "F", "write 4.7nF or 4n7F"),
+        ("1,5k", "Ω", "write 1.5k or 1k5"),
+        ("1,5", "", "write 1.5 or 1R5"),
+        ("1,000,000", "Ω", "commas are not read"),
+        # the mega of circuit listings is not an SI prefix
+        ("1Meg", "Ω", "'Meg' is not an SI prefix; write M for mega"),
+        # digits other than 0-9 are refused in every quantity (Arabic-Indic, full-width)
+        ("\u0664\u0667n", "F", "digits other than 0-9"),
+        ("\uff14\uff17n", "F", "digits other than 0-9"),
+        ("1e999", "F", "finite"),
+    ],
+)
+def test_refusals_name_what_to_write(text: str, unit: str, needle: str) -> None:
+    with pytest.raises(UnitError, match=re.escape(needle)):
+        parse_quantity(text, unit)
+
+
+def test_a_long_text_is_refused_before_any_pattern_runs() -> None:
+    # 4000 nines took seconds in a backtracking parser; the length cap answers at once
+    with pytest.raises(UnitError, match=f"at most {MAX_TEXT} characters") as info:
+        parse_quantity("9" * 4000, "H")
+    assert "(4000 characters)" in str(info.value)
+    assert len(str(info.value)) < 200  # the text is cut in the message
+
+
+def test_numbers_beyond_the_digit_cap_are_refused_unconverted() -> None:
+    assert parse_quantity(10**300, "") == 1e300
+    with pytest.raises(UnitError, match=f"at most {MAX_DIGITS} digits"):
+        parse_quantity(10**400, "")
+
+
+def test_prefixes_add_to_the_exponent_exactly() -> None:
+    # 2.2n is the double nearest 2.2e-9, not 2.2 * 1e-9 (which is 2.2000000000000003e-09)
+    assert parse_quantity("2.2n", "F") == 2.2e-9
+    assert parse_quantity("2.2 nF", "F") == 2.2e-9
+    assert parse_quantity("25 °C", "°C") == 25.0
+
+
+@pytest.mark.parametrize(("text", "value"), [("2000", 2000), (" -3 ", -3), ("+7", 7)])
+def test_whole_numbers(text: str, value: int) -> None:
+    assert parse_whole(text) == value
+
+
+@pytest.mark.parametrize("text", ["2e3", "1_000", "\u0663", "12.0", "", "9" * 100])
+def test_whole_numbers_refused(text: str) -> None:
+    with pytest.raises(UnitError):
+        parse_whole(text)

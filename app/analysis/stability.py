@@ -38,7 +38,7 @@ from scipy import constants
 from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import PartPower, SteadyState, steady_state
 from ringwise.analysis.pipeline import solve_designs
-from ringwise.design import Design, with_param
+from ringwise.design import Design, step_within, with_param
 
 #: Offsets reported and plotted, Hz.
 REPORT_OFFSETS: Final = (100.0, 1e3, 10e3, 100e3)
@@ -86,27 +86,32 @@ def leeson(
 
 def pushing_at_amplitude(solved: Solved) -> float | None:
     """df/dVcc, Hz/V, of the steady state's frequency (Vcc ± a step, warm-started)."""
-    Vcc = solved.design.supply.Vcc
-    dV = PUSH_STEP * Vcc
+    V_hi, V_lo = _steps(solved.design, "Vcc")
     x0, f0 = solved.op.x, solved.f_osc
-    near = [solve(with_param(solved.design, "Vcc", Vcc + s * dV), x0, f0) for s in (1.0, -1.0)]
+    near = [solve(with_param(solved.design, "Vcc", V), x0, f0) for V in (V_hi, V_lo)]
     f = [steady_state(n).f for n in near]
     if None in f:
         return None
-    return (f[0] - f[1]) / (2.0 * dV)
+    return (f[0] - f[1]) / (V_hi - V_lo)
 
 
 def _variants(solved: Solved) -> list[Design]:
     """The designs pushing and pulling need: Vcc ± a step, then (with a load) the
     load opened and R_load ± a step."""
     d = solved.design
-    Vcc = d.supply.Vcc
-    out = [with_param(d, "Vcc", Vcc * (1.0 + s * PUSH_STEP)) for s in (1.0, -1.0)]
-    R = d.load.R_load
-    if R is not None:
+    # the steps stay inside the fields' bounds (at a bound the difference is one-sided)
+    out = [with_param(d, "Vcc", V) for V in _steps(d, "Vcc")]
+    if d.load.R_load is not None:
         out.append(d.model_copy(update={"load": d.load.model_copy(update={"R_load": None})}))
-        out += [with_param(d, "R_load", R * (1.0 + s * PULL_STEP)) for s in (1.0, -1.0)]
+        out += [with_param(d, "R_load", R) for R in _steps(d, "R_load")]
     return out
+
+
+def _steps(d: Design, name: str) -> tuple[float, float]:
+    """The two values of ``name`` a central difference uses, inside the field's bounds."""
+    value = d.supply.Vcc if name == "Vcc" else d.load.R_load
+    assert value is not None
+    return step_within(name, value, (PUSH_STEP if name == "Vcc" else PULL_STEP) * value)
 
 
 def push_pull(solved: Solved) -> tuple[float | None, float | None, float | None]:
@@ -121,14 +126,15 @@ def push_pull(solved: Solved) -> tuple[float | None, float | None, float | None]
     batch = solve_designs(designs, solved.op.x, solved.f_osc, like=solved.design)
     f = [float(v) if np.isfinite(v) else None for v in batch.loop.f_osc]
     d = solved.design
-    dV = PUSH_STEP * d.supply.Vcc
-    push = (f[0] - f[1]) / (2.0 * dV) if None not in f[:2] else None
+    V_hi, V_lo = _steps(d, "Vcc")
+    push = (f[0] - f[1]) / (V_hi - V_lo) if None not in f[:2] else None
     R = d.load.R_load
     if R is None:
         return push, 0.0, None
     f_open, f_hi, f_lo = f[2:]
     shift = solved.f_osc - f_open if f_open is not None else None
-    slope = (f_hi - f_lo) / (2 * PULL_STEP * R) if None not in (f_hi, f_lo) else None
+    R_hi, R_lo = _steps(d, "R_load")
+    slope = (f_hi - f_lo) / (R_hi - R_lo) if None not in (f_hi, f_lo) else None
     return push, shift, slope
 
 

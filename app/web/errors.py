@@ -26,7 +26,7 @@ from pydantic import ValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.routing import Match
 
-from ringwise.errors import describe_validation_error
+from ringwise.errors import describe_validation_error, domain_message
 
 log = logging.getLogger("ringwise.web")
 
@@ -34,10 +34,14 @@ log = logging.getLogger("ringwise.web")
 ERROR_NAMES = {
     400: "bad-request",
     404: "not-found",
+    403: "forbidden",
     405: "method-not-allowed",
+    408: "request-timeout",
     413: "too-large",
     422: "invalid-input",
+    429: "too-many-requests",
     500: "internal-error",
+    503: "busy",
 }
 
 
@@ -125,6 +129,8 @@ def _methods_at(request: Request) -> list[str]:
         probe = {**request.scope, "method": method}
         if any(route.matches(probe)[0] == Match.FULL for route in request.app.router.routes):
             found.append(method)
+    if "GET" in found and "HEAD" not in found:
+        found.insert(found.index("GET") + 1, "HEAD")  # answered as GET (app/web/methods.py)
     return found
 
 
@@ -141,12 +147,14 @@ def install(app: FastAPI) -> None:
 
     @app.exception_handler(ValidationError)
     async def _model_invalid(request: Request, exc: ValidationError) -> JSONResponse:
-        return _respond(from_validation(exc))
+        # request bodies are validated by FastAPI (RequestValidationError) and routes turn the
+        # user's own texts into field-named problems; one left uncaught came from the core
+        return _respond(invalid("design", domain_message(exc), "domain_error"))
 
     @app.exception_handler(ValueError)
     @app.exception_handler(ArithmeticError)
     async def _domain(request: Request, exc: Exception) -> JSONResponse:
-        return _respond(invalid("design", str(exc) or type(exc).__name__, "domain_error"))
+        return _respond(invalid("design", domain_message(exc), "domain_error"))
 
     @app.exception_handler(StarletteHTTPException)
     async def _http(request: Request, exc: StarletteHTTPException) -> JSONResponse:

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from typing import Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Field, ValidationInfo, field_validator
+from pydantic_core import PydanticCustomError
 
 from ringwise.analysis.threshold import MAX_SWEEP_POINTS
 from ringwise.design import Design
@@ -14,8 +15,25 @@ from ringwise.result import Result
 DEFAULT_SWEEP_POINTS = 50
 
 
-class _In(BaseModel):
+class RequestModel(BaseModel):
+    """Base of every request body: unknown keys refused, and JSON ``true``/``false``
+    refused wherever a number or text is expected (never read as 1 or 0)."""
+
     model_config = ConfigDict(extra="forbid")
+
+    @field_validator("*", mode="before")
+    @classmethod
+    def _no_booleans(cls, value: Any, info: ValidationInfo) -> Any:
+        if isinstance(value, bool) and info.field_name is not None:
+            annotation = cls.model_fields[info.field_name].annotation
+            if annotation is not bool:
+                raise PydanticCustomError(
+                    "float_type", "must be a number, not {given}", {"given": str(value).lower()}
+                )
+        return value
+
+
+_In = RequestModel
 
 
 class SweepRequest(_In):

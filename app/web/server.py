@@ -5,20 +5,21 @@ from __future__ import annotations
 import ipaddress
 import os
 import sys
-from collections.abc import Awaitable, Callable
+from collections.abc import Awaitable, Callable, Iterable
 from pathlib import PurePosixPath
 from typing import Any, Final
 
 from fastapi import FastAPI, Request, Response
 from fastapi.middleware.gzip import GZipMiddleware
-from fastapi.responses import FileResponse, JSONResponse
+from fastapi.responses import FileResponse
 from fastapi.staticfiles import StaticFiles
-from starlette.exceptions import HTTPException as StarletteHTTPException
-from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from ringwise.web import apidocs, errors
 from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
+from ringwise.web.bodies import BODY_SECONDS, MAX_BODY_BYTES, TOO_LARGE, BodyGuard
 from ringwise.web.fields import texts_from_document
+from ringwise.web.hosts import HostGuard
+from ringwise.web.methods import HeadAsGet
 from ringwise.web.paths import STATIC_DIR
 from ringwise.web.routers import api, downloads, pages, simulate, spread, tools
 from ringwise.web.samples import DEFAULT_SAMPLE, OPENED_DESIGN, samples
@@ -45,52 +46,6 @@ SECURITY_HEADERS: Final = {
     "X-Content-Type-Options": "nosniff",
     "Referrer-Policy": "no-referrer",
 }
-
-
-#: Largest request body the server reads, bytes.  A design file or a sheet
-#: request is 1-2 kB (the design name is at most 200 characters); 64 KiB
-#: leaves ample room while a runaway upload is refused before it is read into
-#: memory (common practice, no source).
-MAX_BODY_BYTES: Final = 64 * 1024
-TOO_LARGE: Final = f"the request body is over the cap of {MAX_BODY_BYTES} bytes (MAX_BODY_BYTES)"
-
-
-class BodyLimit:
-    """Refuse request bodies over ``limit`` bytes with 413 in the API's error shape.
-
-    A declared ``Content-Length`` over the cap is answered at once, unread; a
-    body without one (chunked) is counted as it arrives and refused as soon
-    as it passes the cap.
-    """
-
-    def __init__(self, app: ASGIApp, limit: int = MAX_BODY_BYTES) -> None:
-        self.app = app
-        self.limit = limit
-
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
-            await self.app(scope, receive, send)
-            return
-        declared = dict(scope["headers"]).get(b"content-length")
-        if declared is not None and (not declared.isdigit() or int(declared) > self.limit):
-            body = errors.error_body(
-                413, TOO_LARGE, [errors.problem("body", TOO_LARGE, "too_large")]
-            )
-            await JSONResponse(body, status_code=413)(scope, receive, send)
-            return
-        seen = 0
-
-        async def counted() -> Message:
-            nonlocal seen
-            message = await receive()
-            if message["type"] == "http.request":
-                seen += len(message.get("body", b""))
-                if seen > self.limit:
-                    # re-raised by FastAPI's body reader, answered by errors.install's handler
-                    raise StarletteHTTPException(413, TOO_LARGE)
-            return message
-
-        await self.app(scope, counted, send)
 
 
 #: File kinds served from ``static/`` (the package's ``__init__.py`` is not an asset).
@@ -168,10 +123,16 @@ def _standard_bounds(node: Any) -> None:
 
 
 def create_app(
-    default_design: str = DEFAULT_SAMPLE, document: dict[str, Any] | None = None
+    default_design: str = DEFAULT_SAMPLE,
+    document: dict[str, Any] | None = None,
+    *,
+    body_seconds: float = BODY_SECONDS,
+    allow_hosts: Iterable[str] = (),
 ) -> FastAPI:
     """The web app; ``default_design`` is the sample the sheet opens on, or
-    ``document`` a design file's JSON (``ringwise serve DESIGN.json``)."""
+    ``document`` a design file's JSON (``ringwise serve DESIGN.json``);
+    ``body_seconds`` the time a request body may take to arrive, ``allow_hosts``
+    the names it answers to beside the loopback ones (app/web/hosts.py)."""
     opened = None
     if document is not None:
         opened = texts_from_document(document)
@@ -207,7 +168,12 @@ def create_app(
         return FileResponse(vendored.path, media_type="text/javascript")
 
     # added before the headers middleware, so it runs inside it: refused bodies get the headers
-    app.add_middleware(BodyLimit, limit=MAX_BODY_BYTES)
+    app.add_middleware(BodyGuard, limit=MAX_BODY_BYTES, seconds=body_seconds)
+    app.add_middleware(HeadAsGet)
+    # outside the body guard: a foreign Host or Origin is refused before any body is read
+    app.add_middleware(HostGuard, hosts=tuple(allow_hosts))
+    # "/x/" is not redirected to "/x": such a redirect is an absolute URL built from the Host
+    app.router.redirect_slashes = False
     # text answers (plotly.js is 4.8 MB, a third of that gzipped) compressed when asked for
     app.add_middleware(GZipMiddleware, minimum_size=GZIP_MIN_BYTES)
 
@@ -228,6 +194,10 @@ def create_app(
     return app
 
 
+#: Bind addresses meaning "every interface": not a name a browser would send as Host.
+WILDCARD_ADDRESSES: Final = ("0.0.0.0", "::", "")
+
+
 def _is_loopback(host: str) -> bool:
     if host == "localhost":
         return True
@@ -242,13 +212,21 @@ def serve(
     port: int = 8000,
     design: str | None = None,
     document: dict[str, Any] | None = None,
+    allow_hosts: Iterable[str] = (),
 ) -> None:
     """Serve the sheet with uvicorn until interrupted, opening on the sample
-    ``design`` or on the design file's JSON ``document``."""
+    ``design`` or on the design file's JSON ``document``.
+
+    The server answers to the loopback names, to ``host`` when it is one
+    address (not a wildcard such as 0.0.0.0), and to ``allow_hosts``.
+    """
     import uvicorn
 
+    names = list(allow_hosts)
+    if host not in WILDCARD_ADDRESSES:
+        names.append(host)
     try:
-        app = create_app(design or DEFAULT_SAMPLE, document)
+        app = create_app(design or DEFAULT_SAMPLE, document, allow_hosts=names)
     except ValueError as err:
         print(f"ringwise: {err}", file=sys.stderr)
         raise SystemExit(2) from err

@@ -92,11 +92,11 @@ def _static_context() -> dict[str, Any]:
 
 def page_context(request: Request, view: dict[str, Any]) -> dict[str, Any]:
     query = view["query"]
-    base = str(request.base_url).rstrip("/")
+    # relative: the page makes it absolute from its own origin (never from the Host header)
     return {
         **_static_context(),
         "view": view,
-        "share_url": f"{base}/?{query}" if query else f"{base}/",
+        "share_url": f"/?{query}" if query else "/",
         "summary_url": f"/summary?{query}",
         "export_url": f"/api/export?{query}",
     }

@@ -20,8 +20,8 @@ from typing import Any, Final
 from pydantic import ValidationError
 
 from ringwise.design import Design
-from ringwise.errors import describe_validation_error
-from ringwise.units import UnitError, format_si, parse_quantity
+from ringwise.errors import describe_validation_error, domain_message
+from ringwise.units import UnitError, format_si, parse_quantity, parse_whole
 from ringwise.web.errors import ApiError
 from ringwise.web.fields import BY_NAME, FIELDS, choices, display, document
 from ringwise.web.routers.spread import (
@@ -97,9 +97,9 @@ def _quantity(
 
 def _integer(name: str, text: str, problems: list) -> int | None:
     try:
-        return int(text.strip())
-    except ValueError:
-        problems.append(_problem(name, f"{text!r} is not a whole number"))
+        return parse_whole(text)
+    except UnitError as err:
+        problems.append(_problem(name, str(err)))
         return None
 
 
@@ -119,7 +119,7 @@ def _core(call: Any, *args: Any) -> Any:
     try:
         return call(*args)
     except (ValueError, ArithmeticError) as err:
-        raise _fail([_problem("design", str(err), "domain_error")]) from err
+        raise _fail([_problem("design", domain_message(err), "domain_error")]) from err
 
 
 def _percent(value: float | None) -> str:

@@ -32,7 +32,7 @@ from ringwise.display import (
     lookup,
     unit_of,
 )
-from ringwise.errors import describe_validation_error
+from ringwise.errors import describe_validation_error, domain_message
 from ringwise.web import curves
 from ringwise.web.fields import (
     BY_PATH,
@@ -250,7 +250,7 @@ def build_view(
         result = analyze(design, large_signal=with_steady).model_dump(mode="json")
         solved = solve(design)
     except (ValueError, ArithmeticError) as err:
-        problems.append({**_problem("design", str(err), "domain_error"), "input": None})
+        problems.append({**_problem("design", domain_message(err), "domain_error"), "input": None})
         return view
     options = curves.sweepable(design)
     setter = gain_setter(design)

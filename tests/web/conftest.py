@@ -7,6 +7,7 @@ enable them, unless RINGWISE_REQUIRE_BROWSER=1 (as in CI), where they fail.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import shutil
@@ -40,7 +41,8 @@ ENABLE_HINT = (
 
 @pytest.fixture(scope="session")
 def client() -> Iterator[TestClient]:
-    with TestClient(create_app(), raise_server_exceptions=False) as c:
+    # a loopback Host, as a browser on this computer sends (app/web/hosts.py refuses others)
+    with TestClient(create_app(), base_url="http://127.0.0.1", raise_server_exceptions=False) as c:
         yield c
 
 
@@ -56,15 +58,13 @@ def _free_port() -> int:
         return s.getsockname()[1]
 
 
-@pytest.fixture(scope="session")
-def live_server() -> Iterator[str]:
-    """The real app under uvicorn on a free port, in a background thread."""
+@contextlib.contextmanager
+def serving(app: Any) -> Iterator[str]:
+    """``app`` under uvicorn on a free loopback port, in a background thread; its URL."""
     import uvicorn
 
     port = _free_port()
-    server = uvicorn.Server(
-        uvicorn.Config(create_app(), host="127.0.0.1", port=port, log_level="warning")
-    )
+    server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning"))
     thread = threading.Thread(target=server.run, daemon=True)
     thread.start()
     deadline = time.monotonic() + 10
@@ -72,9 +72,18 @@ def live_server() -> Iterator[str]:
         if time.monotonic() > deadline:  # pragma: no cover - a broken start
             raise RuntimeError("the test server did not start")
         time.sleep(0.02)
-    yield f"http://127.0.0.1:{port}"
-    server.should_exit = True
-    thread.join(timeout=5)
+    try:
+        yield f"http://127.0.0.1:{port}"
+    finally:
+        server.should_exit = True
+        thread.join(timeout=10)
+
+
+@pytest.fixture(scope="session")
+def live_server() -> Iterator[str]:
+    """The real app under uvicorn on a free port, in a background thread."""
+    with serving(create_app()) as url:
+        yield url
 
 
 def _need(tool: str) -> str | None:

@@ -32,8 +32,8 @@ def test_analyze_returns_the_core_result(client, key):
     [
         ("tank", "L", "47uF", "'47uF' carries the unit 'F', this field takes 'H'"),
         ("tank", "C2", "abc", "'abc' is not a number; write e.g. 2.2n, 2n2, 39k or 1e-6"),
-        ("bias", "RB2", 0, "must be at least 0.001, got 0"),
-        ("supply", "Vcc", "2k", "must be at most 1000, got '2k'"),
+        ("bias", "RB2", 0, "must be at least 1 mΩ, got 0 Ω"),
+        ("supply", "Vcc", "2k", "must be at most 1 kV, got '2k' = 2 kV"),
         ("tank", "bogus", 1, "is not a field of the design format"),
     ],
 )

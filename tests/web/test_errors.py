@@ -12,11 +12,11 @@ def test_field_error_exact_body(client, sample):
     assert r.json() == {
         "status": 422,
         "error": "invalid-input",
-        "message": "tank.C2: must be at least 1e-15, got '-1'",
+        "message": "tank.C2: must be at least 1 fF, got '-1' = -1 F",
         "problems": [
             {
                 "field": "tank.C2",
-                "message": "must be at least 1e-15, got '-1'",
+                "message": "must be at least 1 fF, got '-1' = -1 F",
                 "type": "greater_than_equal",
             }
         ],
@@ -64,7 +64,7 @@ def test_sweep_cap_exact_body(client, sample):
             "post",
             "/api/analyze",
             {"content": b"{not json", "headers": {"content-type": "application/json"}},
-            422,
+            400,
         ),
         ("post", "/api/analyze", {"content": b"plain text"}, 422),
         ("post", "/api/analyze", {"json": [1, 2]}, 422),
@@ -88,5 +88,10 @@ def test_malformed_json_names_the_body(client):
     r = client.post(
         "/api/analyze", content=b"{not json", headers={"content-type": "application/json"}
     )
+    assert r.status_code == 400
     assert r.json()["problems"][0]["field"] == "body"
-    assert r.json()["problems"][0]["message"] == "is not valid JSON"
+    # says where parsing stopped
+    assert r.json()["problems"][0]["message"] == (
+        "is not valid JSON: expecting property name enclosed in double quotes "
+        "at line 1, column 2 (character 1)"
+    )

@@ -31,7 +31,7 @@ from typing import Annotated, Any, Final, Literal
 
 from fastapi import APIRouter, Query, Request, Response
 from fastapi.responses import JSONResponse
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, Field
 
 from ringwise.analysis.transient import (
     MAX_CYCLES,
@@ -41,10 +41,12 @@ from ringwise.analysis.transient import (
     simulate,
 )
 from ringwise.design import Design
+from ringwise.errors import domain_message
 from ringwise.exports import columns_csv, result_series
 from ringwise.result import SimulationResult
 from ringwise.web.dependencies import csv_response
 from ringwise.web.errors import ApiError, error_body, invalid
+from ringwise.web.schemas import RequestModel
 from ringwise.web.view import run_view
 
 log = logging.getLogger("ringwise.web")
@@ -72,9 +74,7 @@ KEEP_SECONDS: Final = 600.0
 State = Literal["running", "done", "cancelled", "failed"]
 
 
-class SimulateRequest(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-
+class SimulateRequest(RequestModel):
     design: Design
     cycles: int = Field(
         DEFAULT_CYCLES,
@@ -134,7 +134,7 @@ def _run(req: SimulateRequest, progress: Any = None) -> dict[str, Any]:
 def _failure(err: Exception) -> dict[str, Any]:
     """The error body a failed run reports (domain errors are the user's to fix)."""
     if isinstance(err, ValueError | ArithmeticError):
-        return error_body(422, f"design: {err}", [_problem(str(err))])
+        return error_body(422, f"design: {domain_message(err)}", [_problem(domain_message(err))])
     log.error("simulation failed", exc_info=err)
     return error_body(500, "unexpected error in the simulation; please report it", [])
 

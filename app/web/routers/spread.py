@@ -6,10 +6,10 @@ run does not hold up the event loop (and so other tabs' sheets).
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Literal
+from typing import Any, Literal
 
 from fastapi import APIRouter
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import Field
 
 from ringwise.analysis.reconcile import reconcile
 from ringwise.analysis.spread import DEFAULT_SAMPLES, MAX_SAMPLES, spread_result
@@ -17,7 +17,9 @@ from ringwise.analysis.startup import MARGINAL_BELOW
 from ringwise.analysis.synthesis import DEFAULT_GAIN, synthesize
 from ringwise.design import PARAMETERS, Design, Topology
 from ringwise.preferred import SERIES, snap_design
+from ringwise.quantities import SI
 from ringwise.result import SpreadResult
+from ringwise.web.schemas import RequestModel
 
 router = APIRouter(prefix="/api", tags=["spread"])
 
@@ -26,13 +28,12 @@ ERRORS: dict[int | str, dict[str, Any]] = {
 }
 
 
-class _In(BaseModel):
-    model_config = ConfigDict(extra="forbid")
+_In = RequestModel
 
 
 class Window(_In):
-    low: float = Field(ge=1e-3, le=1e10, description="Lowest acceptable f_osc, Hz")
-    high: float = Field(ge=1e-3, le=1e10, description="Highest acceptable f_osc, Hz")
+    low: SI("Hz", ge=1e-3, le=1e10) = Field(description="Lowest acceptable f_osc, Hz")
+    high: SI("Hz", ge=1e-3, le=1e10) = Field(description="Highest acceptable f_osc, Hz")
 
 
 class SpreadRequest(_In):
@@ -41,8 +42,8 @@ class SpreadRequest(_In):
         default=DEFAULT_SAMPLES, ge=1, le=MAX_SAMPLES, description=f"Samples, at most {MAX_SAMPLES}"
     )
     seed: int = Field(default=1, ge=0, le=2**32 - 1, description="Random seed (reproducible)")
-    margin: float = Field(
-        default=MARGINAL_BELOW, gt=1, le=100, description="Loop gain the margin yield asks for"
+    margin: SI("", gt=1, le=100) = Field(
+        default=MARGINAL_BELOW, description="Loop gain the margin yield asks for"
     )
     window: Window | None = None
 
@@ -90,12 +91,12 @@ def post_snap(req: SnapRequest) -> SnapOut:
 
 class SynthesizeRequest(_In):
     topology: Topology = Topology.CE
-    f: Annotated[float, Field(ge=1e3, le=1e9, description="Target frequency, Hz")]
-    Vcc: Annotated[float, Field(ge=0.5, le=1000, description="Supply, V")]
-    IC: Annotated[float, Field(ge=1e-6, le=1.0, description="Collector current, A")]
-    gain: float = Field(default=DEFAULT_GAIN, gt=1, le=20, description="Target loop gain")
-    L: float | None = Field(default=None, ge=1e-12, le=1e3, description="Inductor to use, H")
-    ratio: float | None = Field(default=None, ge=0.01, le=100, description="C1/C2 to use")
+    f: SI("Hz", ge=1e3, le=1e9) = Field(description="Target frequency, Hz")
+    Vcc: SI("V", ge=0.5, le=1000) = Field(description="Supply, V")
+    IC: SI("A", ge=1e-6, le=1.0) = Field(description="Collector current, A")
+    gain: SI("", gt=1, le=20) = Field(default=DEFAULT_GAIN, description="Target loop gain")
+    L: SI("H", ge=1e-12, le=1e3) | None = Field(default=None, description="Inductor to use, H")
+    ratio: SI("", ge=0.01, le=100) | None = Field(default=None, description="C1/C2 to use")
 
 
 class SynthesisOut(_In):
@@ -116,15 +117,15 @@ def post_synthesize(req: SynthesizeRequest) -> SynthesisOut:
 
 class ThresholdReading(_In):
     param: Literal[tuple(PARAMETERS)]  # type: ignore[valid-type]
-    value: float = Field(ge=1e-15, le=1e12, description="Value at which it started (SI)")
+    value: SI("", ge=1e-15, le=1e12) = Field(description="Value at which it started (SI)")
 
 
 class ReconcileRequest(_In):
     design: Design
-    f_measured: float = Field(ge=1.0, le=1e10, description="Measured frequency, Hz")
+    f_measured: SI("Hz", ge=1.0, le=1e10) = Field(description="Measured frequency, Hz")
     threshold: ThresholdReading | None = None
-    amplitude: float | None = Field(
-        default=None, ge=1e-6, le=1e4, description="Measured amplitude at the output node, V"
+    amplitude: SI("V", ge=1e-6, le=1e4) | None = Field(
+        default=None, description="Measured amplitude at the output node, V"
     )
 
 

@@ -7,10 +7,11 @@ from __future__ import annotations
 from typing import Any
 
 from fastapi import APIRouter
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import Field
 
 from ringwise.web import tools
 from ringwise.web.dependencies import ERRORS, form_texts
+from ringwise.web.schemas import RequestModel
 
 router = APIRouter(prefix="/api/sheet", tags=["sheet tools"])
 
@@ -18,8 +19,7 @@ router = APIRouter(prefix="/api/sheet", tags=["sheet tools"])
 TEXT_MAX = 200
 
 
-class _In(BaseModel):
-    model_config = ConfigDict(extra="forbid")
+_In = RequestModel
 
 
 class SheetSpreadRequest(_In):
