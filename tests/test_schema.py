@@ -21,7 +21,7 @@ def client():
 
     from ringwise.web.server import create_app
 
-    with TestClient(create_app()) as c:
+    with TestClient(create_app(), base_url="http://127.0.0.1") as c:
         yield c
 
 

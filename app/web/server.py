@@ -227,6 +227,8 @@ def serve(
         names.append(host)
     try:
         app = create_app(design or DEFAULT_SAMPLE, document, allow_hosts=names)
+        shown = f"[{host}]" if ":" in host else host
+        app.state.served_at = "" if host in WILDCARD_ADDRESSES else f"http://{shown}:{port}"
     except ValueError as err:
         print(f"ringwise: {err}", file=sys.stderr)
         raise SystemExit(2) from err

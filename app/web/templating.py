@@ -97,6 +97,9 @@ def page_context(request: Request, view: dict[str, Any]) -> dict[str, Any]:
         **_static_context(),
         "view": view,
         "share_url": f"/?{query}" if query else "/",
+        # where `ringwise serve` listens, as it was started (never the request's Host header);
+        # blank in-process, where the printed link stays relative
+        "served_at": getattr(request.app.state, "served_at", ""),
         "summary_url": f"/summary?{query}",
         "export_url": f"/api/export?{query}",
     }

@@ -106,7 +106,7 @@ def test_the_app_opens_a_design_file_of_the_users(sample):
     from ringwise.web.server import create_app
 
     mine = {**sample, "name": "my own bench oscillator", "tank": {**sample["tank"], "L": "82u"}}
-    with TestClient(create_app(document=mine)) as c:
+    with TestClient(create_app(document=mine), base_url="http://127.0.0.1") as c:
         sheet = c.get("/sheet.json").json()
         assert sheet["fields"]["name"]["text"] == "my own bench oscillator"
         assert sheet["fields"]["L"]["text"] == "82u"
