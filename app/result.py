@@ -8,7 +8,7 @@ warnings say why.
 from __future__ import annotations
 
 import math
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, Literal, TypeVar
 
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
 
@@ -26,6 +26,20 @@ Num = Annotated[float | None, BeforeValidator(_finite_or_none)]
 
 class _Out(BaseModel):
     model_config = ConfigDict(extra="forbid")
+
+
+M = TypeVar("M", bound=BaseModel)
+
+
+def from_attributes(model: type[M], source: object, **given: Any) -> M:
+    """The one conversion of an analysis object into the model the API serves:
+    every field from the attribute of the same name, except those ``given``."""
+    return model.model_validate(
+        {
+            name: given[name] if name in given else getattr(source, name)
+            for name in model.model_fields
+        }
+    )
 
     def _repr_html_(self) -> str:
         """A notebook shows a result as a table (:mod:`ringwise.notebook`)."""

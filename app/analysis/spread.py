@@ -343,6 +343,7 @@ def spread_out(design: Design, r: Spread):
         SpreadResult,
         TemperaturePointOut,
         WorstCaseOut,
+        from_attributes,
     )
 
     tol = design.tolerances
@@ -369,15 +370,11 @@ def spread_out(design: Design, r: Spread):
 
     return SpreadResult(
         name=design.name,
-        spread=SpreadOut(
-            samples=r.samples,
-            seed=r.seed,
+        spread=from_attributes(
+            SpreadOut,
+            r,
             temperatures_C=list(r.temperatures),
-            margin=r.margin,
-            yield_start=r.yield_start,
-            yield_margin=r.yield_margin,
             yield_by_temperature={f"{k:g}": v for k, v in r.yield_by_temperature.items()},
-            in_window=r.in_window,
             window=list(r.window) if r.window else None,
             f_osc=pct(r.f_percentiles),
             gain=pct(r.gain_percentiles),
