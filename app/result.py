@@ -27,6 +27,12 @@ Num = Annotated[float | None, BeforeValidator(_finite_or_none)]
 class _Out(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
+    def _repr_html_(self) -> str:
+        """A notebook shows a result as a table (:mod:`ringwise.notebook`)."""
+        from ringwise.notebook import html_table
+
+        return html_table(self)
+
 
 M = TypeVar("M", bound=BaseModel)
 
@@ -40,12 +46,6 @@ def from_attributes(model: type[M], source: object, **given: Any) -> M:
             for name in model.model_fields
         }
     )
-
-    def _repr_html_(self) -> str:
-        """A notebook shows a result as a table (:mod:`ringwise.notebook`)."""
-        from ringwise.notebook import html_table
-
-        return html_table(self)
 
 
 class OperatingPointOut(_Out):
