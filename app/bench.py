@@ -20,7 +20,7 @@ from ringwise.resources import sample_files
 
 #: Targets, seconds.
 ANALYZE_TARGET: Final = 5e-3
-SWEEP_TARGET: Final = 200e-3
+SWEEP_TARGET: Final = 100e-3
 SWEEP_POINTS: Final = 200
 TRANSIENT_CYCLES: Final = 300
 SPREAD_SAMPLES: Final = 10_000
@@ -188,25 +188,28 @@ def bench_spread() -> list[str]:
     from ringwise.analysis.spread import draw, monte_carlo, sample_design
 
     d = Design.model_validate(json.loads(sample_files()[0].read_text(encoding="utf-8")))
-    t0 = time.perf_counter()
+    monte_carlo(d, samples=SPREAD_LOOP_SAMPLES, seed=1)  # warm-up
+    t0, c0 = time.perf_counter(), time.process_time()
     r = monte_carlo(d, samples=SPREAD_SAMPLES, seed=1)
-    t_batch = time.perf_counter() - t0
+    t_batch, c_batch = time.perf_counter() - t0, time.process_time() - c0
     draws = draw(d, SPREAD_LOOP_SAMPLES, seed=1)
     designs = [
         sample_design(d, draws, i, T)
         for i in range(SPREAD_LOOP_SAMPLES)
         for T in draws.temperatures
     ]
-    t0 = time.perf_counter()
+    c0 = time.process_time()
     for one in designs:
         solve(one)
-    per_solve = (time.perf_counter() - t0) / len(designs)
-    t_loop = per_solve * SPREAD_SAMPLES * len(r.temperatures)
+    per_solve = (time.process_time() - c0) / len(designs)
+    c_loop = per_solve * SPREAD_SAMPLES * len(r.temperatures)
     return [
-        f"spread: {SPREAD_SAMPLES} samples x {len(r.temperatures)} temperatures (wall time):",
-        f"  batched {t_batch:6.2f} s (target ≤ {SPREAD_TARGET:g} s)   looping the single-design "
-        f"solve would take {t_loop:6.1f} s ({per_solve * 1e3:.2f} ms each, measured on "
-        f"{len(designs)})   speed-up x{t_loop / t_batch:5.1f} (target ≥ 50)",
+        f"spread: {SPREAD_SAMPLES} samples x {len(r.temperatures)} temperatures "
+        "(CPU time of this process; wall time beside it):",
+        f"  batched {c_batch:6.2f} s (target ≤ {SPREAD_TARGET:g} s; wall {t_batch:.2f} s)   "
+        f"looping the single-design solve would take {c_loop:6.1f} s "
+        f"({per_solve * 1e3:.2f} ms each, measured on {len(designs)})   "
+        f"speed-up x{c_loop / c_batch:5.1f} (target ≥ 50)",
     ]
 
 
