@@ -96,13 +96,58 @@ class Tank(_Part):
     C3: Farads | None = Field(default=None, description="Clapp capacitor in series with L, F")
 
 
+class Crystal(_Part):
+    r"""A quartz crystal in place of the coil: the Butterworth–Van Dyke model.
+
+    Motional arm R_x1 + L_x1 + C_x1 in series, shunted by C_x0.  L_x1 is
+    entered, or follows from the series resonance f_xs:
+    :math:`L_1 = 1/((2\pi f_s)^2 C_1)`.
+    """
+
+    R_x1: Ohms = Field(description="Motional resistance R₁ (the ESR at series resonance), Ω")
+    L_x1: Henries | None = Field(default=None, description="Motional inductance L₁, H")
+    f_xs: Hertz | None = Field(
+        default=None, description="Series resonance f_s = 1/(2π√(L₁C₁)), Hz (instead of L₁)"
+    )
+    C_x1: Farads = Field(description="Motional capacitance C₁, F")
+    C_x0: Farads = Field(description="Shunt (holder) capacitance C₀, F")
+    P_xmax: Annotated[float, _si("W"), Field(ge=1e-9, le=1.0)] | None = Field(
+        default=None, description="Drive-level rating, W (none: not checked)"
+    )
+
+    @model_validator(mode="after")
+    def _one_inductance(self) -> Crystal:
+        if (self.L_x1 is None) == (self.f_xs is None):
+            raise ValueError("give the crystal's L_x1 or its series resonance f_xs, one of the two")
+        return self
+
+    @property
+    def L1(self) -> float:
+        """Motional inductance, H (entered, or from f_xs and C_x1)."""
+        if self.L_x1 is not None:
+            return self.L_x1
+        assert self.f_xs is not None
+        return 1.0 / ((2.0 * math.pi * self.f_xs) ** 2 * self.C_x1)
+
+
 class Coupling(_Part):
     Cc1: Farads = Field(description="DC block from the transistor's output terminal to the tank, F")
     Cc2: Farads = Field(description="DC block from the tank to the transistor's input terminal, F")
 
 
 class Load(_Part):
-    R_load: Ohms | None = Field(default=None, description="Load on the output tank node, Ω")
+    R_load: Ohms | None = Field(
+        default=None,
+        description="Load on the output tank node (a resistor or a buffer's input resistance), Ω",
+    )
+    C_load: Farads | None = Field(
+        default=None, description="Buffer's input capacitance across the load, F (none: none)"
+    )
+    change: Annotated[float, _si(""), Field(ge=0.001, le=0.9)] = Field(
+        default=0.1,
+        description="Load change for the pulling figure: R_load falls and C_load rises by "
+        "this fraction",
+    )
 
 
 class Device(_Part):
@@ -171,7 +216,7 @@ DEFAULT_DIELECTRIC: Final[dict[str, str]] = {
 }  # fmt: skip
 #: Parts that may carry a tolerance of their own.
 TOLERANCED_PARTS: Final = (
-    "RB1", "RB2", "RC", "RE", "R_load", *CAPACITOR_PARTS, "L", "Q_L", "L_ch", "Q_ch",
+    "RB1", "RB2", "RC", "RE", "R_load", "C_load", *CAPACITOR_PARTS, "L", "Q_L", "L_ch", "Q_ch",
 )  # fmt: skip
 
 
@@ -232,7 +277,7 @@ class Tolerances(_Part):
             return self.L
         if part in ("Q_L", "Q_ch"):
             return self.Q_L
-        return self.C if part in CAPACITOR_PARTS else self.R
+        return self.C if part in (*CAPACITOR_PARTS, "C_load") else self.R
 
     def dielectric_of(self, part: str) -> str:
         return self.dielectric.get(part, DEFAULT_DIELECTRIC[part])
@@ -248,6 +293,9 @@ class Design(_Part):
     supply: Supply
     bias: Bias
     tank: Tank
+    crystal: Crystal | None = Field(
+        default=None, description="A crystal in place of the coil (tank L and Q_L unused)"
+    )
     coupling: Coupling
     load: Load = Field(default_factory=Load)
     device: Device
@@ -333,6 +381,13 @@ PARAMETERS: Final[dict[str, str]] = {
     "Cc1": "coupling",
     "Cc2": "coupling",
     "R_load": "load",
+    "R_x1": "crystal",
+    "L_x1": "crystal",
+    "f_xs": "crystal",
+    "C_x1": "crystal",
+    "C_x0": "crystal",
+    "P_xmax": "crystal",
+    "C_load": "load",
     "beta": "device",
     "IS": "device",
     "VA": "device",
@@ -349,7 +404,8 @@ def get_param(design: Design, name: str) -> float | None:
     if name == "temperature_C":
         return design.temperature_C
     section = _section_of(name)
-    return getattr(getattr(design, section), name)
+    part = getattr(design, section)
+    return None if part is None else getattr(part, name)
 
 
 def with_param(design: Design, name: str, value: float) -> Design:

@@ -3,10 +3,10 @@
 The sheet, the summary, the JSON twins and the command line's table all
 read these tables; nothing else lists which figures exist or what they are
 called.  Units are SI symbols (``"Hz"``, ``"Ω"``, ``"A"``) or a few named
-kinds: ``""`` a plain ratio, ``"dB"``, ``"%"`` a fraction shown in per cent,
-``"text"`` a word, ``"yesno"`` a flag, ``"behaviour"`` the steady state's
-behaviour in words, ``"cycles"`` a count of periods, and ``"param"`` the unit
-of the threshold's parameter
+kinds: ``""`` a plain ratio, ``"dB"``, ``"dBm"``, ``"dBc"``, ``"ppm"``, ``"ppm/pF"``,
+``"%"`` a fraction shown in per cent, ``"text"`` a word, ``"yesno"`` a flag,
+``"behaviour"`` the steady state's behaviour in words, ``"cycles"`` a count of
+periods, and ``"param"`` the unit of the threshold's parameter
 (:data:`PARAM_UNITS`).  Formatting to text happens only here and in
 :mod:`ringwise.units`.
 """
@@ -79,6 +79,24 @@ SHOWN: Final = tuple(
         ("operating_point.region", "text", "Region", "bias"),
         ("small_signal.gm", "S", "g_m", "bias"),
         ("small_signal.r_pi", "Ω", "r_π", "bias"),
+        ("crystal.ppm_from_fs", "ppm", "Frequency against the series resonance", "crystal"),
+        ("crystal.f_s", "Hz", "Series resonance f_s", "crystal"),
+        ("crystal.f_p", "Hz", "Parallel resonance f_p", "crystal"),
+        ("crystal.C_load", "F", "Load capacitance the circuit presents", "crystal"),
+        ("crystal.R_neg", "Ω", "Negative resistance at the motional arm", "crystal"),
+        ("crystal.margin", "", "Its ratio to R₁ (rule: ≥ 5)", "crystal"),
+        ("crystal.pulling_ppm_per_pF", "ppm/pF", "Pulling by the load capacitance", "crystal"),
+        ("crystal.P_drive", "W", "Drive level (steady state)", "crystal"),
+        ("crystal.P_rating", "W", "Drive-level rating", "crystal"),
+        ("crystal.startup_time", "s", "Startup time (growth rate, from 1 µV)", "crystal"),
+        ("output.P_dBm", "dBm", "Power into the load", "output"),
+        ("output.P", "W", "Power into the load, watts", "output"),
+        ("output.V_rms", "V", "Voltage across the load, RMS", "output"),
+        ("output.V_peak", "V", "Voltage across the load, peak", "output"),
+        ("output.harmonics_dBc.0", "dBc", "2nd harmonic at the load", "output"),
+        ("output.harmonics_dBc.1", "dBc", "3rd harmonic at the load", "output"),
+        ("output.change", "%", "Load change for the pulling figure", "output"),
+        ("output.pull_ppm", "ppm", "Frequency moved by that change", "output"),
     )
 )
 
@@ -87,10 +105,15 @@ PANELS: Final = (
     ("loop", "Loop gain and startup"),
     ("swing", "Steady oscillation (periodic steady state)"),
     ("bias", "Operating point"),
+    ("output", "Into the load (periodic steady state)"),
+    ("crystal", "Crystal"),
 )
+#: Panels shown only when the result has their section (a load, a crystal).
+OPTIONAL_PANELS: Final = ("output", "crystal")
 
-#: The summary's panels (its stability block and steady-state line are its own).
-SUMMARY_PANELS: Final = tuple(p for p in PANELS if p[0] != "swing")
+#: The summary's panels (its stability block, steady-state, load and crystal
+#: lines are its own).
+SUMMARY_PANELS: Final = tuple(p for p in PANELS if p[0] not in ("swing", *OPTIONAL_PANELS))
 
 #: The stability panel's figures besides the phase-noise points: (path, unit, label).
 STABILITY_SHOWN: Final = tuple(
@@ -141,7 +164,8 @@ ORDINALS: Final = ("2nd", "3rd", "4th", "5th", "6th", "7th", "8th", "9th")
 PARAM_UNITS: Final = {
     "Vcc": "V", "RB1": "Ω", "RB2": "Ω", "RC": "Ω", "RE": "Ω", "R_load": "Ω",
     "CE": "F", "CB": "F", "C1": "F", "C2": "F", "C3": "F", "Cc1": "F", "Cc2": "F",
-    "L": "H", "Q_L": "", "L_ch": "H", "Q_ch": "", "f_ch": "Hz",
+    "L": "H", "Q_L": "", "L_ch": "H", "Q_ch": "", "f_ch": "Hz", "C_load": "F",
+    "R_x1": "Ω", "L_x1": "H", "f_xs": "Hz", "C_x1": "F", "C_x0": "F", "P_xmax": "W",
     "beta": "", "IS": "A", "VA": "V", "fT": "Hz", "C_mu": "F",
     "F_dB": "dB", "f_corner": "Hz", "V_cap": "V", "temperature_C": "°C",
 }  # fmt: skip
@@ -169,6 +193,8 @@ BEHAVIOUR_WORDS: Final = {
     "unstable": "leaves its periodic orbit (unstable)",
     "no-orbit": "no steady oscillation",
 }
+#: Units shown as plain numbers with the unit, never with an SI prefix.
+LOG_UNITS: Final = ("dBm", "dBc", "ppm", "ppm/pF")
 
 
 def format_value(value: Any, unit: str) -> str:
@@ -189,6 +215,8 @@ def format_value(value: Any, unit: str) -> str:
         return "—"
     if unit == "%":
         return f"{100.0 * value:.3g} %"
+    if unit in LOG_UNITS:
+        return f"{value:.4g} {unit}"
     if unit in ("", "dB"):
         text = f"{value:.4g}"
         return f"{text} dB" if unit == "dB" else text

@@ -247,6 +247,40 @@ class StabilityOut(_Out):
     parts: list[PartStressOut]
 
 
+class OutputOut(_Out):
+    """What the oscillator delivers into its load (from the periodic steady state)."""
+
+    R_load: Num = Field(description="Load resistance at the output node, Ω")
+    C_load: Num = Field(description="Load capacitance across it, F (null: none)")
+    V_rms: Num = Field(description="RMS voltage across the load, V (null: no steady orbit)")
+    V_peak: Num = Field(description="Largest |v| across the load, V")
+    P: Num = Field(description="Power delivered into R_load, V_rms²/R_load, W")
+    P_dBm: Num = Field(description="Power delivered into R_load, dBm (re 1 mW)")
+    harmonics_dBc: list[Num] = Field(description="2nd, 3rd … harmonics at the load, dBc")
+    change: Num = Field(description="Stated load change for the pulling figure, fraction")
+    pull_ppm: Num = Field(
+        description="f_osc with R_load·(1 − change), C_load·(1 + change) against as entered, ppm"
+    )
+
+
+class CrystalOut(_Out):
+    """A crystal in place of the coil: its figures against the circuit's."""
+
+    f_s: Num = Field(description="Series resonance 1/(2π√(L₁C₁)), Hz")
+    f_p: Num = Field(description="Parallel resonance f_s·√(1 + C₁/C₀), Hz")
+    R1: Num = Field(description="Motional resistance R₁ (ESR), Ω")
+    L1: Num = Field(description="Motional inductance L₁, H")
+    ppm_from_fs: Num = Field(description="f_osc against f_s, ppm")
+    C_load: Num = Field(description="Load capacitance the circuit presents at f_osc, F")
+    f_load: Num = Field(description="f_s·(1 + C₁/(2(C₀ + C_L))) at that load, Hz")
+    R_neg: Num = Field(description="Negative resistance the circuit shows the motional arm, Ω")
+    margin: Num = Field(description="|R_neg| / R₁ (≥ 5 common practice)")
+    pulling_ppm_per_pF: Num = Field(description="df/dC_L, ppm per pF of load capacitance")
+    P_drive: Num = Field(description="Drive level: power in R₁ from the steady state, W")
+    P_rating: Num = Field(description="Drive-level rating entered, W")
+    startup_time: Num = Field(description="ln(A_ss/1 µV)/σ from the growth rate, s")
+
+
 class Result(_Out):
     format: Literal["ringwise.result"] = "ringwise.result"
     version: Literal[1] = 1
@@ -263,6 +297,12 @@ class Result(_Out):
     )
     verdict: VerdictOut
     stability: StabilityOut
+    crystal: CrystalOut | None = Field(
+        default=None, description="The crystal's figures (null: a coil in the tank)"
+    )
+    output: OutputOut | None = Field(
+        default=None, description="Power, voltage and harmonics at the load (null: no load)"
+    )
     warnings: list[WarningOut]
 
 

@@ -233,6 +233,9 @@ function render(view) {
   exportLink.setAttribute("aria-disabled", view.ok ? "false" : "true");
   exportLink.title = view.ok ? "" : "Fix the marked fields to export";
   if (!view.ok) return;
+  for (const panel of $$("[data-panel]")) {
+    if (panel.dataset.panel in view.result) panel.hidden = view.result[panel.dataset.panel] === null;
+  }
   for (const el of $$(SEL.figures)) {
     const figure = view.shown[el.dataset.field];
     if (!figure) continue;

@@ -8,7 +8,9 @@ from typing import Final
 
 from ringwise.analysis.budget import loop_budget
 from ringwise.analysis.checks import Finding, choke_checks, rule_checks, steady_checks
+from ringwise.analysis.crystal import crystal_checks, crystal_figures
 from ringwise.analysis.operating import solve
+from ringwise.analysis.output import load_output
 from ringwise.analysis.periodic import SteadyState, steady_state
 from ringwise.analysis.poles import natural_frequencies
 from ringwise.analysis.stability import stability
@@ -21,6 +23,7 @@ from ringwise.circuit.topologies import OUTPUT_NODE_LABEL, T1, gain_setter, hand
 from ringwise.design import Design
 from ringwise.result import (
     BudgetLineOut,
+    CrystalOut,
     GainStoryOut,
     LoopOut,
     LossOut,
@@ -28,6 +31,7 @@ from ringwise.result import (
     NoiseCurveOut,
     NoisePointOut,
     OperatingPointOut,
+    OutputOut,
     PartStressOut,
     PeriodOut,
     PoleOut,
@@ -106,6 +110,9 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
         findings.append(Finding("no-threshold", threshold.reason))
     dom = poles.dominant
     hand = hand_formula(design, hp.gm)
+    output = load_output(s, ss)
+    crystal = crystal_figures(s, ss, poles)
+    findings += crystal_checks(crystal)
     story = gain_story(hand, gain, budget) if gain is not None else None
     return Result(
         name=design.name,
@@ -179,6 +186,8 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
             pulling_Hz_per_ohm=st.pulling_Hz_per_ohm,
             parts=[PartStressOut(**vars(p)) for p in st.parts],
         ),
+        output=None if output is None else OutputOut(**vars(output)),
+        crystal=None if crystal is None else CrystalOut(**vars(crystal)),
         warnings=[WarningOut(code=f.code, message=f.message) for f in findings],
     )
 

@@ -56,6 +56,7 @@ from ringwise.circuit.topologies import (
     choke_loss,
     choke_self_capacitance,
     coil_loss,
+    crystal_frequency,
     device_params_at,
 )
 from ringwise.design import PARAMETERS, Design, get_param
@@ -72,6 +73,8 @@ def part_values(design: Design) -> dict[str, float | None]:
     """Every part and device value of ``design`` by its parameter name (SI; °C)."""
     values = {name: get_param(design, name) for name in PARAMETERS}
     values["temperature_C"] = design.temperature_C
+    if design.crystal is not None:
+        values["L_x1"] = design.crystal.L1  # entered, or from f_xs
     return values
 
 
@@ -84,6 +87,8 @@ def structure_of(design: Design) -> tuple:
         design.choke_fed and design.bias.f_ch is not None,
         design.tank.C3 is not None,
         design.load.R_load is not None,
+        design.load.C_load is not None,
+        design.crystal is not None,
     )
 
 
@@ -139,7 +144,10 @@ def stamp_values(
         elif fld == "C":
             out[(name, fld)] = _value(values[name] if _present(values, name) else 0.0, batch)
         elif fld == "L":
-            out[(name, fld)] = _value(values["L"], batch)
+            L = values["L_x1"] if _present(values, "C_x1") else values["L"]
+            out[(name, fld)] = _value(L, batch)
+        elif fld == "R_s" and _present(values, "C_x1"):
+            out[(name, fld)] = _value(values["R_x1"], batch)  # the crystal's motional arm
         elif fld == "R_s":
             out[(name, fld)] = _value(coil_loss(values["L"], C_s, values["Q_L"]), batch)
         elif fld == "V":
@@ -155,6 +163,11 @@ def _present(values: PartValues, name: str) -> bool:
 def f_ideal_of(values: PartValues, batch: int) -> np.ndarray:
     """1/(2π√(L·C_s)) of every member, Hz."""
     C_s = 1.0 / sum(1.0 / _array(values[c], batch) for c in TANK_CAPACITORS if _present(values, c))
+    if _present(values, "C_x1"):
+        return crystal_frequency(
+            _array(values["L_x1"], batch), _array(values["C_x1"], batch),
+            _array(values["C_x0"], batch), C_s,
+        )  # fmt: skip
     return 1.0 / (2.0 * np.pi * np.sqrt(_array(values["L"], batch) * C_s))
 
 

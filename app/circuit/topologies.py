@@ -62,6 +62,9 @@ from ringwise.units import format_si
 VCC, COLLECTOR, BASE, EMITTER = "vcc", "c", "b", "e"
 #: Tank corners: t1 faces the output terminal, t2 the other; tl sits between L and C3.
 T1, T2, TL = "t1", "t2", "tl"
+#: The crystal's inner node (between its motional inductance and capacitance),
+#: and the netlist names of its motional and shunt capacitances.
+TX, CRYSTAL_C1, CRYSTAL_C0 = "tx", "C_x1", "C_x0"
 
 #: Which resistor sets the loop gain in each form (the threshold finder's default).
 GAIN_SETTER: Final = {Topology.CE: "RC", Topology.CB: "RC", Topology.CC: "RE"}
@@ -106,9 +109,22 @@ def coil_loss(L, C_series, Q_L):
     return L / (np.sqrt(L * C_series) * Q_L)
 
 
+def crystal_frequency(L1, C1, C0, C_L):
+    r"""Resonance of the crystal with the load capacitance C_L across it, Hz:
+    :math:`1/(2\pi\sqrt{L_1\,C_1 (C_0 + C_L)/(C_1 + C_0 + C_L)})`, the motional
+    arm in series with C₀ + C_L (lossless; floats or arrays).  For C₁ ≪ C₀ + C_L
+    this is :math:`f_s (1 + C_1/(2(C_0 + C_L)))` (IEC 60444, from memory)."""
+    return 1.0 / (2.0 * np.pi * np.sqrt(L1 * C1 * (C0 + C_L) / (C1 + C0 + C_L)))
+
+
 def tank_figures(design: Design) -> TankFigures:
     t = design.tank
     C_s = series(t.C1, t.C2, t.C3)
+    x = design.crystal
+    if x is not None:
+        # the crystal's load capacitance is the capacitors' series combination
+        f = float(crystal_frequency(x.L1, x.C_x1, x.C_x0, C_s))
+        return TankFigures(C_series=C_s, f_ideal=f, R_s=x.R_x1, feedback_ratio=t.C1 / t.C2)
     w0 = 1.0 / math.sqrt(t.L * C_s)
     return TankFigures(
         C_series=C_s,
@@ -270,12 +286,23 @@ def build(design: Design) -> Netlist:
         Capacitor("Cc1", *cc1, k.Cc1),
         Capacitor("Cc2", *cc2, k.Cc2),
     ]
-    if t.C3 is None:
-        tank.append(Inductor("L", *lc, t.L, R_s))
+    end = lc[1] if t.C3 is None else TL
+    if design.crystal is None:
+        tank.append(Inductor("L", lc[0], end, t.L, R_s))
     else:
-        tank += [Inductor("L", lc[0], TL, t.L, R_s), Capacitor("C3", TL, lc[1], t.C3)]
+        # the motional arm keeps the coil's name "L": its current is the resonator's
+        x = design.crystal
+        tank += [
+            Inductor("L", lc[0], TX, x.L1, x.R_x1),
+            Capacitor(CRYSTAL_C1, TX, end, x.C_x1),
+            Capacitor(CRYSTAL_C0, lc[0], end, x.C_x0),
+        ]
+    if t.C3 is not None:
+        tank.append(Capacitor("C3", TL, lc[1], t.C3))
     if design.load.R_load is not None:
         tank.append(Resistor("R_load", T1, GROUND, design.load.R_load))
+    if design.load.C_load is not None:
+        tank.append(Capacitor("C_load", T1, GROUND, design.load.C_load))
     return Netlist(tuple(common + form + tank))
 
 

@@ -16,7 +16,7 @@ import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from functools import lru_cache
-from typing import Annotated, Any, Final
+from typing import Annotated, Any, Final, get_args
 
 from pydantic import BaseModel, TypeAdapter, ValidationError
 
@@ -104,6 +104,7 @@ GROUPS: Final = (
     ("bias", "Bias"),
     ("transistor", "Transistor"),
     ("load", "Coupling and load"),
+    ("crystal", "Crystal in place of the coil (all blank: the coil)"),
     ("conditions", "Conditions"),
     ("tolerances", "Tolerances and temperature range (for the spread)"),
 )
@@ -161,6 +162,16 @@ FIELDS: Final[tuple[FormField, ...]] = (
     FormField("Cc1", "load", "Cc1, DC block at the output terminal", "F"),
     FormField("Cc2", "load", "Cc2, DC block at the input terminal", "F"),
     FormField("R_load", "load", "R_load, load on the output (blank: none)", "Ω"),
+    FormField("C_load", "load", "C_load, buffer's input capacitance (blank: none)", "F"),
+    FormField(
+        "change", "load", "Load change for pulling, fraction (blank: default)", doc_section="load"
+    ),
+    FormField("R_x1", "crystal", "R₁, motional resistance (ESR)", "Ω"),
+    FormField("f_xs", "crystal", "f_s, series resonance (or L₁)", "Hz"),
+    FormField("L_x1", "crystal", "L₁, motional inductance (or f_s)", "H"),
+    FormField("C_x1", "crystal", "C₁, motional capacitance", "F"),
+    FormField("C_x0", "crystal", "C₀, shunt capacitance", "F"),
+    FormField("P_xmax", "crystal", "Drive-level rating (blank: not checked)", "W"),
     FormField("Vcc", "conditions", "Vcc, supply", "V"),
     FormField("temperature_C", "conditions", "Temperature", "°C"),
     FormField("V_cap", "conditions", "Capacitor voltage rating (blank: default)", "V"),
@@ -203,11 +214,21 @@ FEED_LABELS: Final = {
 }
 
 
+def _model_of(annotation: Any) -> type[BaseModel] | None:
+    """The section model of a design field's annotation (``Crystal | None`` → Crystal)."""
+    for candidate in (annotation, *get_args(annotation)):
+        if isinstance(candidate, type) and issubclass(candidate, BaseModel):
+            return candidate
+    return None
+
+
 #: The design's sections (its fields that are models of their own), in file order.
 _SECTIONS: Final = tuple(
-    key
-    for key, info in Design.model_fields.items()
-    if isinstance(info.annotation, type) and issubclass(info.annotation, BaseModel)
+    key for key, info in Design.model_fields.items() if _model_of(info.annotation) is not None
+)
+#: Sections that may be absent as a whole (``null``): left out when all their fields are blank.
+_OPTIONAL_SECTIONS: Final = tuple(
+    key for key in _SECTIONS if Design.model_fields[key].default is None
 )
 
 
@@ -216,7 +237,8 @@ def _field_info(field: FormField):
         return Tolerances.model_fields[field.doc_sub]
     if field.section is None:
         return Design.model_fields[field.name]
-    section_model = Design.model_fields[field.section].annotation
+    section_model = _model_of(Design.model_fields[field.section].annotation)
+    assert section_model is not None
     return section_model.model_fields[field.key]
 
 
@@ -395,6 +417,8 @@ def document(texts: Mapping[str, str], *, for_file: bool = False) -> dict[str, A
     for key, info in Design.model_fields.items():
         if key in _SECTIONS:
             content = sections.get(key, {})
+            if key in _OPTIONAL_SECTIONS and all(v is None for v in content.values()):
+                continue  # an absent part (the crystal): every field blank
             # a section that has defaults of its own is left out when nothing in it is set
             if content or info.is_required() or key == "load":
                 out[key] = content
@@ -432,6 +456,8 @@ def texts_from_document(doc: Any) -> dict[str, str]:
     texts = {f.name: "" for f in FIELDS}
     for key, value in doc.items():
         if key in ("format", "version"):
+            continue
+        if key in _OPTIONAL_SECTIONS and value is None:
             continue
         if key in _SECTIONS:
             if not isinstance(value, dict):

@@ -21,6 +21,7 @@ from ringwise.analysis.stability import RATING_FRACTION
 from ringwise.circuit.topologies import gain_setter
 from ringwise.design import Design, Feed, Topology, get_param
 from ringwise.display import (
+    LOG_UNITS,
     ORDINALS,
     PANELS,
     RUN_SHOWN,
@@ -65,7 +66,7 @@ PENDING_TEXT = "computing…"
 def _text(value: Any, unit: str) -> str:
     """Display text of a figure (the core's :func:`ringwise.display.format_value`;
     numbers through the web layer's cache of it)."""
-    if unit in ("text", "yesno", "%", "behaviour", "cycles"):
+    if unit in ("text", "yesno", "%", "behaviour", "cycles", *LOG_UNITS):
         return format_value(value, unit)
     return display(value, unit)
 

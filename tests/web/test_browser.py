@@ -267,6 +267,7 @@ def _pages(pdfinfo: str, pdf: bytes, tmp_path, name: str) -> int:
         "design=common-base-carrier-10M",
         "design=follower-test-source-4M",
         "design=proximity-exciter-150k",
+        "design=crystal-clock-10M",
         "design=clapp-clock-1M&RC=10&name=" + "A long design name " * 8,  # will not start
     ],
 )

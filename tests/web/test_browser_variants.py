@@ -46,3 +46,44 @@ def test_choosing_the_choke_feed_switches_the_inputs_and_the_threshold(
     assert page.locator(".schematic-wrap:not([hidden]) [data-part='L_ch']").is_visible()
     assert not page.locator(".schematic-wrap:not([hidden]) [data-part='RC']").is_visible()
     assert sheet.errors == []
+
+
+def test_the_load_panel_shows_the_power_and_follows_a_buffer_capacitance(
+    context, live_server, client
+):
+    sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")
+    page = sheet.page
+    power = "[data-field='output.P_dBm']"
+    want = expected(client, sheet.inputs())
+    assert sheet.attr(power) == want["shown"]["output.P_dBm"]["raw"]
+    assert page.text_content(power).endswith("dBm")
+    page.fill("[name='C_load']", "5p")
+    page.fill("[name='change']", "0.2")
+    settle(sheet, client)
+    want = expected(client, sheet.inputs())
+    wait_for(sheet, power, want["shown"]["output.P_dBm"]["raw"])
+    assert sheet.attr("[data-field='output.pull_ppm']") == want["shown"]["output.pull_ppm"]["raw"]
+    assert "C_load=5p" in page.url
+    assert sheet.errors == []
+
+
+def test_the_crystal_clock_shows_its_panel_and_a_coil_design_hides_it(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=crystal-clock-10M")
+    page = sheet.page
+    panel = "[data-panel='crystal']"
+    assert page.is_visible(panel)
+    want = expected(client, sheet.inputs())
+    margin = "[data-field='crystal.margin']"
+    assert sheet.attr(margin) == want["shown"]["crystal.margin"]["raw"]
+    # a higher-ESR part: the margin falls and the rule's warning appears
+    page.fill("[name='R_x1']", "80")
+    settle(sheet, client)
+    want = expected(client, sheet.inputs())
+    wait_for(sheet, margin, want["shown"]["crystal.margin"]["raw"])
+    page.locator("[data-code='crystal-margin']").wait_for()
+    # clearing the crystal's fields gives the coil back, and the panel goes
+    for name in ("R_x1", "f_xs", "C_x1", "C_x0", "P_xmax"):
+        page.fill(f"[name='{name}']", "")
+    settle(sheet, client)
+    page.wait_for_selector(panel, state="hidden")
+    assert sheet.errors == []

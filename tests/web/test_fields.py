@@ -204,3 +204,16 @@ def test_idle_inputs_follow_the_form_and_the_feed():
     assert "RC" in idle["common-emitter|choke"] and "L_ch" not in idle["common-emitter|choke"]
     assert "L_ch" in idle["common-base|resistor"] and "RC" not in idle["common-base|resistor"]
     assert {"RC", "L_ch", "feed"} <= set(idle["common-collector|resistor"])
+
+
+def test_the_crystal_section_is_absent_when_blank_and_whole_when_given():
+    texts = dict(SAMPLES[DEFAULT_SAMPLE])
+    assert "crystal" not in document(texts)
+    texts.update(R_x1="25", f_xs="10M", C_x1="18f", C_x0="5p")
+    doc = document(texts)
+    assert doc["crystal"]["f_xs"] == "10M" and doc["crystal"]["L_x1"] is None
+    design = Design.model_validate(doc)
+    assert design.crystal is not None and design.crystal.L1 > 0
+    back = texts_from_document({**doc, "crystal": None})
+    assert back["R_x1"] == ""
+    assert texts_from_document(doc)["C_x0"] == "5p"
