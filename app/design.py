@@ -111,7 +111,7 @@ class Crystal(_Part):
     )
     C_x1: Farads = Field(description="Motional capacitance C₁, F")
     C_x0: Farads = Field(description="Shunt (holder) capacitance C₀, F")
-    P_xmax: Annotated[float, _si("W"), Field(ge=1e-9, le=1.0)] | None = Field(
+    P_xmax: SI("W", ge=1e-9, le=1.0) | None = Field(
         default=None, description="Drive-level rating, W (none: not checked)"
     )
 
@@ -143,7 +143,7 @@ class Load(_Part):
     C_load: Farads | None = Field(
         default=None, description="Buffer's input capacitance across the load, F (none: none)"
     )
-    change: Annotated[float, _si(""), Field(ge=0.001, le=0.9)] = Field(
+    change: SI("", ge=0.001, le=0.9) = Field(
         default=0.1,
         description="Load change for the pulling figure: R_load falls and C_load rises by "
         "this fraction",
