@@ -38,6 +38,7 @@ from scipy import constants
 from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import PartPower, SteadyState, steady_state
 from ringwise.analysis.pipeline import solve_designs
+from ringwise.circuit.topologies import UNRATED_CAPACITANCES
 from ringwise.design import Design, step_within, with_param
 
 #: Offsets reported and plotted, Hz.
@@ -174,7 +175,8 @@ def stability(solved: Solved, ss: SteadyState | None) -> Stability:
             )
         )
     for p in parts:
-        if p.part.startswith("C") and p.V_peak > RATING_FRACTION * d.ratings.V_cap:
+        rated = p.part.startswith("C") and p.part not in UNRATED_CAPACITANCES
+        if rated and p.V_peak > RATING_FRACTION * d.ratings.V_cap:
             notes.append(
                 (
                     "capacitor-stress",

@@ -65,6 +65,9 @@ T1, T2, TL = "t1", "t2", "tl"
 #: The crystal's inner node (between its motional inductance and capacitance),
 #: and the netlist names of its motional and shunt capacitances.
 TX, CRYSTAL_C1, CRYSTAL_C0 = "tx", "C_x1", "C_x0"
+#: Capacitances of the netlist that are no capacitor part with a voltage rating:
+#: the crystal's model, the choke's self-capacitance, a buffer's input.
+UNRATED_CAPACITANCES: Final = (CRYSTAL_C1, CRYSTAL_C0, "Cch", "C_load")
 
 #: Which resistor sets the loop gain in each form (the threshold finder's default).
 GAIN_SETTER: Final = {Topology.CE: "RC", Topology.CB: "RC", Topology.CC: "RE"}

@@ -114,7 +114,8 @@ def test_the_result_carries_drive_level_startup_time_and_warnings() -> None:
     # from 1 µV to the steady amplitude at the growth rate of the dominant poles
     ss = steady_state(solve(pierce()))
     n_tau = math.log(ss.amp_out / 1e-6)
-    assert c.startup_time == pytest.approx(n_tau * r.poles.growth_time, rel=1e-6)
+    # (rel 1e-4: the orbit's last digits depend on its warm start)
+    assert c.startup_time == pytest.approx(n_tau * r.poles.growth_time, rel=1e-4)
     # the drive level is R₁ times the arm's mean-square current on the orbit
     arm = next(p for p in ss.parts if p.part == "L")
     assert c.P_drive == pytest.approx(20 * arm.I_rms**2, rel=1e-3)
