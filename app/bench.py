@@ -33,6 +33,8 @@ PHASE_NOISE_TARGET: Final = 50e-3
 STEADY_TARGET: Final = 50e-3
 STEADY_AIM: Final = 20e-3
 STEADY_WARM_TARGET: Final = 15e-3
+#: The bench fit with every reading (f, threshold, amplitude, I_C), s.
+RECONCILE_TARGET: Final = 5.0
 
 
 def median_time(fn: Callable[[], object], repeat: int, warmup: int = 2) -> float:
@@ -243,6 +245,27 @@ def bench_phase_noise() -> list[str]:
     return lines
 
 
+def bench_reconcile() -> list[str]:
+    """The bench fit on each sample with every reading, from a synthetic as-built unit
+    (capacitance +3 %, coil Q −30 %): CPU time, one run each."""
+    import numpy as np
+
+    from ringwise.analysis.reconcile import _apply, _model, reconcile
+
+    lines = ["bench fit (f, threshold of the gain setter, amplitude, I_C; CPU time):"]
+    for path in sample_files():
+        d = Design.model_validate(json.loads(path.read_text(encoding="utf-8")))
+        setter = gain_setter(d)
+        bench = _model(_apply(d, np.log([1.03, 0.7, 1.0])), setter, True)
+        readings = (bench["f"], (setter, bench["threshold"]), bench["amplitude"], bench["IC"])
+        t = median_time(lambda d=d, r=readings: reconcile(d, *r), 1, warmup=0)
+        lines.append(
+            f"  {d.name[:36]:<36} {t:6.2f} s (target ≤ {RECONCILE_TARGET:g} s)"
+            f"   x{t / RECONCILE_TARGET:4.2f} {'meets' if t <= RECONCILE_TARGET else 'misses'}"
+        )
+    return lines
+
+
 def bench_web() -> list[str]:
     try:
         from ringwise.web.bench import bench_web as web
@@ -262,6 +285,8 @@ def main() -> None:
     for line in bench_phase_noise():
         print(line, flush=True)
     for line in bench_spread():
+        print(line, flush=True)
+    for line in bench_reconcile():
         print(line, flush=True)
     for line in bench_web():
         print(line, flush=True)

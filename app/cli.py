@@ -31,6 +31,9 @@ SEED_RANGE: Final = (0, 2**64 - 1)
 FORMATS: Final = ("json", "table", "csv")
 TOPOLOGIES: Final = ("common-emitter", "common-base", "common-collector")
 SERIES_NAMES: Final = ("E6", "E12", "E24", "E48", "E96")
+#: The transistor classes of ringwise.presets (written out: --help imports nothing;
+#: tests/test_cli.py checks they agree).
+PRESET_NAMES: Final = ("general-purpose", "high-beta-low-noise", "rf")
 
 
 class BadInputError(Exception):
@@ -123,6 +126,11 @@ def parser() -> argparse.ArgumentParser:
     n = sub.add_parser("snap", help="move every part to the nearest E-series value")
     _design_argument(n)
     n.add_argument("--series", default="E24", help=f"{', '.join(SERIES_NAMES)} (default E24)")
+    n.add_argument(
+        "--keep-frequency",
+        action="store_true",
+        help="re-trim one tank capacitor (C3, or the smaller of C1, C2) to keep f_osc",
+    )
 
     k = sub.add_parser("sensitivity", help="∂ln f/∂ln x and ∂ln T/∂ln x for every part")
     _design_argument(k)
@@ -151,12 +159,22 @@ def parser() -> argparse.ArgumentParser:
     y.add_argument("--gain", type=_number, default=3.0, help="target loop gain (default 3)")
     y.add_argument("--L", default=None, help="inductor to use, e.g. 10u")
     y.add_argument("--ratio", type=_number, default=None, help="C1/C2 to use instead of tuning")
+    y.add_argument("--Q_L", default=None, help="the coil's Q to keep (default: a typical 80)")
+    y.add_argument("--R_load", default=None, help="the load to keep, e.g. 10k (default none)")
+    y.add_argument(
+        "--preset",
+        default="general-purpose",
+        choices=PRESET_NAMES,
+        help="transistor class (default general-purpose)",
+    )
+    y.add_argument("--clapp", action="store_true", help="the Clapp form (C3 in series with L)")
 
     c = sub.add_parser("reconcile", help="fit the model to what the bench showed")
     _design_argument(c)
     c.add_argument("--f-measured", required=True, help="measured frequency, e.g. 1.012M")
     c.add_argument("--threshold", help="part value at which it started, e.g. RC=180")
     c.add_argument("--amplitude", help="measured amplitude at the output node, V")
+    c.add_argument("--IC", help="measured collector current, e.g. 1.2m")
 
     b = sub.add_parser("bom", help="bill of materials: values, standard series, stresses")
     _design_argument(b)

@@ -167,7 +167,7 @@ def cmd_simulate(args: argparse.Namespace) -> None:
 def cmd_snap(args: argparse.Namespace) -> None:
     design = load_design(args.design)
     try:
-        result = snap_design(design, args.series)
+        result = snap_design(design, args.series, args.keep_frequency)
     except SeriesError as err:
         raise BadInputError(f"--series: {err}") from err
     print_json(result.design.model_dump(mode="json"))
@@ -178,6 +178,8 @@ def cmd_snap(args: argparse.Namespace) -> None:
         f"loop gain {result.gain_before:.3g} → {result.gain_after:.3g}",
         file=sys.stderr,
     )
+    if result.trim is not None:
+        print(f"ringwise: {result.trim.text}", file=sys.stderr)
 
 
 def cmd_sensitivity(args: argparse.Namespace) -> None:
@@ -229,14 +231,22 @@ def _spread_record(s: Mapping[str, Any]) -> dict[str, Any]:
 
 def cmd_synthesize(args: argparse.Namespace) -> None:
     try:
-        result = synthesize(
-            args.topology,
-            _value(args.f, "--f"),
-            _value(args.Vcc, "--Vcc"),
-            _value(args.IC, "--IC"),
-            gain=args.gain,
-            L=_value(args.L, "--L") if args.L else None,
-            ratio=args.ratio,
+        result = _with_progress(
+            "synthesize",
+            lambda report: synthesize(
+                args.topology,
+                _value(args.f, "--f"),
+                _value(args.Vcc, "--Vcc"),
+                _value(args.IC, "--IC"),
+                gain=args.gain,
+                L=_value(args.L, "--L") if args.L else None,
+                ratio=args.ratio,
+                Q_L=_value(args.Q_L, "--Q_L") if args.Q_L else None,
+                R_load=_value(args.R_load, "--R_load") if args.R_load else None,
+                preset=args.preset,
+                clapp=args.clapp,
+                progress=report,
+            ),
         )
     except SynthesisError as err:
         raise BadInputError(str(err)) from err
@@ -254,8 +264,13 @@ def cmd_reconcile(args: argparse.Namespace) -> None:
             raise BadInputError("--threshold: write PART=VALUE, e.g. RC=180")
         threshold = (part.strip(), _value(text, "--threshold"))
     amplitude = _value(args.amplitude, "--amplitude") if args.amplitude else None
+    IC = _value(args.IC, "--IC") if args.IC else None
+    f_measured = _value(args.f_measured, "--f-measured")
     try:
-        r = reconcile(design, _value(args.f_measured, "--f-measured"), threshold, amplitude)
+        r = _with_progress(
+            "reconcile",
+            lambda report: reconcile(design, f_measured, threshold, amplitude, IC, progress=report),
+        )
     except ReconcileError as err:
         raise BadInputError(str(err)) from err
     print_json(
@@ -268,6 +283,9 @@ def cmd_reconcile(args: argparse.Namespace) -> None:
             "explanation": r.explanation,
             "evidence_dAIC": r.evidence,
             "as_built": r.as_built.model_dump(mode="json"),
+            "tried": r.tried,
+            "of": r.of,
+            "stopped": r.stopped,
         }
     )
 

@@ -6,7 +6,9 @@ two-figure series (E6, E12, E24) are not rounded geometric series: IEC 60063
 keeps 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7 and 8.2 for historical reasons, so a
 formula cannot replace the table.  :func:`snap_design` moves every part of a
 design to the nearest value of a series and reports what that does to the
-oscillation frequency and the loop gain.
+oscillation frequency and the loop gain; asked to keep the frequency, it then
+re-trims one tank capacitor (:mod:`ringwise.analysis.trim`: C3, or the
+smaller of C1 and C2) to a standard value or two in parallel.
 
 References
 ----------
@@ -17,10 +19,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Final
+from typing import TYPE_CHECKING, Final
 
 from ringwise.analysis.operating import solve
 from ringwise.design import Design, get_param, with_param
+
+if TYPE_CHECKING:
+    from ringwise.analysis.trim import Trim
 
 _E24: Final = (
     10, 11, 12, 13, 15, 16, 18, 20, 22, 24, 27, 30,
@@ -99,10 +104,14 @@ class Snapped:
     f_after: float | None
     gain_before: float
     gain_after: float
+    #: the capacitor re-trimmed to keep the frequency (None when not asked)
+    trim: Trim | None = None
 
 
-def snap_design(design: Design, series: str) -> Snapped:
-    """Every resistor, capacitor and the coil moved to the nearest ``series`` value."""
+def snap_design(design: Design, series: str, keep_frequency: bool = False) -> Snapped:
+    """Every resistor, capacitor and the coil moved to the nearest ``series`` value;
+    with ``keep_frequency``, one tank capacitor then re-trimmed so that f_osc is
+    what it was (or the reason it cannot be)."""
     values(series)
     coil_series = series if list(SERIES).index(series) <= 1 else INDUCTOR_SERIES_LIMIT
     snapped = design
@@ -116,6 +125,19 @@ def snap_design(design: Design, series: str) -> Snapped:
             snapped = with_param(snapped, part, target)
             changes.append((part, value, target))
     before, after = solve(design), solve(snapped)
+    trim = None
+    if keep_frequency and before.f_osc is not None:
+        from ringwise.analysis.trim import trim_frequency  # trim uses this module's tables
+
+        trim = trim_frequency(snapped, before.f_osc, series)
+        if trim.reason is None:
+            snapped = trim.design
+            part = trim.part
+            old = get_param(design, part)
+            changes = [c for c in changes if c[0] != part]
+            if old != sum(trim.parts):
+                changes.append((part, old, sum(trim.parts)))
+            after = solve(snapped)
     return Snapped(
         design=snapped,
         changes=changes,
@@ -123,4 +145,5 @@ def snap_design(design: Design, series: str) -> Snapped:
         f_after=after.f_osc,
         gain_before=before.gain,
         gain_after=after.gain,
+        trim=trim,
     )

@@ -763,6 +763,7 @@ function fill(root, shown) {
     if (!figure) continue;
     el.dataset.value = figure.raw;
     el.textContent = figure.text;
+    if ("hidden" in figure) el.hidden = figure.hidden;
   }
 }
 
@@ -921,7 +922,7 @@ function loadTexts(fields) {
 }
 
 async function previewSnap() {
-  const a = await ask("snap", API.snap, { fields: formTexts(), series: val("#snap-series") });
+  const a = await ask("snap", API.snap, { fields: formTexts(), series: val("#snap-series"), keep_frequency: $("#snap-keep-f").checked });
   if (!a) return;
   const p = panel("snap");
   fill(p, a.shown);
@@ -966,7 +967,7 @@ async function runSynth() {
 }
 
 async function runBench() {
-  const body = { fields: formTexts(), f_measured: val("#bench-f"), threshold_param: val("#bench-param"), threshold_value: val("#bench-value"), amplitude: val("#bench-amp") };
+  const body = { fields: formTexts(), f_measured: val("#bench-f"), threshold_param: val("#bench-param"), threshold_value: val("#bench-value"), amplitude: val("#bench-amp"), IC: val("#bench-ic") };
   const a = await ask("bench", API.bench, body);
   if (!a) return;
   const p = panel("bench");

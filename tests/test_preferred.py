@@ -67,3 +67,20 @@ def test_snapping_reports_its_effect(path) -> None:
     again = snap_design(result.design, "E6")
     assert again.changes == []
     assert again.f_before == pytest.approx(result.f_after)
+
+
+def test_keep_the_frequency_retrims_one_capacitor() -> None:
+    from tests.conftest import BASE_CE, design_from
+
+    # off-series values whose snapping to E12 moves f by about 4 %
+    design = design_from(BASE_CE, tank__C1="1.07n", tank__C2="2.05n", tank__L="10.6u")
+    plain = snap_design(design, "E12")
+    assert abs(plain.f_after / plain.f_before - 1) > 0.03 and plain.trim is None
+    kept = snap_design(design, "E12", keep_frequency=True)
+    assert kept.trim is not None and kept.trim.reason is None
+    assert kept.trim.part == "C1"  # the smaller of C1, C2
+    assert abs(kept.f_after / kept.f_before - 1) < 5e-3
+    # the trimmed capacitor is one or two E12 values in parallel (IEC 60063 E12)
+    assert all(nearest(v, "E12") == pytest.approx(v) for v in kept.trim.parts)
+    assert dict((p, b) for p, _, b in kept.changes)["C1"] == pytest.approx(sum(kept.trim.parts))
+    assert pytest.approx(sum(kept.trim.parts)) == kept.design.tank.C1

@@ -289,11 +289,13 @@ def spread_view(
 # ---- standard values --------------------------------------------------------------
 
 
-def snap_view(texts: Mapping[str, str], series: str) -> dict[str, Any]:
+def snap_view(
+    texts: Mapping[str, str], series: str, keep_frequency: bool = False
+) -> dict[str, Any]:
     """The standard-values preview: each part before → after, f and gain change, and the
     form texts with the snapped values."""
     design = _design(texts)
-    req = _validated(SnapRequest, [], design=design, series=series)
+    req = _validated(SnapRequest, [], design=design, series=series, keep_frequency=keep_frequency)
     answer = _core(post_snap, req).model_dump(mode="json")
     shown: dict[str, dict[str, Any]] = {}
     rows = []
@@ -313,6 +315,8 @@ def snap_view(texts: Mapping[str, str], series: str) -> dict[str, Any]:
     shown["f_change"] = _figure(df, "—" if df is None else f"{100 * df:+.2f} %")
     dg = answer["gain_after"] / answer["gain_before"] - 1 if answer["gain_before"] else None
     shown["gain_change"] = _figure(dg, "—" if dg is None else f"{100 * dg:+.2f} %")
+    trim = answer["trim"] or ""
+    shown["trim"] = {**_figure(trim, trim), "hidden": not trim}
     snapped = Design.model_validate(answer["design"])
     new_texts = texts_for_design(snapped, texts)
     return {
@@ -367,8 +371,9 @@ def reconcile_view(texts: Mapping[str, str], bench: Mapping[str, str]) -> dict[s
     problems: list[dict[str, str]] = []
     f = _quantity("f_measured", bench.get("f_measured", ""), "Hz", problems)
     amp = _quantity("amplitude", bench.get("amplitude", ""), "V", problems, optional=True)
+    IC = _quantity("IC", bench.get("IC", ""), "A", problems, optional=True)
     param = bench.get("threshold_param", "").strip()
-    values: dict[str, Any] = {"design": design, "f_measured": f, "amplitude": amp}
+    values: dict[str, Any] = {"design": design, "f_measured": f, "amplitude": amp, "IC": IC}
     value_text_ = bench.get("threshold_value", "")
     if param:
         unit = BY_NAME[param].unit if param in BY_NAME else ""
@@ -394,7 +399,9 @@ def reconcile_view(texts: Mapping[str, str], bench: Mapping[str, str]) -> dict[s
         rows.append(base)
     reading_rows = []
     for key, r in answer["readings"].items():
-        unit = {"f": "Hz", "amplitude": "V"}.get(key, BY_NAME[key].unit if key in BY_NAME else "")
+        unit = {"f": "Hz", "amplitude": "V", "IC": "A"}.get(
+            key, BY_NAME[key].unit if key in BY_NAME else ""
+        )
         base = f"readings.{key}"
         for col in ("bench", "nominal_model", "as_built_model"):
             shown[f"{base}.{col}"] = _figure(r[col], display(r[col], unit))

@@ -46,3 +46,69 @@ def test_bad_readings_are_refused() -> None:
         reconcile(design, 1e6, ("C3x", 1.0))
     with pytest.raises(ReconcileError, match="not part of this design"):
         reconcile(design, 1e6, ("R_load", 1.0))
+
+
+def _common_base():
+    return load_sample(next(p for p in sample_paths() if "common-base" in p.name))
+
+
+def test_beta_of_a_common_base_stage_is_not_determined() -> None:
+    # The loop gain of a common-base stage hardly depends on β: the threshold and
+    # amplitude readings must not be "explained" by a β far from its class.
+    design = _common_base()
+    bench = _model(_apply(design, np.log([1.03, 0.7, 1.0])), "RC", True)
+    r = reconcile(design, bench["f"], ("RC", bench["threshold"]), bench["amplitude"])
+    beta = next(f for f in r.fitted if f.name == "beta")
+    assert not beta.determined
+    assert beta.fitted == design.device.beta
+    assert "Not determined by these readings" in r.explanation and "β" in r.explanation
+    assert r.tried == r.of and not r.stopped
+
+
+def test_bias_current_reading_pins_beta_and_keeps_it_in_its_class() -> None:
+    design = _common_base()
+    bench = _model(_apply(design, np.log([1.0, 1.0, 0.5])), "RC", True)
+    r = reconcile(design, bench["f"], ("RC", bench["threshold"]), bench["amplitude"], bench["IC"])
+    beta = next(f for f in r.fitted if f.name == "beta")
+    assert beta.determined
+    assert beta.fitted == pytest.approx(0.5 * design.device.beta, rel=0.05)
+    assert r.readings["IC"][0] == bench["IC"]
+    # a current no β of the class can give: β stays inside its plausible range
+    r = reconcile(design, bench["f"], IC=bench["IC"] * 0.3)
+    ratio = design.tolerances.beta_ratio
+    for f in r.fitted:
+        if f.name == "beta":
+            assert design.device.beta / ratio <= f.fitted <= design.device.beta * ratio
+
+
+def test_the_load_is_an_unknown_when_the_design_has_one() -> None:
+    design = _common_base()
+    assert design.load.R_load is not None
+    r = reconcile(design, 1.0e7)
+    assert [f.name for f in r.fitted] == ["C_scale", "Q_L", "beta", "R_load"]
+    assert not next(f for f in r.fitted if f.name == "R_load").determined
+
+
+def test_progress_can_stop_the_fit_and_keep_the_best_so_far() -> None:
+    design = _clapp()
+    bench = _model(_apply(design, np.log([1.03, 0.70, 1.0])), "RC", True)
+    seen: list[float] = []
+
+    def stop_after_first(fraction: float) -> bool:
+        seen.append(fraction)
+        return False
+
+    r = reconcile(
+        design,
+        bench["f"],
+        ("RC", bench["threshold"]),
+        bench["amplitude"],
+        progress=stop_after_first,
+    )
+    assert r.stopped and r.tried == 1 < r.of
+    assert seen == [1 / r.of]
+    assert next(f for f in r.fitted if f.name == "C_scale").determined
+    assert "Stopped after 1 of" in r.explanation
+    full: list[float] = []
+    done = reconcile(design, bench["f"], ("RC", bench["threshold"]), progress=full.append)
+    assert full[-1] == 1.0 and full == sorted(full) and not done.stopped

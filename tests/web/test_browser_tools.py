@@ -120,6 +120,38 @@ def test_snap_preview_apply_and_undo(context, live_server, client):
     assert sheet.errors == []
 
 
+def test_snap_keeping_the_frequency_shows_the_trim(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    page = sheet.page
+    page.fill("[name='C3']", "347p")
+    page.fill("[name='L']", "82.7u")
+    settle(sheet, client)
+    typed = sheet.inputs()
+    page.select_option("#snap-series", "E12")
+    page.check("#snap-keep-f")
+    page.click("#snap-preview")
+    _tool_done(sheet, "snap")
+    body = {"fields": typed, "series": "E12", "keep_frequency": True}
+    want = client.post("/api/sheet/snap", json=body).json()
+    assert want["result"]["trimmed"]
+    trim = page.locator("[data-role='snap'] [data-field='trim']")
+    assert trim.is_visible()
+    assert trim.text_content() == want["shown"]["trim"]["text"]
+    assert trim.text_content().startswith("C3 trimmed from")
+    page.click("#snap-apply")
+    page.wait_for_function("() => document.querySelector(\"[name='C3']\").value !== '347p'")
+    settle(sheet, client)
+    assert sheet.inputs() == want["fields"]
+    after = expected(client, sheet.inputs())
+    assert after["result"]["loop"]["f_osc"] == pytest.approx(want["result"]["f_after"], rel=1e-12)
+    # unticked, the trim line goes away on the next preview
+    page.uncheck("#snap-keep-f")
+    page.click("#snap-preview")
+    _tool_done(sheet, "snap")
+    assert trim.is_hidden()
+    assert sheet.errors == []
+
+
 def test_from_targets_fills_the_sheet(context, live_server, client):
     sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
     page = sheet.page

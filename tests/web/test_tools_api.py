@@ -82,6 +82,27 @@ def test_snap_previews_and_gives_texts(client):
     assert bad.status_code == 422 and bad.json()["problems"][0]["field"] == "series"
 
 
+def test_snap_can_keep_the_frequency(client):
+    texts = {**TEXTS, "C1": "1.07n", "C2": "2.05n", "L": "10.6u"}
+    plain = client.post("/api/sheet/snap", json={"fields": texts, "series": "E12"}).json()
+    assert plain["shown"]["trim"]["hidden"] is True
+    r = client.post(
+        "/api/sheet/snap", json={"fields": texts, "series": "E12", "keep_frequency": True}
+    )
+    assert r.status_code == 200
+    got = r.json()
+    assert got["result"]["trimmed"] is True
+    assert got["shown"]["trim"]["text"].startswith("C")
+    assert "trimmed from" in got["shown"]["trim"]["text"]
+    f0, f1 = got["result"]["f_before"], got["result"]["f_after"]
+    assert abs(f1 / f0 - 1) < abs(plain["result"]["f_after"] / f0 - 1)
+    # what the form would hold oscillates where the answer says
+    assert got["result"]["f_after"] == pytest.approx(
+        client.post("/api/analyze", json=document(got["fields"])).json()["loop"]["f_osc"],
+        rel=1e-9,
+    )
+
+
 def test_synthesize_gives_form_texts_of_the_design(client):
     r = client.post(
         "/api/sheet/synthesize",

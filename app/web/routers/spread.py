@@ -58,6 +58,10 @@ def post_spread(req: SpreadRequest) -> SpreadResult:
 class SnapRequest(_In):
     design: Design
     series: Literal[tuple(SERIES)] = Field(default="E24", description="IEC 60063 series")  # type: ignore[valid-type]
+    keep_frequency: bool = Field(
+        default=False,
+        description="Re-trim one tank capacitor (C3, or the smaller of C1, C2) to keep f_osc",
+    )
 
 
 class PartChange(_In):
@@ -73,12 +77,16 @@ class SnapOut(_In):
     f_after: float | None
     gain_before: float
     gain_after: float
+    trim: str | None = Field(
+        default=None, description="The re-trim that keeps f_osc, or why it cannot be done"
+    )
+    trimmed: bool = Field(default=False, description="A capacitor was re-trimmed")
 
 
 @router.post("/snap", response_model=SnapOut, responses=ERRORS)
 def post_snap(req: SnapRequest) -> SnapOut:
     """Every part moved to the nearest standard value, with the effect on f_osc and gain."""
-    r = snap_design(req.design, req.series)
+    r = snap_design(req.design, req.series, req.keep_frequency)
     return SnapOut(
         design=r.design,
         changes=[PartChange(part=p, before=a, after=b) for p, a, b in r.changes],
@@ -86,6 +94,8 @@ def post_snap(req: SnapRequest) -> SnapOut:
         f_after=r.f_after,
         gain_before=r.gain_before,
         gain_after=r.gain_after,
+        trim=r.trim.text if r.trim else None,
+        trimmed=r.trim is not None and r.trim.reason is None,
     )
 
 
@@ -127,6 +137,9 @@ class ReconcileRequest(_In):
     amplitude: SI("V", ge=1e-6, le=1e4) | None = Field(
         default=None, description="Measured amplitude at the output node, V"
     )
+    IC: float | None = Field(
+        default=None, ge=1e-9, le=10.0, description="Measured collector current, A"
+    )
 
 
 class FittedOut(_In):
@@ -151,13 +164,16 @@ class ReconcileOut(_In):
     explanation: str
     evidence_dAIC: float | None
     as_built: Design
+    tried: int = Field(description="Explanations fitted")
+    of: int = Field(description="Explanations there were to fit")
+    stopped: bool = Field(description="The fit was stopped before trying them all")
 
 
 @router.post("/reconcile", response_model=ReconcileOut, responses=ERRORS)
 def post_reconcile(req: ReconcileRequest) -> ReconcileOut:
     """Fit capacitance, coil Q and β to bench readings; the as-built design."""
     th = (req.threshold.param, req.threshold.value) if req.threshold else None
-    r = reconcile(req.design, req.f_measured, th, req.amplitude)
+    r = reconcile(req.design, req.f_measured, th, req.amplitude, req.IC)
     return ReconcileOut(
         fitted=[FittedOut(**vars(f)) for f in r.fitted],
         readings={
@@ -167,4 +183,7 @@ def post_reconcile(req: ReconcileRequest) -> ReconcileOut:
         explanation=r.explanation,
         evidence_dAIC=r.evidence,
         as_built=r.as_built,
+        tried=r.tried,
+        of=r.of,
+        stopped=r.stopped,
     )

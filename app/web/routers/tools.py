@@ -48,12 +48,13 @@ def post_sheet_spread(req: SheetSpreadRequest) -> dict[str, Any]:
 class SheetSnapRequest(_In):
     fields: dict[str, str]
     series: str = Field(default="E24", max_length=TEXT_MAX, description="E6, E12, E24, E48 or E96")
+    keep_frequency: bool = Field(default=False, description="Re-trim one capacitor to keep f_osc")
 
 
 @router.post("/snap", responses=ERRORS)
 def post_sheet_snap(req: SheetSnapRequest) -> dict[str, Any]:
     """Standard values preview for the sheet's texts, with the snapped form texts."""
-    return tools.snap_view(form_texts(req.fields), req.series)
+    return tools.snap_view(form_texts(req.fields), req.series, req.keep_frequency)
 
 
 class SheetSynthesizeRequest(_In):
@@ -80,6 +81,7 @@ class SheetReconcileRequest(_In):
     threshold_param: str = Field(default="", max_length=TEXT_MAX, description="Part varied")
     threshold_value: str = Field(default="", max_length=TEXT_MAX, description="Its value at start")
     amplitude: str = Field(default="", max_length=TEXT_MAX, description="Bench amplitude")
+    IC: str = Field(default="", max_length=TEXT_MAX, description="Bench collector current")
 
 
 @router.post("/reconcile", responses=ERRORS)
