@@ -955,6 +955,7 @@ function undo(name) {
 async function runSynth() {
   const body = { fields: formTexts(), topology: val("#synth-topology") };
   for (const key of ["f", "Vcc", "IC", "gain", "L", "ratio"]) body[key] = val(`#synth-${key}`);
+  for (const key of ["clapp", "choose_Q_L", "choose_load", "choose_device"]) body[key] = $(`#synth-${key}`).checked;
   const a = await ask("synth", API.synth, body);
   if (!a) return;
   const p = panel("synth");

@@ -332,10 +332,32 @@ def snap_view(
 # ---- design from targets ----------------------------------------------------------
 
 
-def synthesize_view(texts: Mapping[str, str], targets: Mapping[str, str]) -> dict[str, Any]:
-    """A design from targets: the API's answer and the form texts that load it."""
+def _kept_from_sheet(texts: Mapping[str, str], targets: Mapping[str, Any]) -> dict[str, Any]:
+    """What the synthesis keeps from the sheet's design: the coil's Q, the load and the
+    transistor, each unless the panel asks to choose it (or the sheet has no valid design)."""
+    try:
+        current = Design.model_validate(document(texts))
+    except ValidationError:
+        return {}
+    kept: dict[str, Any] = {}
+    if not targets.get("choose_Q_L"):
+        kept["Q_L"] = current.tank.Q_L
+    if not targets.get("choose_load"):
+        kept["R_load"] = current.load.R_load
+    if not targets.get("choose_device"):
+        kept["device"] = current.device
+    return kept
+
+
+def synthesize_view(texts: Mapping[str, str], targets: Mapping[str, Any]) -> dict[str, Any]:
+    """A design from targets: the API's answer and the form texts that load it.
+
+    The sheet's coil Q, load and transistor are kept unless the panel's
+    ``choose_Q_L``, ``choose_load`` or ``choose_device`` asks to choose them;
+    ``clapp`` asks for the Clapp form."""
     problems: list[dict[str, str]] = []
     values: dict[str, Any] = {"topology": targets.get("topology", "") or "common-emitter"}
+    values.update(_kept_from_sheet(texts, targets), clapp=bool(targets.get("clapp")))
     for name, unit, optional in (
         ("f", "Hz", False),
         ("Vcc", "V", False),
@@ -350,9 +372,11 @@ def synthesize_view(texts: Mapping[str, str], targets: Mapping[str, str]) -> dic
     req = _validated(SynthesizeRequest, problems, **values)
     answer = _core(post_synthesize, req).model_dump(mode="json")
     design = Design.model_validate(answer["design"])
+    miss = answer["miss"]
     shown = {
         "f_osc": _figure(answer["f_osc"], display(answer["f_osc"], "Hz")),
         "gain": _figure(answer["gain"], display(answer["gain"], "")),
+        "miss": _figure(miss, "—" if miss is None else f"{100 * miss:+.2f} %"),
     }
     return {
         "result": answer,

@@ -38,11 +38,22 @@ def test_random_targets_are_met(topology, f, Vcc, IC, gain) -> None:
 
 
 def test_values_are_standard() -> None:
-    d = synthesize("common-emitter", 1e6, 12, 1e-3).design
+    r = synthesize("common-emitter", 1e6, 12, 1e-3)
+    d = r.design
     e24 = set(values("E24"))
-    for v in (d.bias.RB1, d.bias.RB2, d.bias.RC, d.bias.RE, d.tank.C1, d.tank.C2):
-        mantissa = round(v / 10 ** math.floor(math.log10(v)) * 10)
-        assert mantissa in e24
+
+    def standard(v: float) -> bool:
+        return round(v / 10 ** math.floor(math.log10(v)) * 10) in e24
+
+    # the trimmed capacitor is one or two E24 values in parallel (IEC 60063 E24)
+    trimmed = {} if r.trim is None else {r.trim.part: r.trim.parts}
+    for part in ("RB1", "RB2", "RC", "RE", "C1", "C2"):
+        v = getattr(d.bias, part, None) or getattr(d.tank, part)
+        if part in trimmed:
+            assert v == pytest.approx(sum(trimmed[part]))
+            assert all(standard(x) for x in trimmed[part])
+        else:
+            assert standard(v)
 
 
 def test_given_inductor_is_kept() -> None:
@@ -55,3 +66,57 @@ def test_impossible_targets_are_refused() -> None:
         synthesize("common-emitter", 1e6, 1.0, 1e-3)
     with pytest.raises(SynthesisError, match="out of range"):
         synthesize("common-emitter", 1e12, 12, 1e-3)
+
+
+def test_what_the_user_set_is_kept() -> None:
+    device = {"preset": None, "beta": 150.0, "IS": 2e-14, "VA": 80.0, "fT": 250e6, "C_mu": 4e-12}
+    r = synthesize("common-emitter", 455e3, 12, 1e-3, Q_L=100, R_load=4.7e3, device=device)
+    d = r.design
+    assert d.tank.Q_L == 100 and d.load.R_load == 4.7e3
+    assert d.device.preset is None
+    assert (d.device.beta, d.device.IS, d.device.fT, d.device.C_mu) == (150.0, 2e-14, 250e6, 4e-12)
+    assert any(x.startswith("Kept as set: Q_L = 100, the load R_load = 4.7 kΩ") for x in r.reasons)
+    # the loop gain is met with the load and the coil in place
+    assert analyze(d).loop.gain == pytest.approx(3.0, rel=0.2)
+
+
+def test_frequency_miss_is_stated_and_trimmed_out() -> None:
+    r = synthesize("common-emitter", 7e6, 12, 2e-3)
+    stated = [x for x in r.reasons if x.startswith("In standard values f_osc = ")]
+    assert len(stated) == 1 and "from the target 7 MHz" in stated[0]
+    assert any("trimmed from" in x for x in r.reasons)
+    assert abs(r.miss) < 2e-3
+    assert r.f_osc == pytest.approx(analyze(r.design).loop.f_osc, rel=1e-9)
+
+
+def test_clapp_form_on_request() -> None:
+    r = synthesize("common-emitter", 7e6, 12, 2e-3, clapp=True)
+    t = r.design.tank
+    assert t.C3 is not None
+    series_12 = t.C1 * t.C2 / (t.C1 + t.C2)
+    assert 3 < series_12 / t.C3 < 8  # C1, C2 in series some 5× C3
+    assert any(x.startswith("C3 = ") and "Clapp" in x for x in r.reasons)
+    assert abs(r.miss) < 2e-3
+    plain = synthesize("common-emitter", 7e6, 12, 2e-3)
+    assert t.L > 2 * plain.design.tank.L  # the Clapp form's coil is larger for the same f
+
+
+def test_unbuildable_parts_are_refused_with_a_reason() -> None:
+    # a 30 MHz follower at 5 mA wants a coil of some 18 nH
+    with pytest.raises(SynthesisError, match=r"coil would be 18 nH, below 50 nH.*Clapp form"):
+        synthesize("common-collector", 30e6, 12, 5e-3)
+    clapp = synthesize("common-collector", 30e6, 12, 5e-3, clapp=True).design
+    assert clapp.tank.L >= 50e-9
+    # a given 10 µH coil at 30 MHz leaves C2 of a few pF against C_π of some 24 pF
+    with pytest.raises(SynthesisError, match=r"C\d would be .*transistor's .* across it"):
+        synthesize("common-emitter", 30e6, 12, 5e-3, L=10e-6)
+
+
+def test_progress_is_reported_and_can_stop_the_search() -> None:
+    seen: list[float] = []
+    synthesize("common-emitter", 1e6, 12, 1e-3, progress=seen.append)
+    assert seen and seen[-1] == 1.0
+    # a target gain out of reach makes it try several tank impedances; stop after one
+    r = synthesize("common-collector", 30e6, 12, 5e-3, clapp=True, progress=lambda x: x >= 1.0)
+    assert r.stopped
+    assert any(x.startswith("stopped after 1 of") for x in r.reasons)

@@ -174,6 +174,34 @@ def test_from_targets_fills_the_sheet(context, live_server, client):
     assert sheet.errors == []
 
 
+def test_from_targets_keeps_the_load_and_offers_the_clapp_form(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    page = sheet.page
+    page.fill("[name='R_load']", "6k8")
+    page.fill("[name='Q_L']", "100")
+    settle(sheet, client)
+    page.fill("#synth-f", "7M")
+    page.fill("#synth-Vcc", "12")
+    page.fill("#synth-IC", "2m")
+    page.check("#synth-clapp")
+    page.click("#synth-run")
+    _tool_done(sheet, "synth")
+    settle(sheet, client)
+    assert page.input_value("[name='R_load']") == "6k8"
+    assert page.input_value("[name='Q_L']") == "100"
+    assert page.input_value("[name='C3']") != ""
+    miss = page.text_content("[data-role='synth'] [data-field='miss']")
+    assert miss.endswith(" %") and abs(float(miss.split()[0])) < 0.2
+    reasons = page.locator("[data-role='synth'] [data-field='reasons'] li").all_text_contents()
+    assert any(r.startswith("Kept as set: Q_L = 100, the load R_load = 6.8 kΩ") for r in reasons)
+    assert any(r.startswith("C3 = ") for r in reasons)
+    # ask it to choose the load: the load goes
+    page.check("#synth-choose_load")
+    page.click("#synth-run")
+    page.wait_for_function("() => document.querySelector(\"[name='R_load']\").value === ''")
+    assert sheet.errors == []
+
+
 def test_bench_readings_show_the_explanation_and_load_as_built(context, live_server, client):
     sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
     page = sheet.page

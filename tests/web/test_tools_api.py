@@ -118,6 +118,38 @@ def test_synthesize_gives_form_texts_of_the_design(client):
         assert bad.status_code == 422 and bad.json()["problems"][0]["field"] == field
 
 
+def test_synthesize_keeps_the_sheets_load_coil_and_transistor(client):
+    texts = {**TEXTS, "R_load": "6k8", "Q_L": "100", "preset": "rf"}
+    body = {"fields": texts, "topology": "common-emitter", "f": "7M", "Vcc": "12", "IC": "2m"}
+    got = client.post("/api/sheet/synthesize", json=body).json()
+    assert got["fields"]["R_load"] == "6k8" and got["fields"]["Q_L"] == "100"
+    design = Design.model_validate(got["result"]["design"])
+    assert design.device.preset == "rf" and design.load.R_load == 6800.0
+    assert got["shown"]["miss"]["text"].endswith(" %")
+    assert abs(got["result"]["miss"]) < 2e-3
+    # asked to choose them, it does: no load, a typical coil Q, the general-purpose class
+    chosen = client.post(
+        "/api/sheet/synthesize",
+        json={**body, "choose_load": True, "choose_Q_L": True, "choose_device": True},
+    ).json()["result"]["design"]
+    assert chosen["load"]["R_load"] is None and chosen["tank"]["Q_L"] == 80.0
+    assert chosen["device"]["preset"] == "general-purpose"
+    clapp = client.post("/api/sheet/synthesize", json={**body, "clapp": True}).json()
+    assert clapp["fields"]["C3"] != "" and clapp["result"]["design"]["tank"]["C3"] is not None
+    refused = client.post(
+        "/api/sheet/synthesize",
+        json={
+            **body,
+            "topology": "common-collector",
+            "f": "30M",
+            "IC": "5m",
+            "choose_device": True,
+        },
+    )
+    assert refused.status_code == 422
+    assert "below 50 nH" in refused.json()["problems"][0]["message"]
+
+
 def test_reconcile_gives_explanation_and_as_built_texts(client):
     r = client.post("/api/sheet/reconcile", json={"fields": TEXTS, "f_measured": "1.03M"})
     assert r.status_code == 200

@@ -15,7 +15,7 @@ from ringwise.analysis.reconcile import reconcile
 from ringwise.analysis.spread import DEFAULT_SAMPLES, MAX_SAMPLES, spread_result
 from ringwise.analysis.startup import MARGINAL_BELOW
 from ringwise.analysis.synthesis import DEFAULT_GAIN, synthesize
-from ringwise.design import PARAMETERS, Design, Topology
+from ringwise.design import PARAMETERS, Design, Device, Topology
 from ringwise.preferred import SERIES, snap_design
 from ringwise.quantities import SI
 from ringwise.result import SpreadResult
@@ -107,6 +107,16 @@ class SynthesizeRequest(_In):
     gain: SI("", gt=1, le=20) = Field(default=DEFAULT_GAIN, description="Target loop gain")
     L: SI("H", ge=1e-12, le=1e3) | None = Field(default=None, description="Inductor to use, H")
     ratio: SI("", ge=0.01, le=100) | None = Field(default=None, description="C1/C2 to use")
+    Q_L: SI("", ge=0.01, le=1e6) | None = Field(
+        default=None, description="The coil's Q to keep (null: chosen)"
+    )
+    R_load: SI("Ω", ge=1e-3, le=1e12) | None = Field(
+        default=None, description="The load to keep, Ω (null: no load)"
+    )
+    device: Device | None = Field(
+        default=None, description="The transistor to keep (null: the general-purpose class)"
+    )
+    clapp: bool = Field(default=False, description="The Clapp form (C3 in series with L)")
 
 
 class SynthesisOut(_In):
@@ -114,15 +124,36 @@ class SynthesisOut(_In):
     f_osc: float | None
     gain: float
     reasons: list[str]
+    f_target: float = Field(description="The target frequency, Hz")
+    miss: float | None = Field(description="f_osc/f_target − 1 of the design returned")
+    stopped: bool = Field(description="The search was stopped before its end")
 
 
 @router.post("/synthesize", response_model=SynthesisOut, responses=ERRORS)
 def post_synthesize(req: SynthesizeRequest) -> SynthesisOut:
     """A buildable design from targets, in standard values, with a reason per choice."""
     r = synthesize(
-        req.topology.value, req.f, req.Vcc, req.IC, gain=req.gain, L=req.L, ratio=req.ratio
+        req.topology.value,
+        req.f,
+        req.Vcc,
+        req.IC,
+        gain=req.gain,
+        L=req.L,
+        ratio=req.ratio,
+        Q_L=req.Q_L,
+        R_load=req.R_load,
+        device=req.device.model_dump() if req.device else None,
+        clapp=req.clapp,
     )
-    return SynthesisOut(design=r.design, f_osc=r.f_osc, gain=r.gain, reasons=r.reasons)
+    return SynthesisOut(
+        design=r.design,
+        f_osc=r.f_osc,
+        gain=r.gain,
+        reasons=r.reasons,
+        f_target=r.f_target,
+        miss=r.miss,
+        stopped=r.stopped,
+    )
 
 
 class ThresholdReading(_In):
@@ -137,8 +168,8 @@ class ReconcileRequest(_In):
     amplitude: SI("V", ge=1e-6, le=1e4) | None = Field(
         default=None, description="Measured amplitude at the output node, V"
     )
-    IC: float | None = Field(
-        default=None, ge=1e-9, le=10.0, description="Measured collector current, A"
+    IC: SI("A", ge=1e-9, le=10.0) | None = Field(
+        default=None, description="Measured collector current, A"
     )
 
 

@@ -66,6 +66,14 @@ class SheetSynthesizeRequest(_In):
     gain: str = Field(default="", max_length=TEXT_MAX, description="Target loop gain (blank: 3)")
     L: str = Field(default="", max_length=TEXT_MAX, description="Inductor to use (optional)")
     ratio: str = Field(default="", max_length=TEXT_MAX, description="C1/C2 to use (optional)")
+    clapp: bool = Field(default=False, description="The Clapp form")
+    choose_Q_L: bool = Field(
+        default=False, description="Choose the coil's Q (else keep the sheet's)"
+    )
+    choose_load: bool = Field(default=False, description="Choose the load (else keep the sheet's)")
+    choose_device: bool = Field(
+        default=False, description="Choose the transistor (else keep the sheet's)"
+    )
 
 
 @router.post("/synthesize", responses=ERRORS)
