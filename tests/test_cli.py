@@ -133,6 +133,30 @@ def test_synthesize_prints_a_design_with_reasons(capsys) -> None:
     assert code == EXIT_BAD_INPUT and "headroom" in err
 
 
+def test_snap_can_keep_the_frequency(capsys) -> None:
+    code, data, err = _run(
+        capsys, "snap", str(sample_paths()[0]), "--series", "E6", "--keep-frequency"
+    )
+    assert code == 0 and data["format"] == "ringwise.design"
+    assert "trimmed from" in err or "cannot be trimmed" in err
+
+
+def test_synthesize_keeps_q_load_and_offers_clapp(capsys) -> None:
+    code, data, err = _run(
+        capsys, "synthesize", "--topology", "common-emitter", "--f", "7M", "--Vcc", "12",
+        "--IC", "2m", "--Q_L", "100", "--R_load", "10k", "--preset", "rf", "--clapp",
+    )  # fmt: skip
+    assert code == 0
+    assert data["tank"]["Q_L"] == 100 and data["load"]["R_load"] == 10e3
+    assert data["tank"]["C3"] is not None and data["device"]["preset"] == "rf"
+    assert "In standard values f_osc" in err
+    code, _, err = _run(
+        capsys, "synthesize", "--topology", "common-collector", "--f", "30M", "--Vcc", "12",
+        "--IC", "5m",
+    )  # fmt: skip
+    assert code == EXIT_BAD_INPUT and "below 50 nH" in err
+
+
 def test_reconcile_prints_the_fit(capsys) -> None:
     code, data, _ = _run(capsys, "reconcile", str(sample_paths()[0]), "--f-measured", "1.0M")
     assert code == 0 and data["as_built"]["format"] == "ringwise.design"
