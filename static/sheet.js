@@ -503,7 +503,7 @@ function drawBudget(el, b) {
     layout({
       showlegend: false,
       margin: { l: 190, r: 16, t: 8, b: 40 },
-      xaxis: { title: { text: "loop gain it costs (dB)" }, zeroline: true },
+      xaxis: { title: { text: "loop gain it costs (dB)" }, zeroline: true, range: b.x_range },
       yaxis: { autorange: "reversed", automargin: true },
     }),
     PLOT_CONFIG,
