@@ -389,3 +389,10 @@ def test_serve_refuses_a_bad_design_file_in_one_line(tmp_path: Path) -> None:
     done = _cli("serve", str(bad), "--port", "1")
     assert done.returncode == EXIT_BAD_INPUT
     assert b"is not a valid design" in done.stderr and b"Traceback" not in done.stderr
+
+
+def test_preset_names_agree_with_the_presets() -> None:
+    from ringwise.cli import PRESET_NAMES
+    from ringwise.presets import DEVICE_PRESETS
+
+    assert tuple(sorted(DEVICE_PRESETS)) == PRESET_NAMES
