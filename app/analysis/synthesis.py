@@ -43,6 +43,7 @@ from ringwise.analysis.criteria import VCE_HEADROOM
 from ringwise.analysis.operating import solve
 from ringwise.analysis.trim import MIN_OVER_JUNCTION, Trim, junction_across, trim_frequency
 from ringwise.circuit.npn import T_NOMINAL, thermal_voltage
+from ringwise.circuit.topologies import tank_factor
 from ringwise.design import Design, Topology, with_param
 from ringwise.errors import DesignError
 from ringwise.preferred import nearest
@@ -167,8 +168,8 @@ def synthesize(
         VC = VE + 0.5 * (Vcc - VE)
         R_mid = (Vcc - VC) / IC
         # Hand figure of the loop gain per ohm of RC, with a factor for the losses
-        # (ringwise.circuit.topologies.hand_formula, per ohm).
-        per_ohm = gm * (n if form is Topology.CE else n / (1 + n) ** 2)
+        # (the tank factor of ringwise.circuit.topologies.hand_formula, C1/C2 = n).
+        per_ohm = gm * tank_factor(form, n, 1.0)
         R_need = LOSS_ALLOWANCE * gain / per_ohm
         RC = nearest(min(R_mid, R_need), "E24")
         why = (

@@ -203,6 +203,14 @@ class HandFormula:
     value: float
 
 
+def tank_factor(topology: Topology, C1: float, C2: float) -> float:
+    """The tank's part of the hand formula: C1/C2 (common-emitter, common-collector)
+    or C1·C2/(C1+C2)² (common-base); the hand loop gain is g_m·R·(this)."""
+    if topology is Topology.CB:
+        return C1 * C2 / (C1 + C2) ** 2
+    return C1 / C2
+
+
 def hand_formula(design: Design, gm: float) -> HandFormula:
     r"""Return ratio of the lossless circuit with only the gain-setting resistor.
 
@@ -239,11 +247,11 @@ def hand_formula(design: Design, gm: float) -> HandFormula:
         name, R = "RC", b.RC
     assert R is not None
     if design.topology is Topology.CB:
-        value = gm * R * t.C1 * t.C2 / (t.C1 + t.C2) ** 2
+        value = gm * R * tank_factor(design.topology, t.C1, t.C2)
         symbols = f"g_m·{name}·C1·C2/(C1+C2)²"
         numbers = f"{gm_t} × {format_si(R, 'Ω')} × {C1_t} × {C2_t} / ({C1_t} + {C2_t})²"
     else:
-        value = gm * R * t.C1 / t.C2
+        value = gm * R * tank_factor(design.topology, t.C1, t.C2)
         symbols = f"g_m·{name}·C1/C2"
         numbers = f"{gm_t} × {format_si(R, 'Ω')} × {C1_t} / {C2_t}"
     return HandFormula(symbols=symbols, numbers=f"{numbers} = {value:.4g}{notes}", value=value)
