@@ -27,7 +27,6 @@ from typing import Final
 from ringwise.analysis.budget import BudgetLine
 from ringwise.analysis.checks import Finding
 from ringwise.analysis.operating import Solved
-from ringwise.circuit.topologies import CHOKE_LOSS
 from ringwise.units import format_si
 
 #: C_π above this fraction of C2 (the capacitor it sits across) is comparable
