@@ -113,7 +113,7 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     output = load_output(s, ss)
     crystal = crystal_figures(s, ss, poles)
     findings += crystal_checks(crystal)
-    story = gain_story(hand, gain, budget) if gain is not None else None
+    story = gain_story(hand, s, budget, setter) if gain is not None else None
     return Result(
         name=design.name,
         topology=design.topology.value,

@@ -17,12 +17,13 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Final
 
 import numpy as np
 
-from ringwise.analysis.loop import find_oscillation
+from ringwise.analysis.loop import LoopFigures, find_oscillation
 from ringwise.analysis.operating import Solved
 from ringwise.circuit.mna import SmallSignal, restamp, small_signal
 from ringwise.circuit.netlist import Capacitor, Inductor, Netlist, Resistor
@@ -101,18 +102,19 @@ def _ideal_values(netlist: Netlist, parts: tuple[str, ...]) -> dict[str, dict[st
     return changes
 
 
-def _variant(solved: Solved, item: BudgetItem) -> SmallSignal:
+def _variant(solved: Solved, items: Sequence[BudgetItem]) -> SmallSignal:
+    """The small-signal circuit with every one of ``items`` made ideal at once."""
     system = solved.system
-    if item.parts:
-        system = restamp(system, solved.netlist, _ideal_values(solved.netlist, item.parts))
-    hp: HybridPi = dataclasses.replace(solved.hybrid, **item.hybrid)
+    parts = tuple(p for item in items for p in item.parts)
+    if parts:
+        system = restamp(system, solved.netlist, _ideal_values(solved.netlist, parts))
+    changes = {k: v for item in items for k, v in item.hybrid.items()}
+    hp: HybridPi = dataclasses.replace(solved.hybrid, **changes)
     return small_signal(system, hp)
 
 
-def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
-    """Cost of each loss in loop gain, for a solved design with a loop crossing."""
-    items = budget_items(solved.netlist, gain_setter)
-    variants = [_variant(solved, item) for item in items]
+def _solve_variants(solved: Solved, variants: list[SmallSignal]) -> LoopFigures:
+    """Oscillation figures of all ``variants`` in one batched call."""
     batch = SmallSignal(
         layout=solved.ss.layout,
         G=np.stack([v.G for v in variants]),
@@ -123,7 +125,36 @@ def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
         hybrid=solved.hybrid,
     )
     f_ref = solved.f_osc or solved.tank.f_ideal
-    figs = find_oscillation(batch, solved.tank.f_ideal, f_ref)
+    return find_oscillation(batch, solved.tank.f_ideal, f_ref)
+
+
+def sequential_costs(
+    solved: Solved, gain_setter: str, order: Sequence[str]
+) -> tuple[float, list[float]] | None:
+    r"""The losses added one after another to the circuit with all of them ideal.
+
+    With the losses :math:`\ell_1 … \ell_n` in ``order`` (budget elements), variant
+    k has :math:`\ell_{k+1} … \ell_n` made ideal: :math:`T_0` has none of the
+    losses, :math:`T_n` is the full loop gain.  Loss k costs
+    :math:`20\log_{10}(T_{k-1}/T_k)` dB; the costs add up to
+    :math:`20\log_{10}(T_0/T_n)` exactly, whatever the losses' interplay (each is
+    charged for what it takes given those before it).  Returns :math:`T_0` and
+    the costs in ``order``, or None when a variant has no loop crossing.
+    """
+    by_element = {i.element: i for i in budget_items(solved.netlist, gain_setter)}
+    items = [by_element[e] for e in order]
+    variants = [_variant(solved, items[k:]) for k in range(len(items) + 1)]
+    gains = _solve_variants(solved, variants).gain
+    if not np.all(np.isfinite(gains)) or not np.all(gains > 0):
+        return None
+    costs = [20.0 * math.log10(gains[k - 1] / gains[k]) for k in range(1, len(items) + 1)]
+    return float(gains[0]), costs
+
+
+def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
+    """Cost of each loss in loop gain, for a solved design with a loop crossing."""
+    items = budget_items(solved.netlist, gain_setter)
+    figs = _solve_variants(solved, [_variant(solved, [item]) for item in items])
     gain = solved.gain
     costs: list[float | None] = []
     for g in figs.gain:
