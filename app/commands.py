@@ -70,11 +70,11 @@ def _number(value: Any) -> str:
 
 def _analysis_figures(result: Mapping[str, Any]) -> list[tuple[str, str, Any, str]]:
     # the sheet's table of shown figures (app/web/view.py) and its display texts
-    from ringwise.web.view import SHOWN, STABILITY_SHOWN, lookup, shown_figures
+    from ringwise.web.view import NOISE_SHOWN, SHOWN, STABILITY_SHOWN, lookup, shown_figures
 
     shown = shown_figures(result)
     labels = [(p, label) for p, _u, label, _panel in SHOWN] + [
-        (p, label) for p, _u, label in STABILITY_SHOWN
+        (p, label) for p, _u, label in STABILITY_SHOWN + NOISE_SHOWN
     ]
     return [(p, label, lookup(result, p), shown[p]["text"]) for p, label in labels if p in shown]
 

@@ -191,9 +191,9 @@ class Noise(_Part):
         default=1.0,
         description="Flicker exponent of the base current, A_F (typical, from memory)",
     )
-    e_supply: SI("V", ge=0, le=1e-3) | None = Field(
-        default=None,
-        description="Noise voltage density of the supply, V/√Hz (blank: a noiseless supply)",
+    e_supply: SI("V", ge=0, le=1e-3) = Field(
+        default=0.0,
+        description="Noise voltage density of the supply, V/√Hz (0: a noiseless supply)",
     )
 
 

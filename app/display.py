@@ -130,6 +130,16 @@ STABILITY_SHOWN: Final = tuple(
     )
 )
 
+#: The phase noise computed from the circuit's noise sources: (path, unit, label).
+NOISE_SHOWN: Final = tuple(
+    Row(*row)
+    for row in (
+        ("stability.F_effective_dB", "dB", "Effective noise factor (the F Leeson would need)"),
+        ("stability.diffusion", "s", "Phase diffusion constant c"),
+        ("stability.flicker_corner", "Hz", "1/f³ corner (flicker up-conversion)"),
+    )
+)
+
 #: Of those, the ones the summary's stability block lists.
 SUMMARY_STABILITY: Final = (
     "stability.Q_loaded",

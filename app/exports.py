@@ -25,6 +25,19 @@ Table = tuple[list[str], list[list[Any]]]
 #: (key, header)).
 RESULT_SERIES: Final[dict[str, tuple[str, tuple[tuple[str, str], ...]]]] = {
     "phase-noise": ("stability.curve", (("offset", "offset [Hz]"), ("dBc_Hz", "L(f) [dBc/Hz]"))),
+    "phase-noise-computed": (
+        "stability.spectrum_curve",
+        (("offset", "offset [Hz]"), ("dBc_Hz", "L(f) [dBc/Hz]")),
+    ),
+    "noise-sources": (
+        "stability.sources",
+        (
+            ("name", "source"),
+            ("share_1k", "share at 1 kHz"),
+            ("share_100k", "share at 100 kHz"),
+            ("diffusion", "diffusion [s]"),
+        ),
+    ),
     "waveform": (
         "transient.waveform",
         (("t", "t [s]"), ("v_out", "v_out [V]"), ("v_be", "v_be [V]")),
@@ -69,11 +82,17 @@ def _at(data: Mapping[str, Any], path: str) -> Any:
 
 
 def result_series(result: Mapping[str, Any], name: str) -> Table:
-    """A named curve (``phase-noise``, ``waveform``, ``envelope``, ``spectrum``) of a
-    result as JSON (``model_dump(mode="json")``)."""
+    """A named curve (``phase-noise``, ``waveform``, ``envelope``, ``spectrum``, ...) of a
+    result as JSON (``model_dump(mode="json")``); a list of records (``noise-sources``)
+    becomes one row per record, an absent curve no rows."""
     path, cols = RESULT_SERIES[name]
     parent = _at(result, path)
-    return [h for _, h in cols], [list(parent[k]) for k, _ in cols]
+    header = [h for _, h in cols]
+    if parent is None:
+        return header, [[] for _ in cols]
+    if isinstance(parent, list):
+        return header, [[row[k] for row in parent] for k, _ in cols]
+    return header, [list(parent[k]) for k, _ in cols]
 
 
 def sweep_table(sweep: Any) -> Table:

@@ -223,7 +223,16 @@ class NoisePointOut(_Out):
 
 class NoiseCurveOut(_Out):
     offset: list[float] = Field(description="Offsets 10 Hz … 10 MHz, Hz")
-    dBc_Hz: list[float] = Field(description="Leeson SSB phase noise, dBc/Hz")
+    dBc_Hz: list[float] = Field(description="SSB phase noise, dBc/Hz")
+
+
+class NoiseSourceOut(_Out):
+    name: str = Field(description="The source: its part and its kind, e.g. 'RB1 thermal'")
+    part: str = Field(description="The part it belongs to")
+    kind: Literal["thermal", "collector shot", "base shot", "base flicker", "supply"]
+    diffusion: Num = Field(description="Its part of the phase diffusion constant, s (white)")
+    share_1k: Num = Field(description="Its share of the phase noise at 1 kHz offset (0 … 1)")
+    share_100k: Num = Field(description="Its share of the phase noise at 100 kHz offset (0 … 1)")
 
 
 class PartStressOut(_Out):
@@ -245,6 +254,30 @@ class StabilityOut(_Out):
     pulling_Hz: Num = Field(description="f_osc with the load minus f_osc open, Hz")
     pulling_Hz_per_ohm: Num = Field(description="df_osc/dR_load at the load, Hz/Ω")
     parts: list[PartStressOut]
+    method: str | None = Field(
+        default=None, description="How the computed phase noise was found, in one line"
+    )
+    diffusion: Num = Field(
+        default=None,
+        description="Phase diffusion constant c: var of the time shift grows as c·t, s",
+    )
+    F_effective_dB: Num = Field(
+        default=None,
+        description="Noise factor Leeson's formula needs to give the computed 1/f² level, dB",
+    )
+    flicker_corner: Num = Field(
+        default=None, description="Offset below which flicker up-conversion dominates (1/f³), Hz"
+    )
+    spectrum: list[NoisePointOut] = Field(
+        default_factory=list,
+        description="Computed phase noise at the report offsets (from the noise sources)",
+    )
+    spectrum_curve: NoiseCurveOut | None = Field(
+        default=None, description="Computed phase noise, 10 Hz … 10 MHz (Lorentzian at the carrier)"
+    )
+    sources: list[NoiseSourceOut] = Field(
+        default_factory=list, description="Every noise source and its share, largest first"
+    )
 
 
 class OutputOut(_Out):

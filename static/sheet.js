@@ -7,6 +7,8 @@ const SEL = {
   outcome: ".outcome",
   figures: ".outcome [data-field]:not([data-field='warnings']), .stability-panel dd[data-field]",
   stressRows: "[data-role='stress-rows']",
+  sourceRows: "[data-role='source-rows']",
+  noiseMethod: "[data-role='noise-method']",
   verdict: ".verdict",
   verdictLabel: "[data-role='verdict-label']",
   glyph: ".verdict .glyph use",
@@ -285,6 +287,15 @@ function renderStress(view) {
     return tr;
   });
   $(SEL.stressRows).replaceChildren(...rows);
+  const sources = (view.source_rows || []).map((row) => {
+    const tr = document.createElement("tr");
+    const head = cell("th", row.name);
+    head.scope = "row";
+    tr.append(head, cell("td", row.share_1k), cell("td", row.share_100k));
+    return tr;
+  });
+  $(SEL.sourceRows).replaceChildren(...sources);
+  $(SEL.noiseMethod).textContent = view.result.stability.method || NO_NOISE_METHOD;
 }
 
 function warningItem(w) {
@@ -510,6 +521,7 @@ function drawBudget(el, b) {
   );
 }
 
+const NO_NOISE_METHOD = "Computed phase noise: needs the periodic steady state (none for this design).";
 const REGION_FILL = { cube: "rgba(162, 82, 31, 0.08)", square: "rgba(29, 107, 87, 0.07)", flicker: "rgba(154, 106, 0, 0.08)", floor: "rgba(59, 110, 165, 0.07)" };
 
 function plotNoise(n) {
@@ -531,12 +543,22 @@ function drawNoise(el, n) {
     label: { text: r.label, textposition: "top center", font: { size: 10, color: "#5d6a70" } },
   }));
   for (const x of [n.f_corner, n.leeson_corner]) if (x) shapes.push(vline(x, "dot", "#5d6a70"));
+  const c = n.computed;
+  const hover = "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>";
+  const traces = c
+    ? [
+        { x: c.offset, y: c.dBc_Hz, name: "L(Δf) from the circuit's noise sources", line: { color: INK, width: 2 }, hovertemplate: hover },
+        { x: c.points.offset, y: c.points.dBc_Hz, name: "reported offsets", mode: "markers", marker: { color: ACCENT, size: 7, symbol: "diamond" }, hovertemplate: hover },
+        { x: n.offset, y: n.dBc_Hz, name: `Leeson with F = ${n.F_dB} dB (comparison)`, line: { color: "#5d6a70", width: 1.4, dash: "dash" }, hovertemplate: hover },
+      ]
+    : [
+        { x: n.offset, y: n.dBc_Hz, name: "L(Δf), Leeson", line: { color: INK, width: 2 }, hovertemplate: hover },
+        { x: n.points.offset, y: n.points.dBc_Hz, name: "reported offsets", mode: "markers", marker: { color: ACCENT, size: 7, symbol: "diamond" }, hovertemplate: hover },
+      ];
+  if (c && c.flicker_corner) shapes.push(vline(c.flicker_corner, "dashdot", ACCENT));
   Plotly.react(
     el,
-    [
-      { x: n.offset, y: n.dBc_Hz, name: "L(Δf), Leeson", line: { color: INK, width: 2 }, hovertemplate: "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>" },
-      { x: n.points.offset, y: n.points.dBc_Hz, name: "reported offsets", mode: "markers", marker: { color: ACCENT, size: 7, symbol: "diamond" }, hovertemplate: "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>" },
-    ],
+    traces,
     layout({
       margin: { l: 58, r: 16, t: 24, b: 40 },
       xaxis: { type: "log", title: { text: "offset from the carrier (Hz)" }, exponentformat: "SI", range: [1, 7] },

@@ -42,6 +42,18 @@ def test_phase_noise_curve(design) -> None:
     assert back == [result["stability"]["curve"]["offset"], result["stability"]["curve"]["dBc_Hz"]]
 
 
+def test_computed_phase_noise_and_sources(design) -> None:
+    result = analyze(design).model_dump(mode="json")
+    header, cols = result_series(result, "phase-noise-computed")
+    _, back = _parse(columns_csv(header, cols))
+    curve = result["stability"]["spectrum_curve"]
+    assert back == [curve["offset"], curve["dBc_Hz"]]
+    header, cols = result_series(result, "noise-sources")
+    assert header[0] == "source"
+    assert cols[0] == [s["name"] for s in result["stability"]["sources"]]
+    assert sum(cols[1]) == pytest.approx(1.0)
+
+
 @pytest.mark.parametrize("series", ["waveform", "envelope", "spectrum"])
 def test_simulation_series(design, series: str) -> None:
     sim = simulate(design, cycles=40, points=200).model_dump(mode="json")

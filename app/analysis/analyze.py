@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import functools
+import math
 import threading
-from typing import Final
+from typing import Any, Final
 
 from ringwise.analysis.budget import loop_budget
 from ringwise.analysis.checks import Finding, choke_checks, rule_checks, steady_checks
@@ -12,8 +13,9 @@ from ringwise.analysis.crystal import crystal_checks, crystal_figures
 from ringwise.analysis.operating import solve
 from ringwise.analysis.output import load_output
 from ringwise.analysis.periodic import SteadyState, steady_state
+from ringwise.analysis.phase_noise import SHARE_OFFSETS, OscillatorNoise
 from ringwise.analysis.poles import natural_frequencies
-from ringwise.analysis.stability import stability
+from ringwise.analysis.stability import REPORT_OFFSETS, stability
 from ringwise.analysis.startup import verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
@@ -30,6 +32,7 @@ from ringwise.result import (
     MultiplierOut,
     NoiseCurveOut,
     NoisePointOut,
+    NoiseSourceOut,
     OperatingPointOut,
     OutputOut,
     PartStressOut,
@@ -185,11 +188,39 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
             pulling_Hz=st.pulling_Hz,
             pulling_Hz_per_ohm=st.pulling_Hz_per_ohm,
             parts=[PartStressOut(**vars(p)) for p in st.parts],
+            method=st.method,
+            **_noise_fields(st.noise),
         ),
         output=None if output is None else OutputOut(**vars(output)),
         crystal=None if crystal is None else CrystalOut(**vars(crystal)),
         warnings=[WarningOut(code=f.code, message=f.message) for f in findings],
     )
+
+
+def _noise_fields(on: OscillatorNoise | None) -> dict[str, Any]:
+    """The computed phase noise as the stability section's fields (empty without it)."""
+    if on is None:
+        return {}
+    pn = on.noise
+    sources = sorted(zip(pn.rates, pn.shares, strict=True), key=lambda rs: -rs[1][0])
+    return {
+        "diffusion": pn.diffusion,
+        "F_effective_dB": 10.0 * math.log10(on.F_effective) if on.F_effective else None,
+        "flicker_corner": pn.corner,
+        "spectrum": [NoisePointOut(offset=o, dBc_Hz=pn.at(o)) for o in REPORT_OFFSETS],
+        "spectrum_curve": NoiseCurveOut(offset=pn.offsets, dBc_Hz=pn.dBc_Hz),
+        "sources": [
+            NoiseSourceOut(
+                name=r.source.name,
+                part=r.source.part,
+                kind=r.source.kind,
+                diffusion=r.c,
+                share_1k=share[SHARE_OFFSETS.index(1e3)],
+                share_100k=share[SHARE_OFFSETS.index(100e3)],
+            )
+            for r, share in sources
+        ],
+    }
 
 
 def _multiplier(z: complex) -> MultiplierOut:

@@ -1,19 +1,24 @@
 r"""Frequency stability figures: Leeson phase noise, pushing, pulling, tank stresses.
 
-Phase noise follows Leeson's single-sideband model,
+Two phase-noise figures: the one computed from the circuit's own noise
+sources through the periodic steady state (:mod:`ringwise.analysis.phase_noise`),
+and Leeson's model beside it for comparison,
 
 .. math::
 
-    \mathcal{L}(\Delta f) = 10\log_{10}\left[\frac{F k T}{2 P_s}
+    \mathcal{L}(\Delta f) = 10\log_{10}\left[\frac{2 F k T}{P_s}
     \left(1 + \left(\frac{f_0}{2 Q_L \Delta f}\right)^2\right)
     \left(1 + \frac{f_c}{\Delta f}\right)\right]\ \mathrm{dBc/Hz}
 
 with :math:`Q_L` the loaded Q from the loop's phase slope, :math:`P_s` the
-signal power dissipated in the resonator's loss (the coil's series
-resistance, in the periodic steady state), F the device's effective
-noise factor and f_c its flicker corner.  Forms of the formula that circulate
-differ by 6 dB through other definitions of P_s and of single- versus
-double-sideband noise; this is Leeson's original single-sideband form.
+power the loaded resonator dissipates on the steady-state orbit
+(:func:`ringwise.analysis.phase_noise.resonator_power`), F a noise factor and
+f_c a flicker corner, both entered.  This is the form of Lee & Hajimiri
+(2000): with this P_s, F = 1 is exactly a resonator whose loading is the
+only noise (a lossy tank held by a noiseless negative resistance), so the
+effective F the computed spectrum implies can be compared with the F
+entered.  Forms that circulate differ by 6 dB through other definitions of
+P_s and of single- versus double-sideband noise.
 
 Pushing is df/dVcc at full amplitude: the steady state's frequency at
 Vcc ± a step (each warm-started from the nominal orbit), or the small-signal
@@ -24,7 +29,8 @@ solves are one batch of the pipeline.
 References
 ----------
 D. B. Leeson, "A simple model of feedback oscillator noise spectrum",
-Proc. IEEE 54(2), 1966 (from memory).
+Proc. IEEE 54(2), 1966; T. H. Lee & A. Hajimiri, "Oscillator phase noise: a
+tutorial", IEEE JSSC 35(3), 2000 (both from memory).
 """
 
 from __future__ import annotations
@@ -37,14 +43,20 @@ from scipy import constants
 
 from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import PartPower, SteadyState, steady_state
+from ringwise.analysis.phase_noise import (
+    PLOT_DECADES,
+    PLOT_POINTS,
+    OscillatorNoise,
+    oscillator_noise,
+    resonator_power,
+)
 from ringwise.analysis.pipeline import solve_designs
+from ringwise.analysis.ppv import SensitivityError
 from ringwise.circuit.topologies import UNRATED_CAPACITANCES
 from ringwise.design import Design, step_within, with_param
 
 #: Offsets reported and plotted, Hz.
 REPORT_OFFSETS: Final = (100.0, 1e3, 10e3, 100e3)
-PLOT_DECADES: Final = (1.0, 7.0)  # 10 Hz … 10 MHz
-PLOT_POINTS: Final = 61
 #: Supply step for pushing, as a fraction of Vcc.
 PUSH_STEP: Final = 0.01
 #: Relative step of R_load for df/dR_load.
@@ -70,6 +82,34 @@ class Stability:
     pulling_Hz_per_ohm: float | None
     parts: list[PartPower]
     notes: list[tuple[str, str]]
+    noise: OscillatorNoise | None = None
+    method: str | None = None
+
+
+#: The one line naming how the computed phase noise was found.
+METHOD: Final = (
+    "Phase noise computed from the circuit's own noise sources (thermal, shot, base "
+    "flicker, supply) through the perturbation projection vector of the periodic "
+    "steady state (Demir, Mehrotra & Roychowdhury 2000); Leeson's formula beside it "
+    "for comparison only."
+)
+
+
+def computed_noise(solved: Solved, ss: SteadyState | None) -> tuple[OscillatorNoise | None, str]:
+    """The phase noise from the noise sources and the line that names the method (or why not)."""
+    if ss is None:
+        return None, "Computed phase noise: waiting for the periodic steady state."
+    if ss.orbit is None:
+        return None, "Computed phase noise: none, the circuit has no periodic orbit."
+    if ss.behaviour != "settles":
+        return None, (
+            f"Computed phase noise: none, the orbit {ss.behaviour.replace('-', ' ')}s "
+            "instead of settling (phase noise is defined about a stable orbit)."
+        )
+    try:
+        return oscillator_noise(solved, ss), METHOD
+    except SensitivityError as err:
+        return None, f"Computed phase noise: none ({err})."
 
 
 def leeson(
@@ -79,7 +119,7 @@ def leeson(
     """Leeson's SSB phase noise, dBc/Hz, at ``offset`` (Hz) from the carrier ``f0`` (Hz)."""
     df = np.asarray(offset, dtype=float)
     F = 10.0 ** (F_dB / 10.0)
-    floor = F * constants.k * T / (2.0 * P_s)
+    floor = 2.0 * F * constants.k * T / P_s
     return 10.0 * np.log10(
         floor * (1.0 + (f0 / (2.0 * Q_loaded * df)) ** 2) * (1.0 + f_corner / df)
     )
@@ -148,7 +188,13 @@ def stability(solved: Solved, ss: SteadyState | None) -> Stability:
     """
     d = solved.design
     Q = float(solved.loop.Q_loaded) if solved.f_osc is not None else None
-    P_s = ss.P_tank if ss is not None else None
+    noise, method = computed_noise(solved, ss)
+    # Leeson's P_s: the power the loaded resonator dissipates on the orbit
+    P_s = (
+        resonator_power(ss.orbit, solved.system.layout.branch["L"], d.tank.L, Q)
+        if ss is not None and ss.orbit is not None and Q
+        else None
+    )
     T = d.temperature_C + constants.zero_Celsius
     pn: list[tuple[float, float]] = []
     curve: list[tuple[float, float]] = []
@@ -197,4 +243,6 @@ def stability(solved: Solved, ss: SteadyState | None) -> Stability:
         pulling_Hz_per_ohm=slope,
         parts=parts,
         notes=notes,
+        noise=noise,
+        method=method,
     )

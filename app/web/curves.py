@@ -188,7 +188,8 @@ def noise_regions(
 
 
 def noise_curve(stability: dict[str, Any]) -> dict[str, Any]:
-    """The core's Leeson curve with its regions and report points, for a log-log plot."""
+    """The core's Leeson curve with its regions and report points, and the phase noise
+    computed from the noise sources beside it, for a log-log plot."""
     curve = stability["curve"]
     offsets = curve["offset"]
     regions = (
@@ -206,6 +207,27 @@ def noise_curve(stability: dict[str, Any]) -> dict[str, Any]:
         },
         "f_corner": stability["f_corner"],
         "leeson_corner": stability["leeson_corner"],
+        "F_dB": stability["F_dB"],
+        "computed": _computed_noise(stability),
+    }
+
+
+def _computed_noise(stability: dict[str, Any]) -> dict[str, Any] | None:
+    """The phase noise from the circuit's noise sources, with its report points and the
+    1/f³ corner (``None`` without a steady state)."""
+    curve = stability.get("spectrum_curve")
+    if not curve:
+        return None
+    points = stability.get("spectrum") or []
+    return {
+        "offset": curve["offset"],
+        "dBc_Hz": curve["dBc_Hz"],
+        "points": {
+            "offset": [p["offset"] for p in points],
+            "dBc_Hz": [p["dBc_Hz"] for p in points],
+        },
+        "flicker_corner": stability.get("flicker_corner"),
+        "F_effective_dB": stability.get("F_effective_dB"),
     }
 
 

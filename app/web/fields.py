@@ -159,6 +159,21 @@ FIELDS: Final[tuple[FormField, ...]] = (
     FormField("C_mu", "transistor", "C_μ, base–collector capacitance", "F"),
     FormField("F_dB", "transistor", "Noise factor for phase noise, dB (blank: default)", ""),
     FormField("f_corner", "transistor", "Flicker corner (blank: default)", "Hz"),
+    FormField(
+        "K_F",
+        "transistor",
+        "K_F, base flicker coefficient in K_F·I_B^A_F/f (blank: default; 0: none)",
+        doc_section="noise",
+    ),
+    FormField(
+        "A_F", "transistor", "A_F, base flicker exponent (blank: default)", doc_section="noise"
+    ),
+    FormField(
+        "e_supply",
+        "conditions",
+        "Supply noise density, V/√Hz (blank: noiseless)",
+        doc_section="noise",
+    ),
     FormField("Cc1", "load", "Cc1, DC block at the output terminal", "F"),
     FormField("Cc2", "load", "Cc2, DC block at the input terminal", "F"),
     FormField("R_load", "load", "R_load, load on the output (blank: none)", "Ω"),

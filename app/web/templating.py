@@ -18,6 +18,7 @@ from ringwise.web.routers.simulate import DEFAULT_CYCLES, POLL_MS, SHEET_POINTS
 from ringwise.web.samples import samples
 from ringwise.web.tools import tool_context
 from ringwise.web.view import (
+    NOISE_SHOWN,
     ORDINALS,
     PANELS,
     RUN_SHOWN,
@@ -68,6 +69,11 @@ def _static_context() -> dict[str, Any]:
             {"path": f"stability.phase_noise.{i}.dBc_Hz", "offset": display(f, "Hz")}
             for i, f in enumerate(REPORT_OFFSETS)
         ],
+        "spectrum_defaults": [
+            {"path": f"stability.spectrum.{i}.dBc_Hz", "offset": display(f, "Hz")}
+            for i, f in enumerate(REPORT_OFFSETS)
+        ],
+        "noise_shown": NOISE_SHOWN,
         "rating_percent": f"{100 * RATING_FRACTION:g} %",
         "run_shown": RUN_SHOWN,
         "harmonic_rows": [

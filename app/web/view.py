@@ -22,6 +22,7 @@ from ringwise.circuit.topologies import gain_setter
 from ringwise.design import Design, Feed, Topology, get_param
 from ringwise.display import (
     LOG_UNITS,
+    NOISE_SHOWN,
     ORDINALS,
     PANELS,
     RUN_SHOWN,
@@ -47,6 +48,7 @@ from ringwise.web.fields import (
 from ringwise.web.ladders import nearest_step
 
 __all__ = [
+    "NOISE_SHOWN",
     "ORDINALS",
     "PANELS",
     "RUN_SHOWN",
@@ -111,7 +113,10 @@ def stability_figures(result: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
     for i, point in enumerate(st["phase_noise"]):
         path = f"stability.phase_noise.{i}.dBc_Hz"
         out[path] = _figure(point["dBc_Hz"], display(point["dBc_Hz"], "dBc/Hz"))
-    for path, unit, _label in STABILITY_SHOWN:
+    for i, point in enumerate(st.get("spectrum") or []):
+        path = f"stability.spectrum.{i}.dBc_Hz"
+        out[path] = _figure(point["dBc_Hz"], display(point["dBc_Hz"], "dBc/Hz"))
+    for path, unit, _label in STABILITY_SHOWN + NOISE_SHOWN:
         value = lookup(result, path)
         out[path] = _figure(value, _text(value, unit))
     for i, part in enumerate(st["parts"]):
@@ -125,6 +130,22 @@ def noise_offsets(result: Mapping[str, Any]) -> list[dict[str, Any]]:
     return [
         {"path": f"stability.phase_noise.{i}.dBc_Hz", "offset": display(p["offset"], "Hz")}
         for i, p in enumerate(result["stability"]["phase_noise"])
+    ]
+
+
+def source_rows(result: Mapping[str, Any]) -> list[dict[str, str]]:
+    """The noise sources as the sheet lists them: name and share at 1 kHz and 100 kHz, in %."""
+
+    def percent(x: float | None) -> str:
+        return "—" if x is None else f"{100.0 * x:.1f} %"
+
+    return [
+        {
+            "name": src["name"],
+            "share_1k": percent(src["share_1k"]),
+            "share_100k": percent(src["share_100k"]),
+        }
+        for src in result["stability"].get("sources") or []
     ]
 
 
@@ -228,6 +249,7 @@ def build_view(
         "shown": None,
         "noise_offsets": [],
         "part_rows": [],
+        "source_rows": [],
         "curves": None,
         "unused": [],
         "sweep_options": [],
@@ -274,6 +296,7 @@ def build_view(
         shown=shown_figures(result),
         noise_offsets=noise_offsets(result),
         part_rows=part_rows(result, design.ratings.V_cap),
+        source_rows=source_rows(result),
         unused=design.unused_parts() + _idle_parts(design),
         sweep_options=options,
         sweep_param=param,

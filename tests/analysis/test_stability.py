@@ -16,15 +16,16 @@ from tests.conftest import BASE_CE, design_from, ideal_data, load_sample, sample
 
 
 def test_leeson_hand_example() -> None:
-    # Leeson, Proc. IEEE 1966 (SSB form, from memory). Hand arithmetic with
-    # f0 = 10 MHz, Q_L = 20, P_s = 1 mW, F = 6 dB (3.981), fc = 10 kHz, T = 290 K:
-    # floor = F·k·T/(2·P_s) = 3.981 × 4.004e-21 / 2e-3 = 7.970e-18 → −170.99 dB;
+    # Leeson, Proc. IEEE 1966, in the form 2FkT/P_s of Lee & Hajimiri, IEEE JSSC
+    # 35(3), 2000 (both from memory). Hand arithmetic with f0 = 10 MHz, Q_L = 20,
+    # P_s = 1 mW, F = 6 dB (3.981), fc = 10 kHz, T = 290 K:
+    # floor = 2·F·k·T/P_s = 2 × 3.981 × 4.004e-21 / 1e-3 = 3.188e-17 → −164.96 dB;
     # at Δf = 1 kHz: (f0/(2·Q·Δf))² = 250² = 62500, (1 + fc/Δf) = 11
-    # → −170.99 + 10·log10(62501·11) = −170.99 + 58.37 = −112.62 dBc/Hz.
+    # → −164.96 + 10·log10(62501·11) = −164.96 + 58.37 = −106.59 dBc/Hz.
     k = 1.380649e-23
-    floor = 10**0.6 * k * 290 / 2e-3
+    floor = 2 * 10**0.6 * k * 290 / 1e-3
     hand = 10 * math.log10(floor * (1 + 250**2) * 11)
-    assert hand == pytest.approx(-112.62, abs=0.01)
+    assert hand == pytest.approx(-106.59, abs=0.01)
     assert leeson(1e3, 10e6, 20.0, 1e-3, 6.0, 10e3, 290.0) == pytest.approx(hand, abs=1e-9)
     # Far out only the floor (and the flicker term's tail) remains.
     far = leeson(1e9, 10e6, 20.0, 1e-3, 6.0, 10e3, 290.0)
@@ -105,6 +106,17 @@ def test_samples_have_stability_figures(path) -> None:
     assert values[-1] > -200
     assert len(st.curve.offset) == len(st.curve.dBc_Hz) > 10
     coil = next(p for p in st.parts if p.part == "L")
-    assert pytest.approx(st.P_signal, rel=1e-9) == coil.P
+    # Leeson's P_s: the loaded resonator's loss ω·L·I_rms²/Q_loaded (Lee & Hajimiri 2000)
+    w = 2 * math.pi * r.steady_state.f
+    L = load_sample(path).tank.L
+    assert st.P_signal == pytest.approx(w * L * coil.I_rms**2 / st.Q_loaded, rel=1e-9)
+    # the computed phase noise beside it: shares add to 100 % (common practice, no source)
+    assert "perturbation projection vector" in st.method
+    assert sum(s.share_1k for s in st.sources) == pytest.approx(1.0, abs=1e-9)
+    assert sum(s.share_100k for s in st.sources) == pytest.approx(1.0, abs=1e-9)
+    assert 0.0 < st.F_effective_dB < 30.0
+    computed = [p.dBc_Hz for p in st.spectrum]
+    assert all(b < a for a, b in itertools.pairwise(computed))
+    assert st.diffusion > 0 and st.flicker_corner > 0
     assert coil.I_rms > 0 and all(np.isfinite(p.V_peak) for p in st.parts)
     assert st.pushing_Hz_per_V is not None

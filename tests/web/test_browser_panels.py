@@ -53,12 +53,26 @@ def test_stability_panel_shows_the_four_offsets(context, live_server, client):
     rows = sheet.page.locator("[data-role='stress-rows'] tr")
     assert rows.count() == len(want["result"]["stability"]["parts"])
     note = sheet.page.text_content(".stability-panel")
-    assert "original single-sideband form" in note
-    assert "signal power dissipated in the resonator's loss" in note
-    # the Leeson plot draws once it is on screen
+    assert "Leeson's model, for comparison" in note
+    assert "power the loaded resonator dissipates" in note
+    # the computed phase noise: its points, its figures, its method and its sources
+    st = want["result"]["stability"]
+    for i in range(len(st["spectrum"])):
+        path = f"stability.spectrum.{i}.dBc_Hz"
+        wait_for(sheet, f".stability-panel [data-field='{path}']", want["shown"][path]["raw"])
+    for path in ("stability.F_effective_dB", "stability.diffusion", "stability.flicker_corner"):
+        assert sheet.attr(f".stability-panel [data-field='{path}']") == want["shown"][path]["raw"]
+    assert sheet.page.text_content("[data-role='noise-method']") == st["method"]
+    assert "perturbation projection vector" in st["method"]
+    sources = sheet.page.locator("[data-role='source-rows'] tr")
+    assert sources.count() == len(st["sources"]) > 5
+    assert sources.nth(0).locator("th").text_content() == st["sources"][0]["name"]
+    # the plot draws once it is on screen: computed curve, points and Leeson's beside it
     sheet.page.locator("#plot-noise").scroll_into_view_if_needed()
     sheet.page.wait_for_selector("#plot-noise .main-svg")
     assert sheet.page.locator("#plot-noise .shapelayer path").count() >= 3  # the regions
+    legend = sheet.page.text_content("#plot-noise .legend")
+    assert "from the circuit's noise sources" in legend and "(comparison)" in legend
     # live: a higher noise factor raises every offset's figure
     sheet.page.fill("[name='F_dB']", "12")
     settle(sheet, client)
