@@ -221,7 +221,7 @@ def test_a_byte_order_mark_is_accepted_by_both_cli_and_api() -> None:
     with_bom = b"\xef\xbb\xbf" + sample_paths()[0].read_bytes()
     done = _cli("analyze", "-", stdin=with_bom)
     assert done.returncode == 0, done.stderr
-    with TestClient(create_app()) as client:
+    with TestClient(create_app(), base_url="http://127.0.0.1") as client:  # a loopback Host
         answer = client.post(
             "/api/analyze", content=with_bom, headers={"content-type": "application/json"}
         )
