@@ -191,7 +191,7 @@ def stability(solved: Solved, ss: SteadyState | None) -> Stability:
     noise, method = computed_noise(solved, ss)
     # Leeson's P_s: the power the loaded resonator dissipates on the orbit
     P_s = (
-        resonator_power(ss.orbit, solved.system.layout.branch["L"], d.tank.L, Q)
+        resonator_power(ss.orbit, solved.system.layout.branch["L"], solved.netlist["L"].L, Q)
         if ss is not None and ss.orbit is not None and Q
         else None
     )

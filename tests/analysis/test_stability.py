@@ -108,7 +108,7 @@ def test_samples_have_stability_figures(path) -> None:
     coil = next(p for p in st.parts if p.part == "L")
     # Leeson's P_s: the loaded resonator's loss ω·L·I_rms²/Q_loaded (Lee & Hajimiri 2000)
     w = 2 * math.pi * r.steady_state.f
-    L = load_sample(path).tank.L
+    L = solve(load_sample(path)).netlist["L"].L  # the coil, or a crystal's motional arm
     assert st.P_signal == pytest.approx(w * L * coil.I_rms**2 / st.Q_loaded, rel=1e-9)
     # the computed phase noise beside it: shares add to 100 % (common practice, no source)
     assert "perturbation projection vector" in st.method
