@@ -245,6 +245,7 @@ def oscillator_noise(solved: Solved, steady: SteadyState) -> OscillatorNoise | N
     Q = float(solved.loop.Q_loaded) if solved.f_osc is not None else None
     if not Q or Q <= 0.0:
         return OscillatorNoise(pn, sens, None, None, None, T_kelvin)
+    # the resonator inductance as built (the coil, or a crystal's motional arm)
     P_s = resonator_power(orbit, system.layout.branch["L"], solved.netlist["L"].L, Q)
     F = effective_noise_factor(pn.diffusion, Q, P_s, T_kelvin) if P_s > 0.0 else None
     return OscillatorNoise(pn, sens, F, Q, P_s, T_kelvin)

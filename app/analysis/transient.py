@@ -125,7 +125,7 @@ def transient_system(solved: Solved) -> tuple[LinearSystem, np.ndarray]:
     x0 = solved.op.x.copy()
     f = solved.f_osc or solved.tank.f_ideal
     # A coil current i gives a tank voltage of about i·ω·L.
-    x0[system.layout.branch["L"]] += KICK_VOLTS / (2.0 * math.pi * f * solved.design.tank.L)
+    x0[system.layout.branch["L"]] += KICK_VOLTS / (2.0 * math.pi * f * solved.netlist["L"].L)
     return LinearSystem(system.layout, system.G, C, system.b, system.devices), x0
 
 
