@@ -399,6 +399,12 @@ PARAMETERS: Final[dict[str, str]] = {
 }
 
 
+#: The parameters that are parts of the circuit (the transistor's included), the ones
+#: a what-if plot or a bench reading may name: the noise model's figures and the
+#: capacitors' voltage rating describe the design, they are not parts.
+PART_PARAMETERS: Final = tuple(p for p, s in PARAMETERS.items() if s not in ("noise", "ratings"))
+
+
 def get_param(design: Design, name: str) -> float | None:
     """Value of a named parameter in SI units (``None`` when the part is absent)."""
     if name == "temperature_C":

@@ -20,6 +20,8 @@ const SEL = {
   switched: ".schematic [data-on]",
   feeds: ".schematic [data-feed]",
   sweepParam: "#sweep-param",
+  handFormula: "[data-role='hand-formula']",
+  pageState: "[data-link]",
   share: "#share-url",
   copy: "#copy-link",
   exportLink: "#export-link",
@@ -37,10 +39,10 @@ const SEL = {
     wave: "#plot-wave",
     envelope: "#plot-envelope",
     spectrum: "#plot-spectrum",
-    fHist: "#plot-f-hist",
-    gainHist: "#plot-gain-hist",
-    sens: "#plot-sens",
-    temp: "#plot-temp",
+    f_hist: "#plot-f-hist",
+    gain_hist: "#plot-gain-hist",
+    sensitivity: "#plot-sens",
+    temperature: "#plot-temp",
   },
   run: {
     panel: "[data-role='run']",
@@ -78,7 +80,11 @@ const API = {
   synth: "/api/sheet/synthesize",
   bench: "/api/sheet/reconcile",
 };
-const DEBOUNCE_MS = 60;
+// Typing recomputes on a pause (never on a half-typed value such as "2" of "262"),
+// at once on Enter or on leaving the field; a slider step or a choice at once,
+// a drag coalesced to one request per SLIDER_MS (older requests are aborted).
+const TYPING_PAUSE_MS = 450;
+const SLIDER_MS = 30;
 const PRESET_FIELDS = ["beta", "IS", "VA", "fT", "C_mu"];
 
 const $ = (sel, root = document) => root.querySelector(sel);
@@ -86,9 +92,9 @@ const $$ = (sel, root = document) => Array.from(root.querySelectorAll(sel));
 const form = $(SEL.form);
 const config = JSON.parse($(SEL.config).textContent);
 
-const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, steady: null, timer: 0, inputAt: 0, view: null };
+const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, steady: null, timer: 0, inputAt: 0, view: null, whatIfChosen: false, sent: null };
 // The time-domain run: the job being polled, and the query of the design it ran on.
-const run = { id: null, timer: 0, query: null, seq: 0 };
+const run = { id: null, timer: 0, query: null, seq: 0, done: null };
 
 // ---- the form and the link -------------------------------------------------
 
@@ -104,12 +110,44 @@ function query(texts) {
   return q.toString();
 }
 
-function updateLinks(texts) {
+// The page's state beside the design (the what-if choice once the user made it,
+// the panels' inputs as typed): carried by the link and the summary's link.
+function pageState() {
+  const q = new URLSearchParams();
+  for (const el of $$(SEL.pageState)) {
+    const name = el.dataset.link;
+    if (name === "what_if" ? !state.whatIfChosen : el.value === initialValue(el)) continue;
+    q.append(name, el.value);
+  }
+  return q.toString();
+}
+
+function initialValue(el) {
+  if (el.tagName !== "SELECT") return el.defaultValue;
+  const option = Array.from(el.options).find((o) => o.defaultSelected) || el.options[0];
+  return option ? option.value : "";
+}
+
+function applyPageState() {
+  const given = new URLSearchParams(location.search);
+  for (const el of $$(SEL.pageState)) {
+    const text = given.get(el.dataset.link);
+    if (text === null) continue;
+    if (el.tagName === "SELECT" && !Array.from(el.options).some((o) => o.value === text)) continue;
+    el.value = text;
+    if (el.dataset.link === "what_if") state.whatIfChosen = true;
+  }
+}
+
+function updateLinks(texts = formTexts()) {
   const q = query(texts);
-  history.replaceState(null, "", q ? `/?${q}` : "/");
-  $(SEL.share).value = `${location.origin}/?${q}`;
+  const withState = [q, pageState()].filter((part) => part).join("&");
+  history.replaceState(null, "", withState ? `/?${withState}` : "/");
+  $(SEL.share).value = `${location.origin}/?${withState}`;
   $(SEL.exportLink).href = `/api/export?${q}`;
-  $(SEL.summaryLink).href = `/summary?${q}`;
+  // a finished run goes to the summary by its id; the server shows it only if it ran this design
+  const ran = run.done ? `&run=${encodeURIComponent(run.done)}` : "";
+  $(SEL.summaryLink).href = `/summary?${withState}${ran}`;
   csvLinks(q);
 }
 
@@ -144,29 +182,42 @@ async function post(url, body, signal) {
   return data;
 }
 
-function schedule() {
+function schedule(wait = SLIDER_MS) {
   state.inputAt = performance.now();
   const texts = formTexts();
   updateLinks(texts);
   clearTimeout(state.timer);
-  state.timer = setTimeout(recompute, DEBOUNCE_MS);
+  state.timer = setTimeout(recompute, wait);
+}
+
+function commit() {
+  clearTimeout(state.timer);
+  // Enter fires both submit and change: the same texts are not sent twice
+  if (state.sent === query(formTexts()) && state.main && !state.main.signal.aborted) return;
+  state.inputAt = performance.now();
+  updateLinks();
+  recompute();
 }
 
 async function recompute() {
+  clearTimeout(state.timer);
   const seq = ++state.mainSeq;
   const inputAt = state.inputAt;
   state.main?.abort();
   state.steady?.abort();
   state.main = new AbortController();
   const texts = formTexts();
+  state.sent = query(texts);
   $(SEL.outcome).dataset.state = "busy";
   try {
     const view = await post(API.sheet, { fields: texts, sweep_param: $(SEL.sweepParam).value || null }, state.main.signal);
     if (seq !== state.mainSeq) return; // a newer answer is on its way
     render(view);
-    document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq, inputAt, at: performance.now() } }));
     if (view.ok) requestSweep(texts, view, inputAt);
     if (view.ok && view.result.steady_state === null) requestSteady(texts, seq, inputAt);
+    await plotsDrawn();
+    if (seq !== state.mainSeq) return;
+    document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq, inputAt, at: performance.now(), query: view.query } }));
   } catch (err) {
     if (err.name !== "AbortError" && seq === state.mainSeq) status(`Not computed: ${err.message}`);
   }
@@ -199,7 +250,9 @@ async function requestSweep(texts, view, inputAt) {
   try {
     const data = await post(API.sweep, { fields: texts, param, threshold_hint: hint }, state.sweep.signal);
     if (seq !== state.sweepSeq || !data.ok) return;
-    plotSweep(data.sweep);
+    plotFigure("sweep", data.figure);
+    await plotsDrawn();
+    if (seq !== state.sweepSeq) return;
     document.dispatchEvent(new CustomEvent(EVENTS.swept, { detail: { seq, inputAt, at: performance.now() } }));
   } catch (err) {
     if (err.name !== "AbortError") status(`What-if plot not computed: ${err.message}`);
@@ -258,10 +311,8 @@ function render(view) {
   const list = $(SEL.warnings);
   list.replaceChildren(...(view.result.warnings.length ? view.result.warnings.map(warningItem) : [noneItem()]));
   renderSweepOptions(view);
-  plotLoop(view.curves.loop, view);
-  plotReactance(view.curves.reactance);
-  plotBudget(view.curves.budget);
-  plotNoise(view.curves.noise);
+  $(SEL.handFormula).textContent = view.budget_caption;
+  for (const [name, figure] of Object.entries(view.figures)) plotFigure(name, figure);
 }
 
 function cell(tag, text, field) {
@@ -383,243 +434,59 @@ function plotWhenSeen(sel, data, draw) {
 }
 const observed = new Set();
 
+// Plots due for drawing are drawn one per task (each Plotly.react is its own
+// task), so the page answers input between them; plotsDrawn() resolves when
+// none is left.
+const queue = { ids: [], running: false, waiting: [] };
+
 function flushPlot(id) {
-  const job = lazy.pending.get(id);
-  if (!job) return;
-  lazy.pending.delete(id);
-  job.draw();
-  lazy.drawn.set(id, job.key);
-}
-
-const INK = "#1f2a30";
-const ACCENT = "#a2521f";
-const PLOT_CONFIG = { displayModeBar: false, responsive: true };
-
-function layout(extra) {
-  return {
-    margin: { l: 52, r: 52, t: 8, b: 40 },
-    paper_bgcolor: "#fffdf8",
-    plot_bgcolor: "#fffdf8",
-    font: { family: "system-ui, sans-serif", size: 11, color: INK },
-    showlegend: true,
-    legend: { orientation: "h", x: 0, y: 1.02, yanchor: "bottom", font: { size: 10 } },
-    ...extra,
-  };
-}
-
-const vline = (x, dash, color = INK) => ({ type: "line", xref: "x", yref: "paper", x0: x, x1: x, y0: 0, y1: 1, line: { color, width: 1, dash } });
-const hline = (y, dash, yref = "y") => ({ type: "line", xref: "paper", yref, x0: 0, x1: 1, y0: y, y1: y, line: { color: "#5d6a70", width: 1, dash } });
-
-function plotLoop(c, view) {
-  const label = view.shown["loop.f_osc"].text;
-  plotWhenSeen(SEL.plots.loop, [c, label], (el) => drawLoop(el, c, label));
-}
-
-function drawLoop(el, c, label) {
-  const shapes = [hline(1, "dot")];
-  if (c.f_osc) shapes.push(vline(c.f_osc, "dash", ACCENT));
-  Plotly.react(
-    el,
-    [
-      { x: c.f, y: c.magnitude, name: "|T|", line: { color: INK, width: 2 }, hovertemplate: "%{x:.4s}Hz  |T| %{y:.3f}<extra></extra>" },
-      { x: c.f, y: c.phase_deg, name: "phase (°)", yaxis: "y2", line: { color: ACCENT, width: 1.5, dash: "dot" }, hovertemplate: "%{x:.4s}Hz  %{y:.1f}°<extra></extra>" },
-    ],
-    layout({
-      xaxis: { type: "log", title: { text: "frequency (Hz)" }, exponentformat: "SI" },
-      yaxis: { type: "log", title: { text: "|T|" }, exponentformat: "SI" },
-      yaxis2: { overlaying: "y", side: "right", title: { text: "phase (°)" }, zeroline: false },
-      shapes,
-      annotations: c.f_osc ? [{ x: Math.log10(c.f_osc), y: 1, yref: "paper", text: `f_osc ${label}`, showarrow: false, xanchor: "left", yanchor: "top", font: { color: ACCENT, size: 10 } }] : [],
-    }),
-    PLOT_CONFIG,
-  );
-}
-
-function plotSweep(s) {
-  plotWhenSeen(SEL.plots.sweep, s, (el) => drawSweep(el, s));
-}
-
-function drawSweep(el, s) {
-  const shapes = [hline(1, "dot"), vline(s.current, "dot")];
-  const annotations = [{ x: Math.log10(s.current), y: 0, yref: "paper", text: "now", showarrow: false, xanchor: "left", yanchor: "bottom", font: { size: 10 } }];
-  if (s.threshold) {
-    shapes.push(vline(s.threshold, "dash", "#a3322a"));
-    annotations.push({ x: Math.log10(s.threshold), y: 1, yref: "paper", text: "loop gain 1", showarrow: false, xanchor: "left", yanchor: "top", font: { color: "#a3322a", size: 10 } });
+  if (!lazy.pending.has(id) || queue.ids.includes(id)) return;
+  queue.ids.push(id);
+  if (!queue.running) {
+    queue.running = true;
+    setTimeout(drawNext, 0);
   }
-  Plotly.react(
-    el,
-    [
-      { x: s.values, y: s.gain, name: "loop gain", line: { color: INK, width: 2 }, hovertemplate: `${s.param} %{x:.3s}${s.unit}  gain %{y:.3f}<extra></extra>` },
-      { x: s.values, y: s.f_osc, name: "f_osc (Hz)", yaxis: "y2", line: { color: ACCENT, width: 1.5, dash: "dot" }, hovertemplate: `${s.param} %{x:.3s}${s.unit}  %{y:.4s}Hz<extra></extra>` },
-    ],
-    layout({
-      xaxis: { type: "log", title: { text: `${s.param} (${s.unit || "ratio"})` }, exponentformat: "SI" },
-      yaxis: { type: "log", title: { text: "loop gain" }, exponentformat: "SI" },
-      yaxis2: { overlaying: "y", side: "right", title: { text: "f_osc (Hz)" }, exponentformat: "SI" },
-      shapes,
-      annotations,
-    }),
-    PLOT_CONFIG,
-  );
 }
 
-const REACTANCE_COLOURS = { L: ACCENT, C1: "#1d6b57", C2: "#3b6ea5", C3: "#5b3f8c", C_series: INK };
-
-function plotReactance(r) {
-  plotWhenSeen(SEL.plots.reactance, r, (el) => drawReactance(el, r));
+function drawNext() {
+  const id = queue.ids.shift();
+  const job = id && lazy.pending.get(id);
+  if (job) {
+    lazy.pending.delete(id);
+    job.draw();
+    lazy.drawn.set(id, job.key);
+  }
+  if (queue.ids.length) {
+    setTimeout(drawNext, 0);
+    return;
+  }
+  queue.running = false;
+  for (const resolve of queue.waiting.splice(0)) resolve();
 }
 
-function drawReactance(el, r) {
-  Plotly.react(
-    el,
-    r.lines.map((line) => ({
-      x: r.f,
-      y: line.X,
-      name: line.label,
-      line: { color: REACTANCE_COLOURS[line.part], width: line.part === "C_series" ? 2 : 1.5, dash: line.part === "C_series" ? "dash" : "solid" },
-      hovertemplate: `${line.label} %{x:.4s}Hz  %{y:.3s}Ω<extra></extra>`,
-    })),
-    layout({
-      xaxis: { type: "log", title: { text: "frequency (Hz)" }, exponentformat: "SI" },
-      yaxis: { type: "log", title: { text: "reactance (Ω)" }, exponentformat: "SI" },
-      shapes: [vline(r.f_ideal, "dot")],
-    }),
-    PLOT_CONFIG,
-  );
+function plotsDrawn() {
+  return queue.running ? new Promise((resolve) => queue.waiting.push(resolve)) : Promise.resolve();
 }
 
-function plotBudget(b) {
-  const formula = $("[data-role='hand-formula']");
-  formula.textContent = b.caption;
-  plotWhenSeen(SEL.plots.budget, b, (el) => drawBudget(el, b));
-}
+// The figures are built on the server (ringwise.figures): each is a Plotly figure
+// {data, layout}, drawn as it comes.  Every plot offers image download, PNG from
+// Plotly's own button and SVG from the one added here.
+const SVG_BUTTON = {
+  name: "svg",
+  title: "Download plot as SVG",
+  icon: { width: 1000, height: 1000, path: "M500 50 L500 650 M280 440 L500 660 L720 440 M150 800 L850 800 L850 950 L150 950 Z", transform: "matrix(1 0 0 1 0 0)" },
+  click: (gd) => Plotly.downloadImage(gd, { format: "svg", filename: gd.id }),
+};
 
-function drawBudget(el, b) {
-  Plotly.react(
-    el,
-    [
-      {
-        type: "bar",
-        orientation: "h",
-        x: b.cost_dB,
-        y: b.labels,
-        text: b.text,
-        textposition: "auto",
-        cliponaxis: false,
-        marker: { color: b.cost_dB.map((v) => (v >= 0 ? ACCENT : "#1d6b57")) },
-        customdata: b.share,
-        hovertemplate: "%{y}: %{text} (%{customdata:.0%} of the gap)<extra></extra>",
-      },
-    ],
-    layout({
-      showlegend: false,
-      margin: { l: 190, r: 16, t: 8, b: 40 },
-      xaxis: { title: { text: "loop gain it costs (dB)" }, zeroline: true, range: b.x_range },
-      yaxis: { autorange: "reversed", automargin: true },
-    }),
-    PLOT_CONFIG,
-  );
+function plotConfig() {
+  return { ...config.plot, modeBarButtonsToAdd: [SVG_BUTTON] };
 }
 
 const NO_NOISE_METHOD = "Computed phase noise: needs the periodic steady state (none for this design).";
-const REGION_FILL = { cube: "rgba(162, 82, 31, 0.08)", square: "rgba(29, 107, 87, 0.07)", flicker: "rgba(154, 106, 0, 0.08)", floor: "rgba(59, 110, 165, 0.07)" };
 
-function plotNoise(n) {
-  plotWhenSeen(SEL.plots.noise, n, (el) => drawNoise(el, n));
-}
-
-function drawNoise(el, n) {
-  const shapes = n.regions.map((r) => ({
-    type: "rect",
-    layer: "below",
-    xref: "x",
-    yref: "paper",
-    x0: r.x0,
-    x1: r.x1,
-    y0: 0,
-    y1: 1,
-    fillcolor: REGION_FILL[r.kind],
-    line: { width: 0 },
-    label: { text: r.label, textposition: "top center", font: { size: 10, color: "#5d6a70" } },
-  }));
-  for (const x of [n.f_corner, n.leeson_corner]) if (x) shapes.push(vline(x, "dot", "#5d6a70"));
-  const c = n.computed;
-  const hover = "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>";
-  const traces = c
-    ? [
-        { x: c.offset, y: c.dBc_Hz, name: "L(Δf) from the circuit's noise sources", line: { color: INK, width: 2 }, hovertemplate: hover },
-        { x: c.points.offset, y: c.points.dBc_Hz, name: "reported offsets", mode: "markers", marker: { color: ACCENT, size: 7, symbol: "diamond" }, hovertemplate: hover },
-        { x: n.offset, y: n.dBc_Hz, name: `Leeson with F = ${n.F_dB} dB (comparison)`, line: { color: "#5d6a70", width: 1.4, dash: "dash" }, hovertemplate: hover },
-      ]
-    : [
-        { x: n.offset, y: n.dBc_Hz, name: "L(Δf), Leeson", line: { color: INK, width: 2 }, hovertemplate: hover },
-        { x: n.points.offset, y: n.points.dBc_Hz, name: "reported offsets", mode: "markers", marker: { color: ACCENT, size: 7, symbol: "diamond" }, hovertemplate: hover },
-      ];
-  if (c && c.flicker_corner) shapes.push(vline(c.flicker_corner, "dashdot", ACCENT));
-  Plotly.react(
-    el,
-    traces,
-    layout({
-      margin: { l: 58, r: 16, t: 24, b: 40 },
-      xaxis: { type: "log", title: { text: "offset from the carrier (Hz)" }, exponentformat: "SI", range: [1, 7] },
-      yaxis: { title: { text: "L (dBc/Hz)" } },
-      shapes,
-    }),
-    PLOT_CONFIG,
-  );
-}
-
-function plotWave(w, node) {
-  plotWhenSeen(SEL.plots.wave, w, (el) =>
-    Plotly.react(
-      el,
-      [
-        { x: w.t, y: w.v_out, name: `output (${node})`, line: { color: INK, width: 1.6 }, hovertemplate: "%{x:.4s}s  %{y:.3s}V<extra></extra>" },
-        { x: w.t, y: w.v_be, name: "v_be", yaxis: "y2", line: { color: ACCENT, width: 1.3, dash: "dot" }, hovertemplate: "%{x:.4s}s  v_be %{y:.3s}V<extra></extra>" },
-      ],
-      layout({
-        xaxis: { title: { text: "time (s)" }, exponentformat: "SI", ticksuffix: "s" },
-        yaxis: { title: { text: "output node (V)" }, exponentformat: "SI" },
-        yaxis2: { overlaying: "y", side: "right", title: { text: "v_be (V)" }, zeroline: false },
-      }),
-      PLOT_CONFIG,
-    ),
-  );
-}
-
-function plotEnvelope(e) {
-  plotWhenSeen(SEL.plots.envelope, e, (el) =>
-    Plotly.react(
-      el,
-      [{ x: e.t, y: e.v, name: "half peak-to-peak per period", line: { color: INK, width: 1.8 }, hovertemplate: "%{x:.4s}s  %{y:.3s}V<extra></extra>" }],
-      layout({
-        showlegend: false,
-        margin: { l: 52, r: 16, t: 8, b: 40 },
-        xaxis: { title: { text: "time from the kick (s)" }, exponentformat: "SI", ticksuffix: "s" },
-        yaxis: { title: { text: "amplitude (V)" }, exponentformat: "SI", rangemode: "tozero" },
-      }),
-      PLOT_CONFIG,
-    ),
-  );
-}
-
-function plotSpectrum(c) {
-  const data = { spectrum: c.spectrum, bars: c.bars };
-  plotWhenSeen(SEL.plots.spectrum, data, (el) =>
-    Plotly.react(
-      el,
-      [
-        { type: "bar", x: c.bars.f, y: c.bars.height, base: c.bars.base, customdata: c.bars.dBc, name: "harmonics", marker: { color: ACCENT }, width: c.bars.width, hovertemplate: "%{x:.4s}Hz  %{customdata:.1f} dBc<extra></extra>" },
-        { x: c.spectrum.f, y: c.spectrum.dBc, name: "spectrum", line: { color: "#5d6a70", width: 1 }, hovertemplate: "%{x:.4s}Hz  %{y:.1f} dBc<extra></extra>" },
-      ],
-      layout({
-        margin: { l: 52, r: 16, t: 8, b: 40 },
-        xaxis: { title: { text: "frequency (Hz)" }, exponentformat: "SI" },
-        yaxis: { title: { text: "level (dBc)" }, range: [c.bars.base, 5] },
-      }),
-      PLOT_CONFIG,
-    ),
-  );
+function plotFigure(name, figure) {
+  if (!figure) return;
+  plotWhenSeen(SEL.plots[name], figure, (el) => Plotly.react(el, figure.data, figure.layout, plotConfig()));
 }
 
 // ---- the time-domain run -----------------------------------------------------
@@ -693,6 +560,8 @@ async function poll(seq) {
     a.href = `${API.jobs}/${encodeURIComponent(done)}/csv/${a.dataset.runCsv}`;
   }
   if (job.state === "done") {
+    run.done = job.id; // the summary's link names it while it matches the sheet
+    updateLinks();
     renderRun(job.view);
     runState("done", "Finished");
   } else if (job.state === "failed") {
@@ -738,9 +607,7 @@ function renderRun(v) {
   warnings.replaceChildren(...(v.warnings.length ? v.warnings.map(warningItem) : [noneItem()]));
   $(SEL.run.node).textContent = v.output_node;
   markRunStale(state.view);
-  plotWave(v.curves.waveform, v.output_node);
-  plotEnvelope(v.curves.envelope);
-  plotSpectrum(v.curves);
+  for (const [name, figure] of Object.entries(v.figures)) plotFigure(name, figure);
 }
 
 function markRunStale(view) {
@@ -873,73 +740,14 @@ async function runSpread() {
   samplesCsv.href = `/api/csv/spread?${a.query}&samples=${a.shown["spread.samples"].value}&seed=${a.shown["spread.seed"].value}`;
   samplesCsv.hidden = false;
   toolState("spread", "done", `Done: ${a.shown["spread.samples"].text} samples`);
-  plotHist(SEL.plots.fHist, a.curves.f_hist, "f_osc (Hz)", a.curves.f_hist.window || [], "Hz");
-  plotHist(SEL.plots.gainHist, a.curves.gain_hist, "loop gain", [1, a.curves.gain_hist.margin], "");
-  plotSens(a.curves.sensitivity);
-  plotTemp(a.curves.temperature);
-}
-
-function plotHist(sel, h, title, lines, unit) {
-  plotWhenSeen(sel, [h, lines], (el) =>
-    Plotly.react(
-      el,
-      [{ type: "bar", x: h.x, y: h.count, width: h.width, marker: { color: INK }, hovertemplate: `%{x:.4s}${unit}  %{y} samples<extra></extra>` }],
-      layout({
-        showlegend: false,
-        margin: { l: 52, r: 16, t: 8, b: 40 },
-        bargap: 0,
-        xaxis: { title: { text: title }, exponentformat: "SI" },
-        yaxis: { title: { text: "samples" } },
-        shapes: lines.map((x) => vline(x, "dash", ACCENT)),
-      }),
-      PLOT_CONFIG,
-    ),
-  );
-}
-
-function plotSens(s) {
-  plotWhenSeen(SEL.plots.sens, s, (el) =>
-    Plotly.react(
-      el,
-      [
-        { type: "bar", orientation: "h", y: s.parts, x: s.f_spread, name: "f_osc spread (%)", marker: { color: ACCENT }, hovertemplate: "%{y}: %{x:.3f} % of f<extra></extra>" },
-        { type: "bar", orientation: "h", y: s.parts, x: s.gain_spread, name: "loop-gain spread (%)", marker: { color: INK }, hovertemplate: "%{y}: %{x:.3f} % of gain<extra></extra>" },
-      ],
-      layout({
-        barmode: "group",
-        margin: { l: 70, r: 16, t: 24, b: 40 },
-        xaxis: { title: { text: "|S|·tolerance (%)" } },
-        yaxis: { type: "category", dtick: 1, autorange: "reversed", automargin: true },
-      }),
-      PLOT_CONFIG,
-    ),
-  );
-}
-
-function plotTemp(t) {
-  plotWhenSeen(SEL.plots.temp, t, (el) =>
-    Plotly.react(
-      el,
-      [
-        { x: t.T_C, y: t.p95, name: "95 %", line: { color: "#5d6a70", width: 1, dash: "dot" }, hovertemplate: "%{x} °C  %{y:.5s}Hz<extra></extra>" },
-        { x: t.T_C, y: t.p5, name: "5 %", fill: "tonexty", fillcolor: "rgba(162, 82, 31, 0.12)", line: { color: "#5d6a70", width: 1, dash: "dot" }, hovertemplate: "%{x} °C  %{y:.5s}Hz<extra></extra>" },
-        { x: t.T_C, y: t.p50, name: "median", line: { color: INK, width: 2 }, hovertemplate: "%{x} °C  %{y:.5s}Hz<extra></extra>" },
-      ],
-      layout({
-        margin: { l: 58, r: 16, t: 24, b: 40 },
-        xaxis: { title: { text: "temperature (°C)" } },
-        yaxis: { title: { text: "f_osc (Hz)" }, exponentformat: "SI" },
-      }),
-      PLOT_CONFIG,
-    ),
-  );
+  for (const [name, figure] of Object.entries(a.figures)) plotFigure(name, figure);
 }
 
 // Loading texts from a panel: the texts as they were are kept for that panel's undo.
 function loadTexts(fields) {
   const before = formTexts();
   for (const [name, text] of Object.entries(fields)) setField(name, text);
-  schedule();
+  commit();
   return before;
 }
 
@@ -1071,23 +879,38 @@ async function copyLink() {
 
 function onInput(event) {
   const el = event.target;
-  if (el.dataset.ladder) setField(el.dataset.ladder, config.ladders[el.dataset.ladder][Number(el.value)]);
+  if (el.dataset.ladder) {
+    setField(el.dataset.ladder, config.ladders[el.dataset.ladder][Number(el.value)]);
+    schedule(SLIDER_MS);
+    return;
+  }
+  if (el.tagName === "SELECT") return; // its change event commits
+  schedule(TYPING_PAUSE_MS);
+}
+
+function onChange(event) {
+  const el = event.target;
+  if (el.dataset.ladder) return; // the drag's input events have scheduled it
   if (el.name === "preset" && config.presets[el.value]) {
     for (const name of PRESET_FIELDS) setField(name, config.presets[el.value][name]);
   }
-  schedule();
+  commit();
 }
 
 function start() {
   document.documentElement.classList.add("js");
   form.addEventListener("input", onInput);
-  form.addEventListener("change", (e) => e.target.tagName === "SELECT" && onInput(e));
+  form.addEventListener("change", onChange);
   form.addEventListener("submit", (e) => {
     e.preventDefault();
-    recompute();
+    commit();
   });
-  $(SEL.sweepParam).addEventListener("change", () => csvLinks(query(formTexts())));
-  $(SEL.sweepParam).addEventListener("change", () => state.view?.ok && requestSweep(formTexts(), { ...state.view, sweep_param: $(SEL.sweepParam).value }, performance.now()));
+  $(SEL.sweepParam).addEventListener("change", () => {
+    state.whatIfChosen = true;
+    csvLinks(query(formTexts()));
+    if (state.view?.ok) requestSweep(formTexts(), { ...state.view, sweep_param: $(SEL.sweepParam).value }, performance.now());
+  });
+  for (const el of $$(SEL.pageState)) el.addEventListener(el.tagName === "SELECT" ? "change" : "input", () => updateLinks());
   $(SEL.copy).addEventListener("click", copyLink);
   $(SEL.run.start).addEventListener("click", startRun);
   $(SEL.run.stop).addEventListener("click", () => stopRun());
@@ -1112,13 +935,12 @@ function start() {
     const file = e.dataTransfer.files[0];
     if (file) await importText(await file.text());
   });
-  // the server writes the link relative (it never builds URLs from the Host header)
-  $(SEL.share).value = new URL($(SEL.share).value, location.origin).href;
+  applyPageState();
+  updateLinks();
   const initial = JSON.parse($(SEL.initial).textContent);
   render(initial);
-  if (initial.ok) plotSweep(initial.curves.sweep);
   document.documentElement.dataset.ready = "1";
-  document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq: 0, inputAt: 0, at: performance.now() } }));
+  plotsDrawn().then(() => document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq: 0, inputAt: 0, at: performance.now(), query: initial.query } })));
 }
 
 start();

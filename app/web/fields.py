@@ -215,6 +215,32 @@ BY_NAME: Final = {f.name: f for f in FIELDS}
 BY_PATH: Final = {f.path: f for f in FIELDS}
 #: Query parameter that opens a sample design (fields given beside it override it).
 SAMPLE_PARAM: Final = "design"
+#: Link parameters that carry the page's state beside the design: the what-if
+#: choice and the on-demand panels' inputs, as typed (each is the name in
+#: ``data-link`` of its input on the sheet), and, in the summary's link only,
+#: ``run``: the id of a finished time-domain run of this design.
+PAGE_STATE: Final = (
+    "what_if",
+    "run_cycles",
+    "spread_samples",
+    "spread_seed",
+    "spread_margin",
+    "spread_low",
+    "spread_high",
+    "snap_series",
+    "synth_topology",
+    "synth_f",
+    "synth_Vcc",
+    "synth_IC",
+    "synth_gain",
+    "synth_L",
+    "synth_ratio",
+    "bench_f",
+    "bench_param",
+    "bench_value",
+    "bench_amp",
+    "run",
+)
 
 TOPOLOGY_LABELS: Final = {
     Topology.CE.value: "common-emitter (emitter at signal ground)",
@@ -575,7 +601,7 @@ def from_query(
                     "duplicate_parameter",
                 )
             )
-        if key not in BY_NAME and key != SAMPLE_PARAM:
+        if key not in BY_NAME and key != SAMPLE_PARAM and key not in PAGE_STATE:
             problems.append(
                 _p(
                     key,
@@ -599,6 +625,15 @@ def from_query(
         texts = dict(samples[default])
     texts.update(given)
     return texts, problems
+
+
+def page_state(items: Iterable[tuple[str, str]]) -> dict[str, str]:
+    """The page-state parameters of a link (:data:`PAGE_STATE`), first value of each."""
+    out: dict[str, str] = {}
+    for key, value in items:
+        if key in PAGE_STATE and key not in out:
+            out[key] = value
+    return out
 
 
 #: A whole-design message that begins with a field path ("bias.RC is required ...").

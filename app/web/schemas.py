@@ -157,7 +157,11 @@ class SheetView(BaseModel):
     shown: dict[str, ShownFigureOut] | None
     noise_offsets: list[dict[str, Any]]
     part_rows: list[dict[str, Any]]
-    curves: dict[str, Any] | None = Field(description="Plot data of the sheet's plots")
+    figures: dict[str, dict[str, Any]] | None = Field(
+        description="The sheet's plots as Plotly figures ({data, layout}) by name "
+        "(ringwise.figures): loop, reactance, budget, noise; sweep on a page"
+    )
+    budget_caption: str = Field(description="The hand formula with its numbers, and the gap")
     unused: list[str]
     sweep_options: list[Any]
     sweep_param: str | None

@@ -13,6 +13,7 @@ The browser formats and computes nothing.
 from __future__ import annotations
 
 import json
+import math
 from collections.abc import Mapping
 from itertools import pairwise
 from typing import Any, Final
@@ -21,6 +22,7 @@ from pydantic import ValidationError
 
 from ringwise.design import Design
 from ringwise.errors import describe_validation_error, domain_message
+from ringwise.figures.panels import histogram_spec, sensitivity_spec, temperature_spec
 from ringwise.units import UnitError, format_si, parse_quantity, parse_whole
 from ringwise.web.errors import ApiError
 from ringwise.web.fields import BY_NAME, FIELDS, choices, display, document
@@ -39,8 +41,11 @@ from ringwise.web.view import _figure, query_string
 #: Groups of the form that describe the spread, not the circuit: a design that
 #: comes back from the core (synthesis, as-built) leaves their texts as typed.
 KEPT_GROUPS: Final = ("tolerances",)
-#: Significant digits tried, fewest first, for the text of a value the core chose.
-MAX_DIGITS: Final = 17
+#: Most significant digits of a value the tool writes into an input (a fitted or
+#: computed value is rounded to them; a standard value needs three at most).
+MAX_DIGITS: Final = 4
+#: A text reads back "as the value" within this relative difference (float dust).
+READ_BACK_RTOL: Final = 1e-9
 #: Smallest magnitude a panel's quantity may have: below every real reading or
 #: part (I_S is some 1e-15 A) and far above the subnormal floats that make the
 #: core's divisions overflow.
@@ -123,7 +128,7 @@ def _core(call: Any, *args: Any) -> Any:
 
 
 def _percent(value: float | None) -> str:
-    return "—" if value is None else f"{100 * value:.1f} %"
+    return "—" if value is None else f"{100 * value:.3g} %"
 
 
 def _signed(value: float | None) -> str:
@@ -135,15 +140,15 @@ def _hundred(value: float | None) -> float | None:
 
 
 def value_text(value: float) -> str:
-    """Compact SI text for a value the core chose (``2.2n``, ``180k``) that reads back exactly."""
-    for digits in range(3, MAX_DIGITS + 1):
+    """Compact SI text, at most MAX_DIGITS significant digits, for a value the core
+    chose: the fewest digits that read back as the value (``2.2n`` for
+    2.2000000000000003e-9, ``430p``), else the value rounded to MAX_DIGITS
+    (``211.2p`` for a fitted 211.18181518150605e-12)."""
+    for digits in range(1, MAX_DIGITS + 1):
         text = format_si(value, "", digits=digits).replace(" ", "")
-        try:
-            if parse_quantity(text) == value:
-                return text
-        except UnitError:
-            break
-    return repr(value)
+        if math.isclose(parse_quantity(text), value, rel_tol=READ_BACK_RTOL):
+            return text
+    return text
 
 
 def _at(doc: Mapping[str, Any], path: str) -> Any:
@@ -193,6 +198,15 @@ def _centres(h: Mapping[str, list]) -> dict[str, list[float]]:
         "width": [b - a for a, b in pairwise(edges)],
         "count": h["counts"],
     }
+
+
+def _tolerance_text(design: Design, row: Mapping[str, Any]) -> str:
+    """A part's tolerance as the design states it: β and I_S as the ratio of their
+    range ("3:1 range"; they are drawn log-uniform over it), the others as ± %."""
+    ratios = {"beta": design.tolerances.beta_ratio, "IS": design.tolerances.IS_ratio}
+    if row["part"] in ratios:
+        return f"{ratios[row['part']]:.4g}:1 range"
+    return f"± {_percent(row['tolerance'])}"
 
 
 def spread_view(
@@ -245,7 +259,7 @@ def spread_view(
         unit = BY_NAME[row["part"]].unit if row["part"] in BY_NAME else ""
         put(f"{base}.part", row["part"], row["part"])
         put(f"{base}.value", row["value"], display(row["value"], unit))
-        put(f"{base}.tolerance", row["tolerance"], f"± {_percent(row['tolerance'])}")
+        put(f"{base}.tolerance", row["tolerance"], _tolerance_text(design, row))
         put(f"{base}.S_f", row["S_f"], _signed(row["S_f"]))
         put(f"{base}.S_gain", row["S_gain"], _signed(row["S_gain"]))
         put(f"{base}.f_spread", row["f_spread"], _percent(row["f_spread"]))
@@ -260,20 +274,29 @@ def spread_view(
         put(f"{base}.f_osc", row["f_osc"], display(row["f_osc"], "Hz"))
         worst_rows.append(base)
     sens = sp["sensitivities"][:SENSITIVITY_PLOT]
-    curves = {
-        "f_hist": {**_centres(sp["f_histogram"]), "window": window},
-        "gain_hist": {**_centres(sp["gain_histogram"]), "margin": sp["margin"]},
-        "sensitivity": {
-            "parts": [r["part"] for r in sens],
-            "f_spread": [_hundred(r["f_spread"]) for r in sens],
-            "gain_spread": [_hundred(r["gain_spread"]) for r in sens],
-        },
-        "temperature": {
-            "T_C": [p["T_C"] for p in sp["f_vs_temperature"]],
-            "p5": [p["p5"] for p in sp["f_vs_temperature"]],
-            "p50": [p["p50"] for p in sp["f_vs_temperature"]],
-            "p95": [p["p95"] for p in sp["f_vs_temperature"]],
-        },
+    f_hist = _centres(sp["f_histogram"])
+    gain_hist = _centres(sp["gain_histogram"])
+    window_lines = [("window low", window[0]), ("window high", window[1])] if window else []
+    figures = {
+        "f_hist": histogram_spec(f_hist, "f_osc", "Hz", window_lines),
+        "gain_hist": histogram_spec(
+            gain_hist, "loop gain", "", [("loop gain 1", 1.0), ("margin", sp["margin"])]
+        ),
+        "sensitivity": sensitivity_spec(
+            {
+                "parts": [r["part"] for r in sens],
+                "f_spread": [_hundred(r["f_spread"]) for r in sens],
+                "gain_spread": [_hundred(r["gain_spread"]) for r in sens],
+            }
+        ),
+        "temperature": temperature_spec(
+            {
+                "T_C": [p["T_C"] for p in sp["f_vs_temperature"]],
+                "p5": [p["p5"] for p in sp["f_vs_temperature"]],
+                "p50": [p["p50"] for p in sp["f_vs_temperature"]],
+                "p95": [p["p95"] for p in sp["f_vs_temperature"]],
+            }
+        ),
     }
     return {
         "result": answer,
@@ -281,7 +304,7 @@ def spread_view(
         "temperatures": list(sp["yield_by_temperature"]),
         "sensitivity_rows": sens_rows,
         "worst_rows": worst_rows,
-        "curves": curves,
+        "figures": figures,
         "query": query_string(texts),
     }
 
@@ -449,7 +472,7 @@ def tool_context() -> dict[str, Any]:
     from ringwise.analysis.spread import DEFAULT_SAMPLES
     from ringwise.analysis.startup import MARGINAL_BELOW
     from ringwise.analysis.synthesis import DEFAULT_GAIN
-    from ringwise.design import PARAMETERS
+    from ringwise.design import PART_PARAMETERS
     from ringwise.preferred import SERIES
 
     return {
@@ -459,7 +482,7 @@ def tool_context() -> dict[str, Any]:
         "percentiles": ["p1", "p5", "p50", "p95", "p99"],
         "series": list(SERIES),
         "topologies": choices(BY_NAME["topology"]),
-        "params": list(PARAMETERS),
+        "params": list(PART_PARAMETERS),
     }
 
 
@@ -482,4 +505,28 @@ def summary_spread(texts: Mapping[str, str]) -> dict[str, Any] | None:
         "shown": v["shown"],
         "range": f"{display(min(temps), '°C')} to {display(max(temps), '°C')}",
         "top": v["sensitivity_rows"][:SUMMARY_TOP],
+        "assumptions": tolerance_assumptions(_design(texts)),
     }
+
+
+def tolerance_assumptions(design: Design) -> list[str]:
+    """The tolerances and the temperature range a spread assumes, as short texts
+    ("resistors ± 1 %", "β 3:1 range", "−40 °C to 85 °C"), overrides included."""
+    t = design.tolerances
+    out = [
+        f"resistors ± {_percent(t.R)}",
+        f"capacitors ± {_percent(t.C)}",
+        f"coil ± {_percent(t.L)}",
+        f"coil Q ± {_percent(t.Q_L)}",
+        f"β {t.beta_ratio:.4g}:1 range",
+        f"I_S {t.IS_ratio:.4g}:1 range",
+        f"coil tempco {t.L_tempco_ppm:.4g} ppm/°C",
+    ]
+    out += [f"{part} ± {_percent(v)}" for part, v in t.per_part.items()]
+    dielectrics = {
+        part: getattr(t.dielectric.get(part), "value", t.dielectric.get(part))
+        for part in t.dielectric
+    }
+    out += [f"{part} {d}" for part, d in dielectrics.items()]
+    out.append(f"{display(t.T_min, '°C')} to {display(t.T_max, '°C')}")
+    return out

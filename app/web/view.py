@@ -25,6 +25,7 @@ from ringwise.display import (
     NOISE_SHOWN,
     ORDINALS,
     PANELS,
+    PARAM_UNITS,
     RUN_SHOWN,
     SHOWN,
     STABILITY_SHOWN,
@@ -35,7 +36,9 @@ from ringwise.display import (
     unit_of,
 )
 from ringwise.errors import describe_validation_error, domain_message
-from ringwise.web import curves
+from ringwise.figures import curves, design_curves, design_specs
+from ringwise.figures.panels import envelope_spec, spectrum_spec, waveform_spec
+from ringwise.figures.sheet import sweep_spec
 from ringwise.web.fields import (
     BY_PATH,
     FIELDS,
@@ -187,7 +190,17 @@ def run_view(sim: Mapping[str, Any]) -> dict[str, Any]:
         "notes": list(tr["notes"]),
         "warnings": list(sim["warnings"]),
         "output_node": sim["output_node"],
-        "curves": curves.run_curves(sim),
+        "figures": run_figures(sim),
+    }
+
+
+def run_figures(sim: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
+    """The three figures of a time-domain run: waveform, envelope, spectrum."""
+    c = curves.run_curves(dict(sim))
+    return {
+        "wave": waveform_spec(c["waveform"], c["output_node"]),
+        "envelope": envelope_spec(c["envelope"]),
+        "spectrum": spectrum_spec(c["spectrum"], c["bars"]),
     }
 
 
@@ -223,6 +236,7 @@ def build_view(
     link_problems: list[dict] | None = None,
     with_sweep: bool = True,
     with_steady: bool = True,
+    with_curves: bool = False,
 ) -> dict[str, Any]:
     """Everything a page shows for these form texts (JSON-ready).
 
@@ -250,7 +264,8 @@ def build_view(
         "noise_offsets": [],
         "part_rows": [],
         "source_rows": [],
-        "curves": None,
+        "figures": None,
+        "budget_caption": "",
         "unused": [],
         "sweep_options": [],
         "sweep_param": None,
@@ -288,7 +303,12 @@ def build_view(
         sweep_param = None
     param = sweep_param or setter
     hint = result["startup"]["threshold_value"] if param == setter else None
-    what_if = curves.what_if(design, param, hint) if with_sweep else None
+    what_if = (
+        curves.what_if(design, param, hint, PARAM_UNITS.get(param, "")) if with_sweep else None
+    )
+    plot_data = design_curves(design, solved, result, what_if)
+    if with_curves:
+        view["curves"] = plot_data  # the plots' data as such (the CSV downloads)
     view.update(
         ok=True,
         result=result,
@@ -300,15 +320,8 @@ def build_view(
         unused=design.unused_parts() + _idle_parts(design),
         sweep_options=options,
         sweep_param=param,
-        curves={
-            "loop": curves.loop_curve(solved),
-            "reactance": curves.reactance_curves(
-                design, result["tank"]["C_series"], result["tank"]["f_ideal"]
-            ),
-            "sweep": what_if,
-            "budget": curves.budget_bars(result["loop"]),
-            "noise": curves.noise_curve(result["stability"]),
-        },
+        figures=design_specs(plot_data),
+        budget_caption=curves.budget_bars(result["loop"])["caption"],
     )
     return view
 
@@ -351,12 +364,12 @@ def sweep_view(
     try:
         design = Design.model_validate(document(texts))
     except ValidationError:
-        return {"ok": False, "sweep": None}
+        return {"ok": False, "figure": None}
     options = curves.sweepable(design)
     setter = gain_setter(design)
     chosen = param if param in options else setter
     try:
-        data = curves.what_if(design, chosen, threshold_hint)
+        data = curves.what_if(design, chosen, threshold_hint, PARAM_UNITS.get(chosen, ""))
     except (ValueError, ArithmeticError):
-        return {"ok": False, "sweep": None}
-    return {"ok": True, "sweep": data}
+        return {"ok": False, "figure": None}
+    return {"ok": True, "param": chosen, "figure": sweep_spec(data)}

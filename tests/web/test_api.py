@@ -145,7 +145,8 @@ def test_sheet_valid_and_invalid(client, sample):
     good = client.post("/api/sheet", json={"fields": texts}).json()
     assert good["ok"] is True
     assert good["shown"]["loop.f_osc"]["value"] == good["result"]["loop"]["f_osc"]
-    assert good["curves"]["sweep"] is None  # fetched separately by the sheet
+    assert "sweep" not in good["figures"]  # fetched separately by the sheet
+    assert set(good["figures"]) == {"loop", "reactance", "budget", "noise"}
     bad = client.post("/api/sheet", json={"fields": {**texts, "C2": "4n7H"}}).json()
     assert bad["ok"] is False
     assert bad["fields"]["C2"]["text"] == "4n7H"  # kept as typed
@@ -165,9 +166,10 @@ def test_sheet_sweep(client, sample):
     texts = client.post("/api/import", json=sample).json()["fields"]
     body = client.post("/api/sheet/sweep", json={"fields": texts, "param": "RB2"}).json()
     assert body["ok"] is True
-    assert body["sweep"]["param"] == "RB2"
+    assert body["param"] == "RB2"
+    assert body["figure"]["layout"]["xaxis"]["title"]["text"] == "RB2 (Ω)"
     bad = client.post("/api/sheet/sweep", json={"fields": {**texts, "L": ""}}).json()
-    assert bad == {"ok": False, "sweep": None}
+    assert bad == {"ok": False, "figure": None}
 
 
 def test_import_and_export_round_trip(client, sample):

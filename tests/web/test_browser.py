@@ -276,6 +276,10 @@ def test_summary_prints_on_one_page(context, live_server, pdfinfo, tmp_path, art
     errors: list[str] = []
     page.on("console", lambda m: m.type == "error" and errors.append(m.text))
     page.goto(f"{live_server}/summary?{query}")
+    page.wait_for_selector("html[data-ready='1']")
+    # the loop-gain figure is drawn as a static plot (no mode bar, no hover)
+    assert page.locator("[data-figure='loop'] .main-svg").count() > 0
+    assert page.locator("[data-figure='loop'] .modebar").count() == 0
     for paper in ("A4", "Letter"):
         pdf = page.pdf(format=paper, print_background=True)
         assert _pages(pdfinfo, pdf, tmp_path, f"summary-{paper}.pdf") == 1, paper
@@ -283,3 +287,60 @@ def test_summary_prints_on_one_page(context, live_server, pdfinfo, tmp_path, art
         page.screenshot(path=str(artifacts / "summary.png"), full_page=True)
         (artifacts / "summary-A4.pdf").write_bytes(page.pdf(format="A4", print_background=True))
     assert errors == []
+
+
+#: static/sheet.js's TYPING_PAUSE_MS: typing recomputes only after this long a pause.
+TYPING_PAUSE_MS = 450
+_LOG_TYPING = """() => {
+  window.__typed = [];
+  const log = (kind, value) => __typed.push([kind, value, performance.now()]);
+  document.addEventListener("input", (e) => log("input", e.target.value), true);
+  const send = window.fetch;
+  window.fetch = (url, options) => {
+    if (url === "/api/sheet") log("sent", JSON.parse(options.body).fields.RC);
+    return send(url, options);
+  };
+}"""
+
+
+def test_typing_never_computes_a_half_typed_value(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.evaluate(_LOG_TYPING)
+    field = sheet.page.locator("[name='RC']")
+    field.fill("")
+    field.press_sequentially("262", delay=120)  # a person typing, keys 120 ms apart
+    field.press("Enter")
+    settle(sheet, client)
+    log = sheet.page.evaluate("__typed")
+    inputs = [(v, t) for kind, v, t in log if kind == "input"]
+    sent = [v for kind, v, _ in log if kind == "sent"]
+    assert sent and sent[-1] == "262"
+    for value in sent:
+        # a value is computed only once the user paused on it (on a loaded machine the
+        # keys may come slower than typed): never one typing went on from at once
+        times = [t for v, t in inputs if v == value]
+        later = [t for _, t in inputs if times and t > times[-1]]
+        assert not later or later[0] - times[-1] >= TYPING_PAUSE_MS, (value, log)
+    want = expected(client, sheet.inputs())["fields"]["RC"]["display"]
+    assert sheet.page.text_content("[data-shown='RC']") == want  # 262 Ω, from the API
+    assert sheet.errors == []
+
+
+def test_link_carries_the_what_if_choice_and_the_panels_inputs(context, live_server, client):
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.select_option("#sweep-param", "RB2")
+    sheet.page.fill("#spread-samples", "5000")
+    sheet.page.fill("#bench-f", "1.012M")
+    sheet.page.select_option("#snap-series", "E12")
+    link = sheet.page.input_value("#share-url")
+    assert urlparse(link).netloc == urlparse(live_server).netloc  # the page's own origin
+    for part in ("what_if=RB2", "spread_samples=5000", "bench_f=1.012M", "snap_series=E12"):
+        assert part in link, part
+    assert "run_cycles" not in link  # left as it was: not in the link
+    again = Sheet(context, link)
+    assert again.page.input_value("#sweep-param") == "RB2"
+    assert again.page.input_value("#spread-samples") == "5000"
+    assert again.page.input_value("#bench-f") == "1.012M"
+    assert again.page.input_value("#snap-series") == "E12"
+    assert again.page.locator("[data-role='link-problems']").is_hidden()
+    assert again.errors == []

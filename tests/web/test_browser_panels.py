@@ -9,6 +9,7 @@ from __future__ import annotations
 import pytest
 
 from ringwise.analysis.transient import MIN_CYCLES
+from ringwise.figures.curves import budget_bars
 from ringwise.web.routers.simulate import SHEET_POINTS
 from tests.web.test_browser import Sheet, expected, expected_steady, settle, wait_for
 
@@ -202,7 +203,7 @@ def test_bad_cycles_say_why_and_keep_the_text(context, live_server):
 
 def test_budget_tells_the_hand_formula_and_prints_each_cost(context, live_server, client):
     sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")
-    want = expected(client, sheet.inputs())["curves"]["budget"]
+    want = budget_bars(expected(client, sheet.inputs())["result"]["loop"])
     assert want["formula"] == "g_m·RC·C1·C2/(C1+C2)²"
     formula = "[data-role='hand-formula']"
     assert sheet.page.text_content(formula) == want["caption"]
@@ -217,7 +218,7 @@ def test_budget_tells_the_hand_formula_and_prints_each_cost(context, live_server
     # live: a lossier coil changes the caption with the answer
     sheet.page.fill("[name='Q_L']", "20")
     settle(sheet, client)
-    again = expected(client, sheet.inputs())["curves"]["budget"]
+    again = budget_bars(expected(client, sheet.inputs())["result"]["loop"])
     sheet.page.wait_for_function(
         "([sel, t]) => document.querySelector(sel).textContent === t",
         arg=[formula, again["caption"]],

@@ -10,10 +10,12 @@ from ringwise.design import PARAMETERS, Design
 from ringwise.web.fields import (
     BY_NAME,
     FIELDS,
+    PAGE_STATE,
     DocumentError,
     check_field,
     document,
     from_query,
+    page_state,
     texts_from_document,
     to_query,
 )
@@ -59,6 +61,17 @@ def test_link_reports_unknown_repeated_and_unknown_sample():
         ("colour", "unknown_parameter"),
         ("design", "unknown_sample"),
     ]
+
+
+def test_link_carries_the_page_state_beside_the_design():
+    items = [("design", "clapp-clock-1M"), ("what_if", "RB2"), ("spread_samples", "5000"),
+             ("bench_f", "1.012M"), ("run_cycles", "600")]  # fmt: skip
+    texts, problems = from_query(items, SAMPLES, DEFAULT_SAMPLE)
+    assert problems == []  # page state is not an unknown parameter
+    assert texts == SAMPLES["clapp-clock-1M"]
+    assert page_state(items) == {"what_if": "RB2", "spread_samples": "5000",
+                                 "bench_f": "1.012M", "run_cycles": "600"}  # fmt: skip
+    assert set(page_state(items)) <= set(PAGE_STATE)
 
 
 def test_link_with_fields_is_the_whole_design():

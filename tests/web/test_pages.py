@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import json
 import re
+import time
 from html import unescape
 
 import pytest
@@ -63,7 +65,8 @@ def test_json_twins(client, page):
     view = client.get(f"{page}?design=common-base-carrier-10M").json()
     assert view["ok"] is True
     assert view["result"]["topology"] == "common-base"
-    assert view["curves"]["sweep"]["param"] == "RC"
+    assert view["sweep_param"] == "RC"
+    assert view["figures"]["sweep"]["layout"]["xaxis"]["title"]["text"] == "RC (Ω)"
 
 
 def test_summary(client):
@@ -71,10 +74,40 @@ def test_summary(client):
     assert r.status_code == 200
     html = r.text
     assert "Emitter-follower test source, 4 MHz" in html
-    assert "<script" not in html  # a plain page that prints without running code
-    assert 'class="mag"' in html  # the loop-gain plot, drawn on the server
+    # the loop-gain figure is the sheet's own, handed over as data and drawn static
+    block = html.split('<script type="application/json" id="ringwise-figures">')[1]
+    figures = json.loads(block.split("</script>")[0])
+    sheet = client.get("/sheet.json?design=follower-test-source-4M").json()
+    assert figures["loop"] == sheet["figures"]["loop"]
+    assert 'data-figure="loop"' in html
     for word in ("Parts", "Warnings", "Assumptions", "Cautions", "radio regulations"):
         assert word in html
+
+
+def test_summary_lists_the_spread_assumptions_and_a_finished_run(client):
+    query = "design=clapp-clock-1M"
+    html = client.get(f"/summary?{query}").text
+    assert "Assumed: resistors ± 1 %" in html and "β 3:1 range" in html
+    assert "Time-domain run" not in html
+    design = client.get(f"/sheet.json?{query}").json()["design"]
+    job = client.post("/api/simulate/jobs", json={"design": design, "cycles": 40}).json()
+    for _ in range(600):
+        state = client.get(f"/api/simulate/jobs/{job['id']}").json()
+        if state["state"] != "running":
+            break
+        time.sleep(0.05)
+    assert state["state"] == "done"
+    html = client.get(f"/summary?{query}&run={job['id']}").text
+    assert "Time-domain run (40 cycles" in html
+    assert f'data-value="{state["result"]["transient"]["f_meas"]!r}"' in html
+    # a run of another design is not shown beside this one
+    other = client.get(f"/summary?design=clapp-clock-1M&C2=5n6&run={job['id']}").text
+    assert "Time-domain run" not in other
+
+
+def test_summary_opens_on_the_what_if_choice_of_the_link(client):
+    view = client.get("/sheet.json?design=clapp-clock-1M&what_if=RB2").json()
+    assert view["sweep_param"] == "RB2" and view["link_problems"] == []
 
 
 def test_summary_of_an_invalid_design_still_renders(client):

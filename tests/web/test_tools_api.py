@@ -3,6 +3,8 @@ the answers are the JSON API's, with display texts, and bad input names its fiel
 
 from __future__ import annotations
 
+import re
+
 import pytest
 
 from ringwise.design import Design
@@ -34,10 +36,22 @@ def test_spread_is_the_api_answer_with_texts(client):
     assert shown["spread.yield_start"]["text"].endswith(" %")
     assert shown["spread.f_osc.p50"]["text"].endswith("Hz")
     assert set(got["temperatures"]) == set(api["spread"]["yield_by_temperature"])
-    h = got["curves"]["f_hist"]
-    assert len(h["x"]) == len(h["count"]) == len(api["spread"]["f_histogram"]["counts"])
-    assert h["window"] == [950e3, 1.05e6]
-    assert got["curves"]["sensitivity"]["parts"][0] == api["spread"]["sensitivities"][0]["part"]
+    h = got["figures"]["f_hist"]
+    bars = h["data"][0]
+    assert len(bars["x"]) == len(bars["y"]) == len(api["spread"]["f_histogram"]["counts"])
+    assert [s["x0"] for s in h["layout"]["shapes"]] == [950e3, 1.05e6]  # the window's ends
+    sens = got["figures"]["sensitivity"]["data"][0]
+    assert sens["y"][0] == api["spread"]["sensitivities"][0]["part"]
+    # β and I_S are drawn over a ratio range and shown as one, never as "± x %"
+    design = Design.model_validate(document(TEXTS))
+    for i, row in enumerate(api["spread"]["sensitivities"][: len(got["sensitivity_rows"])]):
+        text = shown[f"spread.sensitivities.{i}.tolerance"]["text"]
+        if row["part"] == "beta":
+            assert text == f"{design.tolerances.beta_ratio:g}:1 range"
+        elif row["part"] == "IS":
+            assert text == f"{design.tolerances.IS_ratio:g}:1 range"
+        else:
+            assert text.startswith("± ") and text.endswith(" %")
 
 
 @pytest.mark.parametrize(
@@ -150,13 +164,29 @@ def test_synthesize_keeps_the_sheets_load_coil_and_transistor(client):
     assert "below 50 nH" in refused.json()["problems"][0]["message"]
 
 
+def _flat(doc, prefix=""):
+    """The numbers of a design document by dotted path."""
+    out = {}
+    for key, value in doc.items():
+        if isinstance(value, dict):
+            out.update(_flat(value, f"{prefix}{key}."))
+        elif isinstance(value, float | int) and not isinstance(value, bool):
+            out[prefix + key] = value
+    return out
+
+
 def test_reconcile_gives_explanation_and_as_built_texts(client):
     r = client.post("/api/sheet/reconcile", json={"fields": TEXTS, "f_measured": "1.03M"})
     assert r.status_code == 200
     got = r.json()
     assert got["shown"]["explanation"]["text"] == got["result"]["explanation"]
-    built = Design.model_validate(document(got["fields"]))
-    assert built == Design.model_validate(got["result"]["as_built"])
+    built = Design.model_validate(document(got["fields"])).model_dump(mode="json")
+    fitted = Design.model_validate(got["result"]["as_built"]).model_dump(mode="json")
+    # the fitted values are written rounded to 4 significant digits, never as float dust
+    assert _flat(built) == pytest.approx(_flat(fitted), rel=5e-4)
+    for name, text in got["fields"].items():
+        if text and text[0].isdigit():
+            assert len(re.sub(r"[^0-9]", "", text).strip("0")) <= 4, (name, text)
     for body, field in (
         ({"f_measured": ""}, "f_measured"),
         ({"f_measured": "1M", "threshold_param": "RC"}, "threshold_value"),
@@ -168,11 +198,27 @@ def test_reconcile_gives_explanation_and_as_built_texts(client):
         assert bad.json()["problems"][0]["field"] == field
 
 
-@pytest.mark.parametrize("value", [2.2e-9, 180e3, 1e-14, 6.734e-15, 0.1, 123456.789, 25.0])
-def test_value_text_reads_back_exactly(value):
+@pytest.mark.parametrize(
+    ("value", "text"),
+    [
+        (2.2e-9, "2.2n"),
+        (2.2000000000000003e-9, "2.2n"),  # float dust of a computation
+        (429.99999999999996e-12, "430p"),
+        (180e3, "180k"),
+        (6.734e-15, "6.734f"),
+        (0.1, "100m"),
+        (25.0, "25"),
+        # a fitted value: rounded to 4 significant digits (common practice, no source)
+        (211.18181518150605e-12, "211.2p"),
+        (6.309615073440433, "6.31"),
+        (123456.789, "123.5k"),
+    ],
+)
+def test_value_text_is_clean_engineering_notation(value, text):
     from ringwise.units import parse_quantity
 
-    assert parse_quantity(value_text(value)) == value
+    assert value_text(value) == text
+    assert parse_quantity(text) == pytest.approx(value, rel=5e-4)
 
 
 def test_texts_for_design_keeps_unchanged_texts_and_tolerances():

@@ -46,8 +46,8 @@ def get_sheet_csv(
 ) -> Response:
     """One of the sheet's plots as CSV, for the design in the query (a share link)."""
     texts, _link_problems = texts_for(request)
-    view = build_view(texts, sweep_param, None, with_sweep=plot == "sweep")
-    if not view["ok"] or not view["curves"] or not view["curves"].get(plot):
+    view = build_view(texts, sweep_param, None, with_sweep=plot == "sweep", with_curves=True)
+    if not view["ok"] or not view.get("curves") or not view["curves"].get(plot):
         problems = view.get("problems") or [
             {"field": "design", "message": "has no such curve", "type": "value_error"}
         ]

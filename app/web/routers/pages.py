@@ -8,18 +8,21 @@ from typing import Any
 from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 
+from ringwise.design import Design
 from ringwise.web.dependencies import texts_for
-from ringwise.web.plotsvg import loop_plot
+from ringwise.web.errors import ApiError
+from ringwise.web.fields import page_state
 from ringwise.web.templating import page_context, templates
 from ringwise.web.tools import summary_spread
-from ringwise.web.view import build_view
+from ringwise.web.view import build_view, run_view
 
 router = APIRouter(tags=["pages"])
 
 
 def _view(request: Request) -> dict[str, Any]:
     texts, link_problems = texts_for(request)
-    return build_view(texts, None, link_problems)
+    state = page_state(request.query_params.multi_items())
+    return build_view(texts, state.get("what_if") or None, link_problems)
 
 
 @router.get("/", response_class=HTMLResponse)
@@ -41,10 +44,28 @@ def summary(request: Request) -> HTMLResponse:
     view = _view(request)
     context = page_context(request, view)
     context["today"] = date.today().isoformat()
-    context["plot"] = loop_plot(view["curves"]["loop"]) if view["ok"] else None
     texts = {name: f["text"] for name, f in view["fields"].items()}
     context["spread"] = summary_spread(texts) if view["ok"] else None
+    context["run"] = _finished_run(request, view)
     return templates.TemplateResponse(request, "summary.html", context)
+
+
+def _finished_run(request: Request, view: dict[str, Any]) -> dict[str, Any] | None:
+    """What the sheet showed of the time-domain run named by ``run`` in the query, if
+    that run is still kept, finished, and ran this very design."""
+    run_id = page_state(request.query_params.multi_items()).get("run")
+    store = getattr(request.app.state, "simulation_jobs", None)
+    if not (run_id and store and view["ok"]):
+        return None
+    try:
+        job = store.get(run_id)
+    except ApiError:
+        return None  # forgotten: the summary goes without it
+    if job.state != "done" or job.result is None:
+        return None
+    if job.request.design != Design.model_validate(view["design"]):
+        return None
+    return {**run_view(job.result), "cycles": job.request.cycles}
 
 
 @router.get("/summary.json")

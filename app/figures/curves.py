@@ -1,4 +1,4 @@
-"""Plot data for the sheet, computed on the server so the browser only draws.
+"""Plot data: the curves the figures draw, computed from the core's results.
 
 Nothing here writes a circuit equation: the loop curve evaluates the core's
 return ratio :func:`ringwise.analysis.loop.return_ratio` over the core's solved
@@ -17,8 +17,7 @@ import numpy as np
 from ringwise.analysis.loop import return_ratio
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.threshold import LINEAR_PARAMS, sweep
-from ringwise.design import PARAMETERS, Design, get_param
-from ringwise.web.fields import BY_NAME, display
+from ringwise.design import PART_PARAMETERS, Design, get_param
 
 TWO_PI: Final = 2.0 * math.pi
 #: The loop curve spans f_ideal / LOOP_SPAN ... f_ideal · LOOP_SPAN.
@@ -78,17 +77,18 @@ def reactance_curves(design: Design, C_series: float, f_ideal: float) -> dict[st
         C = getattr(t, part)
         if C is not None:
             lines.append({"part": part, "label": part, "X": _finite(1.0 / (w * C))})
-    series = "C1, C2" + (", C3" if t.C3 is not None else "") + " in series"
+    series = "Cs (C1, C2" + (", C3" if t.C3 is not None else "") + " in series)"
     lines.append({"part": "C_series", "label": series, "X": _finite(1.0 / (w * C_series))})
     return {"f": _finite(f), "lines": lines, "f_ideal": f_ideal}
 
 
 def sweepable(design: Design) -> list[str]:
-    """Parameters of this design a what-if sweep can run over (present, log-scaled)."""
+    """Parts of this design a what-if sweep can run over (present, used by the form,
+    log-scaled); the noise model's figures and the capacitors' rating are not parts."""
     unused = design.unused_parts()
     return [
         p
-        for p in PARAMETERS
+        for p in PART_PARAMETERS
         if p not in LINEAR_PARAMS and p not in unused and (get_param(design, p) or 0) > 0
     ]
 
@@ -106,15 +106,20 @@ def sweep_range(current: float, threshold: float | None) -> tuple[float, float]:
     return lo, hi
 
 
-def what_if(design: Design, param: str, threshold_hint: float | None) -> dict[str, Any]:
-    """Loop gain and f_osc along ``param`` (the core's sweep), with its threshold."""
+def what_if(
+    design: Design, param: str, threshold_hint: float | None, unit: str = ""
+) -> dict[str, Any]:
+    """Loop gain and f_osc along ``param`` (the core's sweep), with its threshold.
+
+    ``unit`` is the parameter's display unit ("F", "Ω"; blank for a ratio).
+    """
     current = get_param(design, param)
     assert current is not None  # callers pass a sweepable parameter
     lo, hi = sweep_range(current, threshold_hint)
     s = sweep(design, param, lo, hi, SWEEP_POINTS, "log")
     return {
         "param": param,
-        "unit": BY_NAME[param].unit,
+        "unit": unit,
         "values": s.values,
         "gain": s.gain,
         "f_osc": s.f_osc,
@@ -137,7 +142,7 @@ def budget_bars(loop: dict[str, Any]) -> dict[str, Any]:
     losses = story["losses"] if story else []
     caption = (
         f"Hand formula {story['formula']} = {story['numbers']}; full circuit "
-        f"{display(story['full'], '')}, {story['gap_dB']:.2f} dB below"
+        f"{story['full']:.4g}, {story['gap_dB']:.2f} dB below"
         if story
         else ""
     )

@@ -1,4 +1,4 @@
-"""Plot data (app/web/curves.py) and the summary's plot geometry (app/web/plotsvg.py)."""
+"""Plot data (app/figures/curves.py)."""
 
 from __future__ import annotations
 
@@ -10,9 +10,7 @@ from ringwise.analysis.analyze import analyze
 from ringwise.analysis.operating import solve
 from ringwise.analysis.story import REST_SHOWN_DB
 from ringwise.design import Design
-from ringwise.web import curves
-from ringwise.web.ladders import E24, ladder, nearest_step
-from ringwise.web.plotsvg import loop_plot
+from ringwise.figures import curves
 from ringwise.web.samples import samples
 
 
@@ -75,23 +73,3 @@ def test_what_if_and_budget(design):
     # the gain-setting resistor is in the hand formula, not among the losses
     assert result["startup"]["threshold_param"] not in bars["elements"]
     assert bars["formula"] and f"= {bars['hand']:.4g}" in bars["numbers"]
-
-
-def test_e24_ladder():
-    # E24 series, IEC 60063
-    assert E24[:6] == (1.0, 1.1, 1.2, 1.3, 1.5, 1.6)
-    assert len(E24) == 24
-    values, texts = ladder("RC")
-    assert texts[values.index(330.0)] == "330"
-    assert ladder("C2")[1][nearest_step("C2", 4.7e-9)] == "4.7n"
-    assert nearest_step("C3", 1e-9) is None
-
-
-def test_summary_plot_geometry(design):
-    p = loop_plot(curves.loop_curve(solve(design)))
-    b = p["box"]
-    for pair in p["magnitude"].split():
-        x, y = map(float, pair.split(","))
-        assert b["x0"] - 0.1 <= x <= b["x1"] + 0.1
-        assert b["y0"] - 0.1 <= y <= b["y1"] + 0.1
-    assert p["f_osc_x"] is not None

@@ -1,0 +1,61 @@
+"""The figures (app/figures/): valid Plotly figures, built once, served as built."""
+
+from __future__ import annotations
+
+import plotly.graph_objects as go
+import pytest
+
+import ringwise.figures as rf
+from ringwise.design import Design
+from ringwise.web.samples import samples
+
+
+@pytest.fixture(scope="module", params=sorted(samples()))
+def figures(request) -> dict[str, go.Figure]:
+    return rf.design_figures(Design.model_validate(samples()[request.param].document))
+
+
+def test_every_design_figure_is_a_valid_plotly_figure(figures):
+    # go.Figure validates every attribute (plotly.py), so a misspelt key fails here
+    assert set(figures) == {*rf.DESIGN_FIGURES, "sweep"}
+    for fig in figures.values():
+        assert isinstance(fig, go.Figure)
+        go.Figure(fig.to_plotly_json())
+
+
+def test_every_axis_carries_its_own_round_ticks(figures):
+    for name, fig in figures.items():
+        layout = fig.layout.to_plotly_json()
+        for key in ("xaxis", "yaxis", "yaxis2"):
+            axis = layout.get(key)
+            if axis is None or (name == "budget" and key == "yaxis"):
+                continue  # one-axis plots; the budget's categories
+            assert axis["tickmode"] == "array"
+            assert 2 <= len(axis["tickvals"]) == len(axis["ticktext"]) <= 8, (name, key)
+            assert len(set(axis["ticktext"])) == len(axis["ticktext"]), (name, key)
+
+
+def test_dashed_lines_are_named_in_the_legend(figures):
+    for name, fig in figures.items():
+        for shape in fig.layout.shapes:
+            if shape.type == "line":
+                assert shape.showlegend and shape.name, name
+
+
+def test_the_sheet_gets_the_same_figures():
+    from fastapi.testclient import TestClient
+
+    from ringwise.web.server import create_app
+
+    doc = samples()["clapp-clock-1M"].document
+    with TestClient(create_app()) as client:
+        view = client.get("/sheet.json?design=clapp-clock-1M").json()
+    built = rf.design_figures(Design.model_validate(doc))
+    for name in rf.DESIGN_FIGURES:
+        assert go.Figure(view["figures"][name]) == built[name]
+    assert view["figures"]["sweep"]["layout"]["xaxis"]["title"]["text"] == "RC (Ω)"
+
+
+def test_config_keeps_image_download():
+    assert rf.CONFIG["toImageButtonOptions"]["format"] == "png"
+    assert "toImage" not in rf.CONFIG["modeBarButtonsToRemove"]
