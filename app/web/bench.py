@@ -110,7 +110,7 @@ def _api_median() -> float:
 
     docs = [json.loads(p.read_text(encoding="utf-8")) for p in sorted(SAMPLES_DIR.glob("*.json"))]
     times = []
-    with TestClient(create_app()) as client:
+    with TestClient(create_app(), base_url="http://127.0.0.1") as client:
         for doc in docs:
             client.post("/api/analyze", json=doc)  # warm up
             for _ in range(ANALYZE_REPEATS):

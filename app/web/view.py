@@ -321,7 +321,7 @@ def build_view(
         sweep_options=options,
         sweep_param=param,
         figures=design_specs(plot_data),
-        budget_caption=curves.budget_bars(result["loop"])["caption"],
+        budget_caption=plot_data["budget"]["caption"],
     )
     return view
 

@@ -48,7 +48,7 @@ def test_the_sheet_gets_the_same_figures():
     from ringwise.web.server import create_app
 
     doc = samples()["clapp-clock-1M"].document
-    with TestClient(create_app()) as client:
+    with TestClient(create_app(), base_url="http://127.0.0.1") as client:
         view = client.get("/sheet.json?design=clapp-clock-1M").json()
     built = rf.design_figures(Design.model_validate(doc))
     for name in rf.DESIGN_FIGURES:

@@ -19,29 +19,29 @@ def _columns(text: str) -> tuple[list[str], list[list[float | None]]]:
 
 
 @pytest.mark.parametrize(
-    ("plot", "curve", "keys"),
+    ("plot", "series"),
     [
-        ("loop", "loop", ("f", "magnitude", "phase_deg")),
-        ("sweep", "sweep", ("values", "f_osc", "gain")),
-        ("noise", "noise", ("offset", "dBc_Hz")),
+        # (trace, axis) of the sheet's figure that each CSV column must equal
+        ("loop", ((0, "x"), (0, "y"), (1, "y"))),
+        ("sweep", ((0, "x"), (1, "y"), (0, "y"))),
+        ("noise", ((0, "x"), (0, "y"))),
     ],
 )
-def test_sheet_plots_parse_back_to_the_sheets_data(client, plot, curve, keys) -> None:
-    view = client.get("/sheet.json?design=clapp-clock-1M").json()
+def test_sheet_plots_parse_back_to_the_sheets_data(client, plot, series) -> None:
+    figure = client.get("/sheet.json?design=clapp-clock-1M").json()["figures"][plot]
     answer = client.get(f"/api/csv/sheet/{plot}?design=clapp-clock-1M")
     assert answer.status_code == 200
     assert answer.headers["content-type"].startswith("text/csv")
     assert "attachment" in answer.headers["content-disposition"]
     _, cols = _columns(answer.text)
-    assert cols == [view["curves"][curve][k] for k in keys]
+    assert cols == [figure["data"][i][axis] for i, axis in series]
 
 
 def test_reactances_have_a_column_per_part(client) -> None:
-    view = client.get("/sheet.json?design=clapp-clock-1M").json()
+    figure = client.get("/sheet.json?design=clapp-clock-1M").json()["figures"]["reactance"]
     header, cols = _columns(client.get("/api/csv/sheet/reactance?design=clapp-clock-1M").text)
-    lines = view["curves"]["reactance"]["lines"]
-    assert header == ["f [Hz]", *(f"X_{line['part']} [Ω]" for line in lines)]
-    assert cols[1:] == [line["X"] for line in lines]
+    assert header[0] == "f [Hz]" and len(header) == len(figure["data"]) + 1
+    assert cols[1:] == [trace["y"] for trace in figure["data"]]
 
 
 def test_a_bad_design_is_a_422_naming_the_field(client) -> None:
