@@ -25,11 +25,15 @@ def test_loop_curve_passes_through_the_result(design):
     result = analyze(design)
     k = c["f"].index(c["f_osc"])
     assert c["magnitude"][k] == pytest.approx(result.loop.gain, rel=1e-9)
-    assert c["phase_deg"][k] == pytest.approx(0.0, abs=1e-6)
+    # 1e-3°: a crystal's phase slope (Q of tens of thousands) turns the crossing
+    # search's frequency tolerance into some 1e-4° (common practice, no source)
+    assert c["phase_deg"][k] == pytest.approx(0.0, abs=1e-3)
     assert c["f"] == sorted(c["f"])
 
 
 def test_reactances_cross_at_the_ideal_resonance(design):
+    if design.crystal is not None:
+        pytest.skip("a crystal design's tank is the crystal's: the L-C chart does not apply")
     result = analyze(design)
     r = curves.reactance_curves(design, result.tank.C_series, result.tank.f_ideal)
     lines = {line["part"]: line["X"] for line in r["lines"]}
