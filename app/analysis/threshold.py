@@ -6,17 +6,25 @@ the bench until the oscillator just starts.  The operating point is re-solved
 at each trial value, so a resistor that also moves the bias is treated fully.
 
 The search works on ln(gain) against ln(value), where most parts act nearly
-as a power law: secant steps from the current value, then bracketing with
-Brent's method if the secant cannot settle.
+as a power law, and every step is one batch of the pipeline
+(:func:`ringwise.analysis.pipeline.solve_values`):
+
+1. a grid of :data:`SCAN_PER_DECADE` points per decade over
+   value / :data:`SEARCH_RANGE` … value · :data:`SEARCH_RANGE`, all full
+   solves in one batch, brackets the crossings of ln(gain) = 0;
+2. the chosen bracket is polished by batched interpolation: each round
+   solves the secant (regula falsi) estimate and two points beside it, and
+   keeps the tightest sign change, until |ln gain| ≤ :data:`LOG_GAIN_TOL`
+   (a handful of rounds; the bracket shrinks at least fourfold per round, so
+   a discontinuity is pinned down too).
 
 Which crossing is reported: for parts whose increase raises the loop gain
 (the collector resistor, the coil's Q, the load resistor, β ...) the
-threshold is the *lowest* value at which the loop gain reaches one — the
-value at which the oscillator first starts as the part is turned up, even
-when the current value sits beyond a gain maximum (a collector resistor so
-large that the transistor nears saturation).  For any other part it is the
-crossing reached by following the local trend of the loop gain from the
-current value.
+threshold is the *lowest* value at which the loop gain rises through one —
+the value at which the oscillator first starts as the part is turned up,
+even when the current value sits beyond a gain maximum (a collector resistor
+so large that the transistor nears saturation).  For any other part it is
+the crossing nearest the current value.
 """
 
 from __future__ import annotations
@@ -27,30 +35,41 @@ from typing import Final, Literal
 
 import numpy as np
 from pydantic import ValidationError
-from scipy.optimize import brentq
 
-from ringwise.analysis.dc import DCConvergenceError
-from ringwise.analysis.loop import find_oscillation
-from ringwise.analysis.operating import Solved, solve
-from ringwise.analysis.pipeline import solve_designs
-from ringwise.circuit.mna import restamp, small_signal
-from ringwise.circuit.netlist import Resistor
-from ringwise.design import Design, get_param, with_param
+from ringwise.analysis.operating import Solved
+from ringwise.analysis.pipeline import (
+    BatchSolution,
+    part_values,
+    patterns_of_structure,
+    solve_designs,
+    solve_values,
+)
+from ringwise.circuit.mna import Patterns
+from ringwise.design import Design, get_param, param_limits, with_param
 from ringwise.errors import DesignError
 
 #: The threshold is sought within value / RANGE … value · RANGE.
 SEARCH_RANGE: Final = 1e4
 #: |ln gain| below this counts as exactly at threshold (gain within 1e-6).
 LOG_GAIN_TOL: Final = 1e-6
-SECANT_STEPS: Final = 12
-#: Largest secant step, in ln(value) (one decade).
-MAX_STEP: Final = math.log(10.0)
-#: Times a secant step is halved back when its trial has no loop.
-RETREATS: Final = 6
-#: First trial step of the secant, as a factor on the value.
-FIRST_STEP: Final = 1.2
-#: Points per decade of the fallback bracketing scan.
+#: Points per decade of the bracketing grid (one pipeline batch).
 SCAN_PER_DECADE: Final = 6
+#: The first grid covers value / NEAR_RANGE … value · NEAR_RANGE (warm
+#: starts hold there, so it is cheap); the rest of the range only if needed.
+NEAR_RANGE: Final = 10.0
+#: Most polishing rounds (each one batch of three solves); a smooth crossing
+#: needs one or two, a discontinuity some twenty.
+POLISH_ROUNDS: Final = 40
+#: Largest reach of the first trend chord, in ln(value) (one decade).
+MAX_STEP: Final = math.log(10.0)
+#: The first batch: points this far apart (in ln(value)), GUESS_HALF either
+#: side of the power-law guess; they span about a factor 2 each way.
+GUESS_SPACING: Final = math.log(10.0) / 12.0
+GUESS_HALF: Final = 3
+#: A round's side points sit this many expected errors from the estimate.
+ERROR_MARGIN: Final = 4.0
+#: A bracket narrower than this (in ln(value)) is as fine as doubles resolve.
+BRACKET_XTOL: Final = 1e-12
 #: A bracketed root whose |ln gain| exceeds this is a discontinuity, not a crossing.
 ROOT_CHECK: Final = 1e-4
 #: Stand-in for ln(gain) when a trial value gives no loop crossing at all.
@@ -64,71 +83,10 @@ LINEAR_PARAMS: Final = frozenset({"temperature_C"})
 #: Parameters whose increase raises the loop gain on the branch that matters:
 #: their threshold is the lowest value at which the loop gain reaches one.
 RISING_PARAMS: Final = frozenset({"RC", "Q_L", "Q_ch", "R_load", "beta", "VA", "fT"})
-#: Resistors that move the bias only through V_CE (the Early effect): their
-#: threshold is first found with the bias held, then polished.
-GUIDED_PARAMS: Final = frozenset({"RC", "R_load"})
-#: Step used to read the local slope of ln(gain), in ln(value).
-SLOPE_STEP: Final = math.log(1.05)
 
 
 class ParameterError(DesignError):
     """A threshold or sweep request names a parameter it cannot use."""
-
-
-@dataclass
-class _Trials:
-    """Caches trial solves and their warm starts during one search."""
-
-    design: Design
-    param: str
-    last: Solved | None = None
-    seen: dict[float, float] = field(default_factory=dict)
-
-    def log_gain(self, log_value: float) -> float:
-        if log_value in self.seen:
-            return self.seen[log_value]
-        value = math.exp(log_value)
-        try:
-            trial = with_param(self.design, self.param, value)
-        except ValidationError:
-            result = math.nan
-        else:
-            x0 = self.last.op.x if self.last is not None else None
-            f0 = self.last.f_osc if self.last is not None else None
-            try:
-                solved = solve(trial, x0, f0)
-            except DCConvergenceError:
-                result = math.nan
-            else:
-                self.last = solved
-                g = solved.gain
-                result = math.log(g) if g > 0 else NO_LOOP
-        self.seen[log_value] = result
-        return result
-
-
-@dataclass
-class _FixedBiasTrials:
-    """Cheap trials for a resistor: its stamp changed, the operating point held.
-
-    Only a guide for the full search (which re-solves the bias): a resistor
-    that also moves the bias is then corrected in one or two full trials.
-    """
-
-    solved: Solved
-    param: str
-    seen: dict[float, float] = field(default_factory=dict)
-
-    def log_gain(self, log_value: float) -> float:
-        if log_value in self.seen:
-            return self.seen[log_value]
-        s = self.solved
-        system = restamp(s.system, s.netlist, {self.param: {"R": math.exp(log_value)}})
-        loop = find_oscillation(small_signal(system, s.hybrid), s.tank.f_ideal, s.f_osc)
-        g = float(loop.gain)
-        result = math.log(g) if math.isfinite(g) and g > 0 else NO_LOOP
-        self.seen[log_value] = result
-        return result
 
 
 @dataclass(frozen=True)
@@ -153,23 +111,123 @@ def _check_param(design: Design, param: str) -> float:
     return value
 
 
+@dataclass
+class _Trials:
+    """Trial values of one parameter, solved a batch at a time through the pipeline.
+
+    ``x0`` and ``f_guess`` warm-start each batch's DC Newton and loop search;
+    :meth:`warm_from` moves them to a member of the last batch (the polish
+    starts each round from its previous estimate).
+    """
+
+    design: Design
+    param: str
+    x0: np.ndarray | None
+    f_guess: float | None
+    parts: dict = field(init=False)
+    patterns: Patterns = field(init=False)
+    limits: tuple[float, float] = field(init=False)
+    last: BatchSolution | None = field(init=False, default=None)
+
+    def __post_init__(self) -> None:
+        # What every batch shares, worked out once per search.
+        self.parts = part_values(self.design)
+        self.patterns = patterns_of_structure(self.design)
+        self.limits = param_limits(self.param)
+
+    def warm_from(self, i: int) -> None:
+        """Start the next batches from member ``i`` of the last one (if it converged)."""
+        sol = self.last
+        if sol is not None and sol.converged[i]:
+            self.x0 = sol.x[i]
+            f = float(sol.loop.f_osc[i])
+            self.f_guess = f if math.isfinite(f) else self.f_guess
+
+    def log_gain(self, log_values: np.ndarray) -> np.ndarray:
+        """ln|T| at each exp(log_values): NaN where the value is outside the
+        parameter's bounds or the DC solve fails, :data:`NO_LOOP` where the loop
+        has no zero-phase crossing."""
+        values = np.exp(np.asarray(log_values, dtype=float))
+        lo, hi = self.limits
+        allowed = (values >= lo) & (values <= hi)
+        parts = dict(self.parts)
+        parts[self.param] = np.where(allowed, values, parts[self.param])
+        sol = solve_values(self.patterns, parts, values.size, self.x0, self.f_guess)
+        self.last = sol
+        gain = sol.gain
+        with np.errstate(divide="ignore"):
+            g = np.where(gain > 0, np.log(np.where(gain > 0, gain, 1.0)), NO_LOOP)
+        return np.where(allowed & sol.converged, g, np.nan)
+
+
 def find_threshold(design: Design, param: str, start: Solved | None = None) -> Threshold:
-    """Value of ``param`` at which the loop gain is exactly 1, the others fixed."""
+    """Value of ``param`` at which the loop gain is exactly 1, the others fixed.
+
+    ``start`` (the design already solved) warm-starts every trial's DC Newton
+    and loop search.
+    """
     value = _check_param(design, param)
-    trials = _Trials(design, param, last=start)
+    if start is not None and abs(_ln(start.gain)) <= LOG_GAIN_TOL:
+        return Threshold(param, value, value)
+    trials = _Trials(
+        design,
+        param,
+        None if start is None else start.op.x,
+        None if start is None else start.f_osc,
+    )
     x0 = math.log(value)
-    g0 = math.log(start.gain) if start is not None and start.gain > 0 else trials.log_gain(x0)
-    trials.seen[x0] = g0
+    g0 = _ln(start.gain) if start is not None else float(trials.log_gain(np.array([x0]))[0])
     if abs(g0) <= LOG_GAIN_TOL:
         return Threshold(param, value, value)
-    root = _guided_root(trials, start, param, x0, g0)
-    if root is None and param in RISING_PARAMS:
-        root = _rising_root(trials, x0, g0)
-    elif root is None:
-        root = _secant(trials, x0, g0)
-        if root is None:
-            root = _bracket(trials, x0)
-    if root is not None and abs(trials.log_gain(root)) > ROOT_CHECK:
+    rising = param in RISING_PARAMS
+    step = math.log(10.0) / SCAN_PER_DECADE
+    # First a few points around where the root would be if the gain were
+    # proportional to the value (exact for the gain-setting resistor of a
+    # lossless circuit): usually they bracket the crossing, one small batch.
+    guess = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
+    xs = np.sort(np.append(guess + GUESS_SPACING * np.arange(-GUESS_HALF, GUESS_HALF + 1), x0))
+    gs = trials.log_gain(xs)
+    centre = int(np.searchsorted(xs, x0))
+    gs[centre] = g0
+    k = _pick_interval(gs, centre, rising, xs)
+    if k is not None and not _on_trend_side(xs, gs, centre, k, rising):
+        k = None
+    if k is None and not rising:
+        # The whole range on the trend's side, then the other side.
+        down = _goes_down(xs, gs, centre)
+        k, xs, gs = _scan_side(trials, x0, g0, step, down)
+        if k is None:
+            k, xs, gs = _scan_side(trials, x0, g0, step, not down)
+    elif k is None:
+        # The near grid (cheap: warm starts hold), then the rest of the range
+        # when the crossing to report is not inside it.
+        near = math.ceil(math.log(NEAR_RANGE) / step)
+        far = math.ceil(math.log(SEARCH_RANGE) / step)
+        ks = np.arange(-near, near + 1)
+        xs = x0 + step * ks
+        gs = trials.log_gain(xs)
+        gs[near] = g0
+        k = _pick_interval(gs, near, rising, xs)
+        if k is None or not _settled_below(gs, k):
+            ks = np.arange(-far, far + 1)
+            outer = np.abs(ks) > near
+            wide = np.empty(ks.size)
+            wide[~outer] = gs
+            xs = x0 + step * ks
+            wide[outer] = trials.log_gain(xs[outer])
+            gs, k = wide, _pick_interval(wide, far, rising, xs)
+    if k is None:
+        return Threshold(
+            param,
+            None,
+            value,
+            reason=(
+                f"no value of {param} between {value / SEARCH_RANGE:.3g} and "
+                f"{value * SEARCH_RANGE:.3g} brings the loop gain to 1"
+            ),
+        )
+    root, g_root = _polish(trials, xs, gs, k)
+    if abs(g_root) > ROOT_CHECK:
         # The sign change was the loop losing its zero-phase crossing, not gain 1.
         return Threshold(
             param,
@@ -180,166 +238,156 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
                 "before the loop gain reaches 1"
             ),
         )
-    if root is None:
-        return Threshold(
-            param,
-            None,
-            value,
-            reason=(
-                f"no value of {param} between {value / SEARCH_RANGE:.3g} and "
-                f"{value * SEARCH_RANGE:.3g} brings the loop gain to 1"
-            ),
-        )
     return Threshold(param, math.exp(root), value)
 
 
-def _guided_root(
-    trials: _Trials, start: Solved | None, param: str, x0: float, g0: float
-) -> float | None:
-    """For a resistor: locate the crossing with the bias held, then polish it with full solves."""
-    if start is None or start.f_osc is None or param not in GUIDED_PARAMS:
-        return None
-    if param not in start.netlist or not isinstance(start.netlist[param], Resistor):
-        return None
-    fast = _FixedBiasTrials(start, param)
-    fast.seen[x0] = g0
-    guess = _rising_root(fast, x0, g0) if param in RISING_PARAMS else _secant(fast, x0, g0)
-    if guess is None:
-        return None
-    g = trials.log_gain(guess)
-    if not _usable(g):
-        return None
-    if abs(g) <= LOG_GAIN_TOL:
-        return guess
-    found = _secant_slope(trials, guess, g, min_step=0.0)
-    if found is None:
-        return None
-    root, slope = found
-    near = abs(root - guess) < math.log(2.0)
-    if near and (param not in RISING_PARAMS or slope > 0):
-        return root
-    return None
-
-
-def _secant(trials: _Trials, x0: float, g0: float) -> float | None:
-    """Root of ln(gain) by damped secant steps from x0; see :func:`_secant_slope`."""
-    found = _secant_slope(trials, x0, g0)
-    return None if found is None else found[0]
-
-
-def _secant_slope(
-    trials, x0: float, g0: float, min_step: float = math.log(FIRST_STEP)
-) -> tuple[float, float] | None:
-    """Damped secant on ln(gain) against ln(value): at most a decade per step,
-    halved back toward the last good point when a trial has no loop.
-
-    Returns the root and the slope d ln(gain)/d ln(value) of the last secant.
-    """
-    lo, hi = x0 - math.log(SEARCH_RANGE), x0 + math.log(SEARCH_RANGE)
-    # First trial: where the root would be if gain were proportional to the value
-    # (exact for the gain-setting resistor of a lossless circuit).
-    x1 = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
-    if abs(x1 - x0) < min_step:
-        x1 = x0 + min_step
-    g1 = trials.log_gain(x1)
-    for _retreat in range(RETREATS):
-        if _usable(g1):
-            break
-        x1 = 0.5 * (x0 + x1)
-        g1 = trials.log_gain(x1)
-    for _ in range(SECANT_STEPS):
-        if not (_usable(g0) and _usable(g1)) or g1 == g0:
-            return None
-        slope = (g1 - g0) / (x1 - x0)
-        step = max(-MAX_STEP, min(MAX_STEP, -g1 / slope))
-        x2 = x1 + step
-        g2 = trials.log_gain(x2)
-        for _retreat in range(RETREATS):
-            if _usable(g2):
-                break
-            x2 = 0.5 * (x1 + x2)
-            g2 = trials.log_gain(x2)
-        if not lo <= x2 <= hi or not _usable(g2):
-            return None
-        if abs(g2) <= LOG_GAIN_TOL:
-            return x2, (g2 - g1) / (x2 - x1)
-        x0, g0, x1, g1 = x1, g1, x2, g2
-    return None
-
-
-def _rising_root(trials: _Trials, x0: float, g0: float) -> float | None:
-    """Lowest crossing on the branch where ln(gain) rises with ln(value)."""
-    # Usually the secant from the current value lands on it directly: accept the
-    # root when the gain rises through it on the side the current value implies.
-    if _usable(g0):
-        found = _secant_slope(trials, x0, g0)
-        if found is not None:
-            root, slope = found
-            if slope > 0 and ((g0 > 0 and root < x0) or (g0 < 0 and root > x0)):
-                return root
-    floor = x0 - math.log(SEARCH_RANGE)
-    x, g = x0, g0
-    # Walk down by halving the value until the loop gain rises with the value.
-    while True:
-        g_up = trials.log_gain(x + SLOPE_STEP)
-        if _usable(g) and _usable(g_up) and g_up > g:
-            break
-        x -= math.log(2.0)
-        if x < floor:
-            return None
-        g = trials.log_gain(x)
-    root = _secant(trials, x, g)
-    if root is not None:
-        if g > 0 and root <= x + SLOPE_STEP:
-            return root  # it starts here: the crossing below is on this branch
-        if g < 0 and root > x and trials.log_gain(root + SLOPE_STEP) > 0:
-            return root  # it does not start here: the crossing above, still rising
-    # Bracket along the rising branch: downward when it starts here, upward if not.
-    step = math.log(2.0) if g < 0 else -math.log(2.0)
-    prev_x, prev_g = x, g
-    for _ in range(int(math.log(SEARCH_RANGE) / math.log(2.0)) + 1):
-        nx = prev_x + step
-        ng = trials.log_gain(nx)
-        if not math.isfinite(ng):
-            return None
-        if (ng > 0) != (prev_g > 0):
-            a, b = sorted((prev_x, nx))
-            return brentq(_finite(trials), a, b, xtol=1e-12, rtol=1e-12)
-        if step > 0 and ng < prev_g:
-            return None  # passed the gain maximum without reaching one
-        prev_x, prev_g = nx, ng
-    return None
-
-
-def _usable(g: float) -> bool:
-    return math.isfinite(g) and g != NO_LOOP
-
-
-def _bracket(trials: _Trials, x0: float) -> float | None:
-    """Scan outward from x0, both ways, nearest first, for a sign change of ln(gain);
-    refine it with Brent's method."""
-    step = math.log(10.0) / SCAN_PER_DECADE
+def _scan_side(
+    trials: _Trials, x0: float, g0: float, step: float, down: bool
+) -> tuple[int | None, np.ndarray, np.ndarray]:
+    """One side of the search range as one batch: the grid interval nearest
+    the current value where ln(gain) changes sign (``None`` if none), with
+    the grid (current value included) and its ln(gain)."""
     n = math.ceil(math.log(SEARCH_RANGE) / step)
-    g0 = trials.log_gain(x0)
-    prev = {1.0: (x0, g0), -1.0: (x0, g0)}
-    for k in range(1, n + 1):
-        for direction in (-1.0, 1.0):
-            prev_x, prev_g = prev[direction]
-            x = x0 + direction * k * step
-            g = trials.log_gain(x)
-            if math.isfinite(g) and math.isfinite(prev_g) and (g > 0) != (prev_g > 0):
-                a, b = sorted((prev_x, x))
-                return brentq(_finite(trials), a, b, xtol=1e-12, rtol=1e-12)
-            prev[direction] = (x, g)
-    return None
+    ks = np.arange(-n, 1) if down else np.arange(0, n + 1)
+    xs = x0 + step * ks
+    gs = np.empty(xs.size)
+    here = int(np.flatnonzero(ks == 0)[0])
+    others = ks != 0
+    gs[others] = trials.log_gain(xs[others])
+    gs[here] = g0
+    finite = np.isfinite(gs)
+    change = np.flatnonzero(finite[:-1] & finite[1:] & ((gs[:-1] > 0) != (gs[1:] > 0)))
+    if not change.size:
+        return None, xs, gs
+    return int(change[-1] if down else change[0]), xs, gs
 
 
-def _finite(trials: _Trials):
-    def f(x: float) -> float:
-        g = trials.log_gain(x)
-        return g if math.isfinite(g) else NO_LOOP
+def _ln(gain: float) -> float:
+    return math.log(gain) if gain > 0 else NO_LOOP
 
-    return f
+
+def _settled_below(g: np.ndarray, k: int) -> bool:
+    """Below interval k the near grid stays below gain 1 with a loop throughout,
+    (or without a loop), so no lower rising crossing hides inside it."""
+    below = g[: k + 1]
+    return bool(np.all(np.isfinite(below) & (below < 0)))
+
+
+def _pick_interval(g: np.ndarray, centre: int, rising: bool, xs: np.ndarray) -> int | None:
+    """Index k of the interval (xs[k], xs[k+1]) holding the crossing to report.
+
+    Rising parts: the lowest interval where ln(gain) rises through 0.
+    Others: the nearest interval in the direction the trend of the loop gain
+    points to (:func:`_goes_down`), else the nearest the other way.
+    ``centre`` is the index of the current value.
+    """
+    finite = np.isfinite(g)
+    change = finite[:-1] & finite[1:] & ((g[:-1] > 0) != (g[1:] > 0))
+    if rising:
+        change &= g[1:] > 0
+        found = np.flatnonzero(change)
+        return int(found[0]) if found.size else None
+    found = np.flatnonzero(change)
+    if not found.size:
+        return None
+    below, above = found[found < centre], found[found >= centre]
+    first, second = (below[::-1], above) if _goes_down(xs, g, centre) else (above, below[::-1])
+    return int(first[0]) if first.size else int(second[0])
+
+
+def _goes_down(xs: np.ndarray, g: np.ndarray, centre: int) -> bool:
+    """Whether the trend of the loop gain points to lower values: the gain is
+    above 1 and rises with the value, or below 1 and falls.  The trend is the
+    chord from the current value to the point nearest where the root would be
+    if the gain were proportional to the value (at most a decade away)."""
+    g0 = g[centre]
+    target = xs[centre] - max(-MAX_STEP, min(MAX_STEP, g0))
+    others = np.flatnonzero(np.isfinite(g) & (np.arange(g.size) != centre))
+    if not others.size:
+        return bool(g0 > 0)
+    j = others[np.argmin(np.abs(xs[others] - target))]
+    slope = (g[j] - g0) / (xs[j] - xs[centre])
+    return bool((g0 > 0) == (slope > 0))
+
+
+def _on_trend_side(xs: np.ndarray, g: np.ndarray, centre: int, k: int, rising: bool) -> bool:
+    """Whether interval k of the first small batch is the crossing to report:
+    for a rising part, below the current value when the gain is above 1 there
+    and above it otherwise; for any other part, on the trend's side."""
+    down = bool(g[centre] > 0) if rising else _goes_down(xs, g, centre)
+    return k < centre if down else k >= centre
+
+
+def _newton_estimate(
+    xs: list[float], ys: list[float], a: float, b: float
+) -> tuple[float, float] | None:
+    """Root estimate from three points by the parabola through them, with its
+    expected error: Newton's step from the middle point on the parabola's
+    slope, the error its square times |g''/(2g')| (quadratic convergence).
+
+    ``None`` when a point has no loop or the estimate leaves the bracket (a, b).
+    """
+    if any(y == NO_LOOP for y in ys):
+        return None
+    (x0, x1, x2), (y0, y1, y2) = xs, ys
+    d01, d12 = (y1 - y0) / (x1 - x0), (y2 - y1) / (x2 - x1)
+    curv = (d12 - d01) / (x2 - x0)  # g''/2
+    slope = d01 + curv * (x1 - x0)  # g' at x1
+    if slope == 0 or not math.isfinite(slope):
+        return None
+    step = -y1 / slope
+    x = x1 + step
+    if not a < x < b:
+        return None
+    return x, abs(curv / slope) * step * step
+
+
+def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[float, float]:
+    """Narrow the sign change of ln(gain) in grid interval k to a root, a batch per round.
+
+    Returns the root (ln value) and ln(gain) there.  Each round solves an
+    estimate x and x ± h and keeps the tightest sign change among them.  The
+    estimate is Newton's step on the parabola through the last three points
+    (the grid's, then the round's), h a few times its expected error, so a
+    round straddles the root and the next parabola is tight; when that fails
+    (no loop at a point, or a step out of the bracket) the estimate is the
+    bracket's regula falsi or middle, h a quarter of the bracket (it shrinks
+    at least fourfold).
+    """
+    a, ga, b, gb = float(xs[k]), float(gs[k]), float(xs[k + 1]), float(gs[k + 1])
+    best_x, best_g = (a, ga) if abs(ga) < abs(gb) else (b, gb)
+    j = k if k + 2 < xs.size and math.isfinite(gs[k + 2]) else k - 1
+    last = (xs[j : j + 3].tolist(), gs[j : j + 3].tolist()) if j >= 0 else None
+    for _ in range(POLISH_ROUNDS):
+        width = b - a
+        if width <= BRACKET_XTOL:
+            break
+        found = None if last is None else _newton_estimate(*last, a, b)
+        if found is not None:
+            x, err = found
+            h = min(max(ERROR_MARGIN * err, BRACKET_XTOL), 0.25 * width)
+        else:
+            usable = ga != NO_LOOP and gb != NO_LOOP
+            x = a - ga * width / (gb - ga) if usable else 0.5 * (a + b)
+            h = 0.25 * width
+        x = min(max(x, a + h), b - h)
+        trial = np.array([x - h, x, x + h])
+        gt = trials.log_gain(trial)
+        trials.warm_from(1)
+        last = (trial.tolist(), gt.tolist()) if np.all(np.isfinite(gt)) else None
+        for p, g in zip(trial.tolist(), gt.tolist(), strict=True):
+            if not math.isfinite(g):
+                continue
+            if abs(g) < abs(best_g):
+                best_x, best_g = p, g
+            if (g > 0) == (ga > 0):
+                a, ga = p, g
+            else:
+                b, gb = p, g
+                break
+        if abs(best_g) <= LOG_GAIN_TOL:
+            break
+    return best_x, best_g
 
 
 @dataclass(frozen=True)

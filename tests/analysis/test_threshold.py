@@ -3,12 +3,16 @@
 from __future__ import annotations
 
 import itertools
+import math
 
 import pytest
+from scipy.optimize import brentq
 
 from ringwise.analysis.operating import solve
 from ringwise.analysis.threshold import MAX_SWEEP_POINTS, ParameterError, find_threshold, sweep
-from ringwise.design import with_param
+from ringwise.circuit.topologies import gain_setter
+from ringwise.design import Design, with_param
+from ringwise.resources import sample_files
 from tests.conftest import BASE_CE, design_from
 
 
@@ -82,3 +86,34 @@ def test_temperature_sweep_is_linear() -> None:
     result = sweep(design, "temperature_C", -40.0, 85.0, 6)
     assert result.values == pytest.approx([-40, -15, 10, 35, 60, 85])
     assert all(f is not None for f in result.f_osc)
+
+
+#: Each sample design's gain-setter threshold as the sequential search (one
+#: full solve per trial: secant steps, Brent's method) found it before the
+#: search became batched (main at d1ff9db); the batched search must land on
+#: the same crossing.  Values recorded from that implementation.
+SEQUENTIAL_THRESHOLDS = {
+    "clapp-clock-1M": 67.15288065,
+    "common-base-carrier-10M": 402.5001733,
+    "follower-test-source-4M": 14.37943797,
+    "proximity-exciter-150k": 1542.798266,
+}
+
+
+@pytest.mark.parametrize("path", sample_files(), ids=lambda p: p.stem)
+def test_batched_threshold_equals_the_sequential_answer(path) -> None:
+    design = Design.model_validate_json(path.read_text(encoding="utf-8"))
+    param = gain_setter(design)
+    s = solve(design)
+    th = find_threshold(design, param, start=s)
+    assert th.value == pytest.approx(SEQUENTIAL_THRESHOLDS[path.stem], rel=1e-6)
+
+    # The same root by scipy.optimize.brentq on full solves, bracketed ±5 %
+    # around it (reference library; one solve per trial, in sequence).
+    def log_gain(v: float) -> float:
+        return math.log(solve(with_param(design, param, v)).gain)
+
+    ref = brentq(log_gain, 0.95 * th.value, 1.05 * th.value, xtol=1e-12, rtol=1e-10)
+    assert th.value == pytest.approx(ref, rel=1e-6)
+    # Without a start the search gives the same value.
+    assert find_threshold(design, param).value == pytest.approx(th.value, rel=1e-6)
