@@ -185,10 +185,10 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
     # proportional to the value (exact for the gain-setting resistor of a
     # lossless circuit): usually they bracket the crossing, one small batch.
     guess = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
-    xs = np.sort(np.append(guess + GUESS_SPACING * np.arange(-GUESS_HALF, GUESS_HALF + 1), x0))
-    gs = trials.log_gain(xs)
-    centre = int(np.searchsorted(xs, x0))
-    gs[centre] = g0
+    around = guess + GUESS_SPACING * np.arange(-GUESS_HALF, GUESS_HALF + 1)
+    centre = int(np.searchsorted(around, x0))
+    xs = np.insert(around, centre, x0)
+    gs = np.insert(trials.log_gain(around), centre, g0)
     k = _pick_interval(gs, centre, rising, xs)
     if k is not None and not _on_trend_side(xs, gs, centre, k, rising):
         k = None
