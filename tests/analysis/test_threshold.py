@@ -90,11 +90,12 @@ def test_temperature_sweep_is_linear() -> None:
 
 #: Each sample design's gain-setter threshold as the sequential search (one
 #: full solve per trial: secant steps, Brent's method) found it before the
-#: search became batched (main at d1ff9db); the batched search must land on
+#: search became batched (main at 20f7f10); the batched search must land on
 #: the same crossing.  Values recorded from that implementation.
 SEQUENTIAL_THRESHOLDS = {
     "clapp-clock-1M": 67.15288065,
     "common-base-carrier-10M": 402.5001733,
+    "crystal-clock-10M": 474.1419444,
     "follower-test-source-4M": 14.37943797,
     "proximity-exciter-150k": 1542.798266,
 }
