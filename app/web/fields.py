@@ -375,6 +375,8 @@ def check_field(field: FormField, text: str) -> FieldState:
         except ValueError as err:
             return FieldState(text, None, "", str(err))
         return FieldState(text, text or None, text or "none", None)
+    if text.strip() == "" and field.kind == "choice" and field.optional:
+        return FieldState(text, None, f"default {field.default}", None)
     if text.strip() == "" and field.kind == "quantity":
         if field.nullable:
             shown = "none"
