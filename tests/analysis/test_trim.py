@@ -25,6 +25,8 @@ def _is_e24(value: float) -> bool:
 @pytest.mark.parametrize("factor", [1.03, 0.96])
 def test_trim_meets_the_frequency_with_standard_parts(path, factor: float) -> None:
     design = load_sample(path)
+    if design.crystal is not None:
+        pytest.skip("a crystal sets the frequency: a capacitor pulls it by ppm, not by %")
     f = solve(design).f_osc * factor
     t = trim_frequency(design, f)
     assert t.reason is None
