@@ -7,7 +7,7 @@ import socket
 import threading
 from urllib.parse import urlsplit
 
-import httpx
+import httpx2 as httpx
 import pytest
 
 from ringwise.units import MAX_DIGITS
