@@ -10,6 +10,7 @@ refused with a message that names the field, the value and the limit.
 from __future__ import annotations
 
 import math
+import typing
 from enum import Enum
 from functools import cache
 from typing import Any, Final, Literal
@@ -429,6 +430,9 @@ def with_param(design: Design, name: str, value: float) -> Design:
 def param_limits(name: str) -> tuple[float, float]:
     """The lowest and highest value a parameter may take (its field's bounds; ±inf where open)."""
     section = Design.model_fields[_section_of(name)].annotation
+    # an optional section (``Section | None``): its model is the member that has a schema
+    models = [a for a in typing.get_args(section) if hasattr(a, "model_json_schema")]
+    section = models[0] if models else section
     schema = section.model_json_schema()["properties"][name]  # type: ignore[union-attr]
     lo, hi = -math.inf, math.inf
     for option in [schema, *schema.get("anyOf", [])]:

@@ -8,7 +8,7 @@ import json
 import pytest
 from pydantic import ValidationError
 
-from ringwise.design import PARAMETERS, Design, get_param, with_param
+from ringwise.design import PARAMETERS, Design, get_param, param_limits, with_param
 from ringwise.errors import describe_validation_error
 from ringwise.presets import DEVICE_PRESETS
 from tests.conftest import BASE_CE, load_sample, sample_paths
@@ -130,3 +130,10 @@ def test_versioned_loader_reads_version_1_and_names_unknown_versions() -> None:
         load_design(data)
     [problem] = describe_validation_error(info.value)
     assert problem["field"] == "version" and "99" in problem["message"]
+
+
+@pytest.mark.parametrize("name", PARAMETERS)
+def test_every_parameter_has_its_field_bounds(name):
+    # the bounds come from the model's own fields, optional sections included
+    lo, hi = param_limits(name)
+    assert lo < hi
