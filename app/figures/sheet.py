@@ -225,8 +225,9 @@ def budget_spec(b: dict[str, Any]) -> dict[str, Any]:
 
 
 def noise_spec(n: dict[str, Any]) -> dict[str, Any]:
-    """Leeson's L(Δf) against offset (log), its slope regions shaded, the corners and
-    the report points marked."""
+    """The phase noise from the circuit's noise sources against offset (log), Leeson's curve
+    dashed beside it for comparison, its slope regions shaded, the corners and the report
+    points marked (Leeson's curve alone when there is no steady state)."""
     shapes: list[dict[str, Any]] = [
         {
             "type": "rect",
@@ -253,32 +254,55 @@ def noise_spec(n: dict[str, Any]) -> dict[str, Any]:
     if n["leeson_corner"]:
         name = f"Leeson corner {format_si(n['leeson_corner'], 'Hz')}"
         shapes.append(marker_line(name, x=n["leeson_corner"], dash="dash"))
-    levels = axes.data_range(n["dBc_Hz"]) or (-180.0, -60.0)
+    computed = n.get("computed")
+    hover = "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>"
+    leeson = {
+        "type": "scatter",
+        "x": n["offset"],
+        "y": n["dBc_Hz"],
+        "name": "L(Δf), Leeson",
+        "line": {"color": INK, "width": 2},
+        "hovertemplate": hover,
+    }
+    points = {
+        "type": "scatter",
+        "x": n["points"]["offset"],
+        "y": n["points"]["dBc_Hz"],
+        "name": "reported offsets",
+        "mode": "markers",
+        "marker": {"color": ACCENT, "size": 7, "symbol": "diamond"},
+        "hovertemplate": hover,
+    }
+    data: list[dict[str, Any]] = [leeson, points]
+    every_level = list(n["dBc_Hz"])
+    if computed:
+        # the circuit's own figure is the curve; Leeson's formula stays beside it, dashed
+        leeson["name"] = f"Leeson's formula, F = {n['F_dB']:.3g} dB (comparison)"
+        leeson["line"] = {"color": MUTED, "width": 1.5, "dash": "dash"}
+        points["x"] = computed["points"]["offset"]
+        points["y"] = computed["points"]["dBc_Hz"]
+        data = [
+            {
+                "type": "scatter",
+                "x": computed["offset"],
+                "y": computed["dBc_Hz"],
+                "name": "L(Δf) from the circuit's noise sources",
+                "line": {"color": INK, "width": 2},
+                "hovertemplate": hover,
+            },
+            leeson,
+            points,
+        ]
+        every_level += list(computed["dBc_Hz"])
+    levels = axes.data_range(every_level) or (-180.0, -60.0)
+    xaxis = axes.log_axis(*NOISE_OFFSETS_HZ, "Hz", X_LABELS)
+    # the first offset label sits under the lowest level label: keep them apart
+    xaxis.update(ticks="outside", ticklen=6, tickcolor="rgba(0,0,0,0)")
     return fit_margins(
         {
-            "data": [
-                {
-                    "type": "scatter",
-                    "x": n["offset"],
-                    "y": n["dBc_Hz"],
-                    "name": "L(Δf), Leeson",
-                    "line": {"color": INK, "width": 2},
-                    "hovertemplate": "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>",
-                },
-                {
-                    "type": "scatter",
-                    "x": n["points"]["offset"],
-                    "y": n["points"]["dBc_Hz"],
-                    "name": "reported offsets",
-                    "mode": "markers",
-                    "marker": {"color": ACCENT, "size": 7, "symbol": "diamond"},
-                    "hovertemplate": "%{x:.3s}Hz  %{y:.1f} dBc/Hz<extra></extra>",
-                },
-            ],
+            "data": data,
             "layout": layout(
-                xaxis=titled(
-                    axes.log_axis(*NOISE_OFFSETS_HZ, "Hz", X_LABELS), "offset from the carrier"
-                ),
+                xaxis=titled(xaxis, "offset from the carrier"),
                 yaxis=titled(axes.linear_axis(*levels, "", Y_LABELS, pad=LINEAR_PAD), "L (dBc/Hz)"),
                 shapes=shapes,
             ),

@@ -170,7 +170,8 @@ def test_from_targets_fills_the_sheet(context, live_server, client):
     assert view["ok"]
     f = view["result"]["loop"]["f_osc"]
     assert abs(f / 2e6 - 1) < 0.1  # issue 5: within the E-series grid step (E24 ≈ 10 %)
-    assert sheet.attr("[data-role='synth'] [data-field='f_osc']") == repr(f)
+    # the synthesis solves its design in a batch, the sheet alone: equal to rounding
+    assert abs(float(sheet.attr("[data-role='synth'] [data-field='f_osc']")) / f - 1) < 1e-12
     assert sheet.errors == []
 
 
