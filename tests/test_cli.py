@@ -216,9 +216,8 @@ def test_stdin_equals_the_file() -> None:
 def test_a_byte_order_mark_is_accepted_by_both_cli_and_api() -> None:
     from fastapi.testclient import TestClient
 
-    from ringwise.web.server import create_app
-
     from ringwise.analysis import analyze, periodic
+    from ringwise.web.server import create_app
 
     # the CLI starts cold in a fresh process; start this process's answer cold too
     # (a remembered orbit from earlier tests is a different start for the steady state)
