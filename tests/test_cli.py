@@ -288,7 +288,14 @@ def _on_a_terminal(argv: list[str]) -> tuple[subprocess.Popen, int]:
     main_fd, tty_fd = pty.openpty()
     # a new pseudo-terminal is 0 columns wide (tqdm draws nothing in that); make it 100x30
     fcntl.ioctl(tty_fd, termios.TIOCSWINSZ, struct.pack("HHHH", 30, 100, 0, 0))
-    proc = subprocess.Popen([*RINGWISE, *argv], stdout=subprocess.PIPE, stderr=tty_fd)
+    # a shell's background job starts with SIGINT ignored, and Python then never turns
+    # Ctrl-C into KeyboardInterrupt: give the child the default, as a terminal user has
+    proc = subprocess.Popen(
+        [*RINGWISE, *argv],
+        stdout=subprocess.PIPE,
+        stderr=tty_fd,
+        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL),
+    )
     os.close(tty_fd)  # the child holds the terminal now
     return proc, main_fd
 
