@@ -13,7 +13,7 @@ from ringwise.analysis.analyze import analyze
 from ringwise.analysis.threshold import ParameterError, find_threshold, sweep
 from ringwise.circuit.topologies import gain_setter
 from ringwise.design import Design
-from ringwise.result import Result
+from ringwise.result import Result, from_attributes
 from ringwise.web.dependencies import ERRORS, form_texts, texts_for
 from ringwise.web.errors import ApiError, from_validation, invalid
 from ringwise.web.fields import (
@@ -65,15 +65,7 @@ def post_sweep(req: SweepRequest) -> SweepOut:
         s = sweep(req.design, req.param, start, stop, req.points, req.scale)
     except ParameterError as err:
         raise invalid("param", str(err)) from err
-    t = s.threshold
-    return SweepOut(
-        param=s.param,
-        values=s.values,
-        f_osc=s.f_osc,
-        gain=s.gain,
-        valid=s.valid,
-        threshold=ThresholdOut(param=t.param, value=t.value, current=t.current, reason=t.reason),
-    )
+    return from_attributes(SweepOut, s, threshold=from_attributes(ThresholdOut, s.threshold))
 
 
 @router.post("/threshold", response_model=ThresholdOut, responses=ERRORS)

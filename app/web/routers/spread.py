@@ -18,7 +18,7 @@ from ringwise.analysis.synthesis import DEFAULT_GAIN, synthesize
 from ringwise.design import PARAMETERS, Design, Device, Topology
 from ringwise.preferred import SERIES, snap_design
 from ringwise.quantities import SI
-from ringwise.result import SpreadResult
+from ringwise.result import SpreadResult, from_attributes
 from ringwise.web.schemas import RequestModel
 
 router = APIRouter(prefix="/api", tags=["spread"])
@@ -145,15 +145,7 @@ def post_synthesize(req: SynthesizeRequest) -> SynthesisOut:
         device=req.device.model_dump() if req.device else None,
         clapp=req.clapp,
     )
-    return SynthesisOut(
-        design=r.design,
-        f_osc=r.f_osc,
-        gain=r.gain,
-        reasons=r.reasons,
-        f_target=r.f_target,
-        miss=r.miss,
-        stopped=r.stopped,
-    )
+    return from_attributes(SynthesisOut, r)
 
 
 class ThresholdReading(_In):
