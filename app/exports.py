@@ -157,5 +157,17 @@ def reactance_table(reactance: Mapping[str, Any]) -> Table:
 
 
 def noise_table(noise: Mapping[str, Any]) -> Table:
-    """The phase-noise curve the sheet plots (``curves.noise_curve``)."""
-    return ["offset [Hz]", "L(f) [dBc/Hz]"], [list(noise["offset"]), list(noise["dBc_Hz"])]
+    """The phase-noise plot (``curves.noise_curve``): the curve computed from the circuit's
+    noise sources first (empty where there is no steady state), then Leeson's comparison,
+    on the same offsets."""
+    computed = noise.get("computed")
+    if computed is not None and list(computed["offset"]) != list(noise["offset"]):
+        raise ValueError("the computed and Leeson curves have different offsets")
+    return (
+        ["offset [Hz]", "L(f) computed [dBc/Hz]", "L(f) Leeson [dBc/Hz]"],
+        [
+            list(noise["offset"]),
+            list(computed["dBc_Hz"]) if computed else [None] * len(noise["offset"]),
+            list(noise["dBc_Hz"]),
+        ],
+    )

@@ -24,7 +24,8 @@ def _columns(text: str) -> tuple[list[str], list[list[float | None]]]:
         # (trace, axis) of the sheet's figure that each CSV column must equal
         ("loop", ((0, "x"), (0, "y"), (1, "y"))),
         ("sweep", ((0, "x"), (1, "y"), (0, "y"))),
-        ("noise", ((1, "x"), (1, "y"))),  # Leeson's curve, drawn beside the computed one
+        # the computed curve, then Leeson's drawn beside it, on the same offsets
+        ("noise", ((0, "x"), (0, "y"), (1, "y"))),
     ],
 )
 def test_sheet_plots_parse_back_to_the_sheets_data(client, plot, series) -> None:
