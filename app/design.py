@@ -151,7 +151,18 @@ class Load(_Part):
     )
 
 
+def _preset_or_values(schema: dict[str, Any]) -> None:
+    """The device's JSON Schema: either a preset (its values fill the rest) or every value."""
+    values = [k for k in schema.get("required", []) if k != "preset"]
+    schema.pop("required", None)
+    schema["anyOf"] = [{"required": ["preset"]}, {"required": values}]
+
+
 class Device(_Part):
+    model_config = ConfigDict(
+        extra="forbid", validate_assignment=True, json_schema_extra=_preset_or_values
+    )
+
     preset: str | None = Field(
         default=None, description="Transistor class the values were taken from (informative)"
     )

@@ -11,6 +11,7 @@ import jsonschema_rs
 import pytest
 
 from ringwise.cli import main
+from ringwise.design import Design
 from ringwise.schema import design_schema
 from tests.conftest import sample_paths
 
@@ -61,3 +62,13 @@ def test_the_schema_still_refuses_what_the_loader_refuses(validator) -> None:
 def test_ringwise_schema_prints_it(capsys) -> None:
     assert main(["schema"]) == 0
     assert json.loads(capsys.readouterr().out) == design_schema()
+
+
+def test_a_preset_stands_for_the_device_values(validator) -> None:
+    # the loader fills the values from the class; the schema accepts what the loader accepts
+    design = json.loads(sample_paths()[0].read_text())
+    design["device"] = {"preset": design["device"].get("preset") or "general-purpose"}
+    assert validator.is_valid(design), list(validator.iter_errors(design))
+    assert Design.model_validate(design).device.beta > 1
+    design["device"] = {"beta": 100}
+    assert not validator.is_valid(design)
