@@ -33,6 +33,8 @@ MODULATION_FLOOR: Final = 0.02
 #: Alternate periods differing by more than this fraction of the mean: the
 #: envelope is taken per pair of periods for plotting.
 ALTERNATION: Final = 0.02
+#: ... in at least this share of successive pairs of steps (up, down, up …).
+ALTERNATING_SHARE: Final = 0.8
 #: Samples per period for the line spectrum.
 SAMPLES_PER_PERIOD: Final = 64
 
@@ -102,11 +104,36 @@ def modulation(env_t: np.ndarray, env: np.ndarray) -> Modulation:
 
 
 def alternates(env: np.ndarray) -> bool:
-    """Whether alternate periods' amplitudes differ (a period-doubled waveform)."""
+    """Whether alternate periods' amplitudes differ (a period-doubled waveform).
+
+    The per-period amplitude must step up and down in turn (most successive
+    steps of opposite sign) by more than ALTERNATION of the mean: an envelope
+    that rises or collapses smoothly (squegging) steps one way for many
+    periods and is not period-doubled.
+    """
     if env.size < 6:
         return False
-    steps = np.abs(np.diff(env))
-    return bool(np.median(steps) > ALTERNATION * np.mean(env))
+    steps = np.diff(env)
+    big = np.abs(steps) > ALTERNATION * np.mean(env)
+    flips = (steps[:-1] * steps[1:] < 0) & big[:-1] & big[1:]
+    return bool(np.mean(flips) >= ALTERNATING_SHARE)
+
+
+def running_mean(t: np.ndarray, v: np.ndarray, width: float) -> np.ndarray:
+    """The mean of v over a window ``width`` wide centred on each sample (trapezoidal
+    integral, any spacing of t); near the ends of the run the window is moved
+    inward, so it always spans a whole period.
+
+    Over one period it removes the carrier and keeps the bias drift, so the
+    crossings of v about it find every period even while the DC level moves
+    (a squegging stage's collector swings by volts as the bias collapses).
+    """
+    area = np.concatenate(([0.0], np.cumsum(0.5 * (v[1:] + v[:-1]) * np.diff(t))))
+    width = min(width, float(t[-1] - t[0]))
+    if not width > 0:
+        return np.full_like(v, float(np.mean(v)))
+    lo = np.clip(t - 0.5 * width, t[0], t[-1] - width)
+    return (np.interp(lo + width, t, area) - np.interp(lo, t, area)) / width
 
 
 def upper_envelope(env_t: list[float], env: list[float]) -> tuple[list[float], list[float]]:

@@ -444,14 +444,15 @@ def _measure(
     tail = t >= t_end - tail_cycles / f_ref
     notes: list[str] = []
     # Envelope: half the peak-to-peak swing of each period (periods from the
-    # crossings of the tank voltage about its running mean).
-    centre = vo - np.mean(vo[tail])
+    # crossings of the output voltage about its one-period running mean, which
+    # follows the bias as it moves).
+    centre = vo - runlines.running_mean(t, vo, 1.0 / f_ref)
     cross = _crossings(t, centre)
     env_t, env = [], []
     idx = np.searchsorted(t, cross)
     for a, b in itertools.pairwise(idx):
         if b > a + 1:
-            seg = vo[a:b]
+            seg = centre[a:b]
             env_t.append(float(t[(a + b) // 2]))
             env.append(float(0.5 * (seg.max() - seg.min())))
     env_arr = np.array(env)

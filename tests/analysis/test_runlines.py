@@ -47,3 +47,21 @@ def test_alternating_amplitudes_plot_as_one_line():
     assert runlines.alternates(np.array(env))
     t, v = runlines.upper_envelope(env_t, env)
     assert v == [4.1] * 20 and len(t) == 20
+
+
+def test_a_smoothly_collapsing_envelope_is_not_period_doubled():
+    # squegging: the amplitude falls 12 % a period for many periods, then rebuilds
+    env = np.concatenate((4.0 * 0.88 ** np.arange(30), 4.0 * 0.88 ** np.arange(30)[::-1]))
+    assert not runlines.alternates(env)
+
+
+def test_running_mean_removes_the_carrier_and_keeps_the_drift():
+    # one-period mean of sin(2πft) is zero exactly, of a ramp its centre value
+    # (calculus), also at the ends, where the window stays a whole period inside the run
+    t = np.sort(np.random.default_rng(1).uniform(0, 30 / F, 20000))
+    drift = 2.0 + 0.05 * t * F
+    v = drift + np.sin(2 * math.pi * F * t)
+    m = runlines.running_mean(t, v, 1 / F)
+    inside = (t > t[0] + 0.5 / F) & (t < t[-1] - 0.5 / F)
+    assert m[inside] == pytest.approx(drift[inside], abs=2e-3)
+    assert np.max(np.abs(m - drift)) < 0.05

@@ -227,6 +227,68 @@ def test_455k_design_period_doubles_and_its_transient_shows_f_over_2():
     assert half > 0.03 * fund
 
 
+def _squegger() -> Design:
+    """Common-emitter Clapp at loop gain ≈ 9 whose emitter bypass R_E·C_E is ≈ 320 periods."""
+    return Design.model_validate(
+        {
+            "name": "squegging 1M",
+            "topology": "common-emitter",
+            "supply": {"Vcc": "24"},
+            "bias": {"RB1": "22k", "RB2": "6k8", "RC": "1k5", "RE": "2k2", "CE": "150n"},
+            "tank": {"L": "100u", "Q_L": "30", "C1": "2n2", "C2": "4n7", "C3": "330p"},
+            "coupling": {"Cc1": "10n", "Cc2": "10n"},
+            "device": {"preset": "general-purpose", "beta": 200, "IS": "10f", "VA": 100,
+                       "fT": "300M", "C_mu": "3p5"},
+        }
+    )  # fmt: skip
+
+
+#: Periods over which the reference runs measure the growth of a deviation.
+GROWTH_PERIODS = 25
+
+
+def test_loop_gain_9_design_with_a_slow_emitter_bypass_squegs():
+    design = _squegger()
+    solved = solve(design)
+    assert 8.5 < solved.gain < 9.5
+    assert 200 < design.bias.RE * design.bias.CE * solved.f_osc < 500
+    ss = steady_state(solved, warm=False)
+    assert ss.behaviour == "squegs"
+    worst = ss.multipliers[0]
+    assert abs(worst) > 1.0 and worst.imag != 0.0
+    # The pair measured independently: SciPy's solve_ivp (LSODA, rtol 1e-10) from the
+    # orbit's start, once as it is and once nudged along the pair's eigenvector; the
+    # difference of the two runs, sampled once a period and projected on the pair's
+    # left eigenvector, is multiplied by μ each period (Floquet theory, e.g. Parker &
+    # Chua, Practical Numerical Algorithms for Chaotic Systems, ch. 2, from memory).
+    o = ss.orbit
+    system, _x = transient_system(solved)
+    mu, right = np.linalg.eig(o.monodromy)
+    i = int(np.argmin(np.abs(mu - worst)))
+    mu_left, left = np.linalg.eig(o.monodromy.T)
+    lvec = left[:, int(np.argmin(np.abs(mu_left - mu[i])))]
+    nudge = np.zeros_like(o.x[0])
+    r = right[:, i].real
+    nudge[o.dynamic] = r / np.max(np.abs(r)) * 1e-3 * np.max(np.abs(o.x[0]))
+    t = np.arange(GROWTH_PERIODS + 1) / ss.f
+    a = integrate_reference(system, o.x[0], t[-1], t, rtol=1e-10, method="LSODA")
+    b = integrate_reference(system, o.x[0] + nudge, t[-1], t, rtol=1e-10, method="LSODA")
+    z = (b - a)[:, o.dynamic] @ lvec
+    measured = np.sum(z[1:] * np.conj(z[:-1])) / np.sum(np.abs(z[:-1]) ** 2)
+    assert abs(measured - worst) < 2e-3
+    # our own transient from the DC point: the envelope collapses and rebuilds, again
+    # and again (common practice, no source)
+    run = transient.run(design, cycles=600)
+    assert run.squegging and not run.settled
+    assert not any(n.startswith("period-doubled") for n in run.notes)
+    env = np.array(run.envelope)
+    late = env[len(env) // 3 :]
+    assert late.max() > 20 * late.min()
+    high = late > 0.5 * late.max()
+    assert np.count_nonzero(high[1:] & ~high[:-1]) >= 3  # rebuilt at least three times
+    assert any(n.startswith("envelope modulation") for n in run.notes)
+
+
 def test_clean_design_at_loop_gain_3_settles():
     design = _at_gain(_form_base("common-emitter"), 3.0)
     ss = steady_state(solve(design), warm=False)
