@@ -15,7 +15,7 @@ from ringwise.analysis.output import load_output
 from ringwise.analysis.periodic import SteadyState, steady_state
 from ringwise.analysis.phase_noise import SHARE_OFFSETS, OscillatorNoise
 from ringwise.analysis.poles import natural_frequencies
-from ringwise.analysis.stability import REPORT_OFFSETS, stability
+from ringwise.analysis.stability import REPORT_OFFSETS, neighbours, stability
 from ringwise.analysis.startup import verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
@@ -107,13 +107,14 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     ss = steady_state(s) if large_signal else None
     if ss is not None:
         findings += steady_checks(s, ss)
-    st = stability(s, ss)
+    near = neighbours(s)
+    st = stability(s, ss, near)
     findings += [Finding(code, message) for code, message in st.notes]
     if threshold.value is None and threshold.reason:
         findings.append(Finding("no-threshold", threshold.reason))
     dom = poles.dominant
     hand = hand_formula(design, hp.gm)
-    output = load_output(s, ss)
+    output = load_output(s, ss, near)
     crystal = crystal_figures(s, ss, poles)
     findings += crystal_checks(crystal)
     story = gain_story(hand, s, budget, setter) if gain is not None else None

@@ -25,7 +25,7 @@ import numpy as np
 
 from ringwise.analysis.loop import LoopFigures, find_oscillation
 from ringwise.analysis.operating import Solved
-from ringwise.circuit.mna import SmallSignal, restamp, small_signal
+from ringwise.circuit.mna import SmallSignal, restamp_batch, small_signal
 from ringwise.circuit.netlist import Capacitor, Inductor, Netlist, Resistor
 from ringwise.circuit.npn import HybridPi
 from ringwise.circuit.topologies import CHOKE_LOSS, CHOKE_SETTER
@@ -102,27 +102,35 @@ def _ideal_values(netlist: Netlist, parts: tuple[str, ...]) -> dict[str, dict[st
     return changes
 
 
-def _variant(solved: Solved, items: Sequence[BudgetItem]) -> SmallSignal:
-    """The small-signal circuit with every one of ``items`` made ideal at once."""
-    system = solved.system
-    parts = tuple(p for item in items for p in item.parts)
-    if parts:
-        system = restamp(system, solved.netlist, _ideal_values(solved.netlist, parts))
-    changes = {k: v for item in items for k, v in item.hybrid.items()}
-    hp: HybridPi = dataclasses.replace(solved.hybrid, **changes)
-    return small_signal(system, hp)
+def _variants(solved: Solved, item_sets: Sequence[Sequence[BudgetItem]]) -> SmallSignal:
+    """The small-signal circuit with every item of each set made ideal, one
+    variant per set, stacked on a batch axis (one assembly for all)."""
+    netlist = solved.netlist
+    system = restamp_batch(
+        solved.system,
+        netlist,
+        [
+            _ideal_values(netlist, tuple(p for item in items for p in item.parts))
+            for items in item_sets
+        ],
+    )
+    hp = solved.hybrid
+    fields = {name: np.full(len(item_sets), getattr(hp, name)) for name in _HYBRID_FIELDS}
+    for j, items in enumerate(item_sets):
+        for item in items:
+            for name, value in item.hybrid.items():
+                fields[name][j] = value
+    return small_signal(system, HybridPi(gm=hp.gm, **fields))
 
 
-def _solve_variants(solved: Solved, variants: list[SmallSignal]) -> LoopFigures:
+#: The hybrid-π elements a budget item may make ideal (g_m is the loop's own).
+_HYBRID_FIELDS: Final = ("g_pi", "g_o", "g_r", "C_pi", "C_mu")
+
+
+def _solve_variants(solved: Solved, variants: SmallSignal) -> LoopFigures:
     """Oscillation figures of all ``variants`` in one batched call."""
-    batch = SmallSignal(
-        layout=solved.ss.layout,
-        G=np.stack([v.G for v in variants]),
-        C=np.stack([v.C for v in variants]),
-        gm=np.full(len(variants), solved.ss.gm),
-        u=solved.ss.u,
-        w=solved.ss.w,
-        hybrid=solved.hybrid,
+    batch = dataclasses.replace(
+        variants, gm=np.full(variants.G.shape[0], solved.ss.gm), hybrid=solved.hybrid
     )
     f_ref = solved.f_osc or solved.tank.f_ideal
     return find_oscillation(batch, solved.tank.f_ideal, f_ref)
@@ -143,7 +151,7 @@ def sequential_costs(
     """
     by_element = {i.element: i for i in budget_items(solved.netlist, gain_setter)}
     items = [by_element[e] for e in order]
-    variants = [_variant(solved, items[k:]) for k in range(len(items) + 1)]
+    variants = _variants(solved, [items[k:] for k in range(len(items) + 1)])
     gains = _solve_variants(solved, variants).gain
     if not np.all(np.isfinite(gains)) or not np.all(gains > 0):
         return None
@@ -154,7 +162,7 @@ def sequential_costs(
 def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
     """Cost of each loss in loop gain, for a solved design with a loop crossing."""
     items = budget_items(solved.netlist, gain_setter)
-    figs = _solve_variants(solved, [_variant(solved, [item]) for item in items])
+    figs = _solve_variants(solved, _variants(solved, [[item] for item in items]))
     gain = solved.gain
     costs: list[float | None] = []
     for g in figs.gain:

@@ -56,6 +56,10 @@ SOURCE_STEPS: Final = (0.05, 0.1, 0.2, 0.35, 0.5, 0.7, 0.85, 1.0)
 GUESS_CURRENT: Final = 1e-3
 #: Smallest fraction of a Newton step that junction limiting may leave.
 MIN_DAMPING: Final = 1e-3
+#: Batches up to this size run each member's Newton in float arithmetic
+#: (the same iterates; a few dozen array operations per step cost more than
+#: a handful of float loops — measured with ``make bench``).
+SCALAR_BATCH: Final = 8
 SQRT2: Final = 2.0**0.5
 
 
@@ -181,17 +185,19 @@ def _fraction_one(v_old: float, step: float, VT: float, v_crit: float) -> float:
     return max((v_lim - v_old) / step, MIN_DAMPING)
 
 
-def _newton_one(red: Reduced, params: NPNParams, v: np.ndarray, scale: float) -> bool:
-    """:func:`_newton` for a batch of one, in float arithmetic: the same iterates
-    without array overhead (the pipeline's one scalar fast path, for single designs)."""
+def _newton_one(
+    red: Reduced, params: NPNParams, v: np.ndarray, scale: float, i: int = 0
+) -> bool:
+    """:func:`_newton` for member ``i`` alone, in float arithmetic: the same iterates
+    without array overhead (the pipeline's one scalar fast path, for small batches)."""
     IS, beta, beta_R, VA, VT = (
-        float(np.reshape(p, -1)[0])
+        float(p) if np.ndim(p) == 0 else float(p[i])
         for p in (params.IS, params.beta, params.beta_R, params.VA, params.VT)
     )
     v_crit = VT * math.log(VT / (SQRT2 * IS))
-    (m00, m01), (m10, m11) = red.M[0].tolist()
-    a0, a1 = (scale * red.a[0]).tolist()
-    vbe, vce = v[0].tolist()
+    (m00, m01), (m10, m11) = red.M[i].tolist()
+    a0, a1 = (scale * red.a[i]).tolist()
+    vbe, vce = v[i].tolist()
     for _ in range(MAX_NEWTON):
         try:
             q = junction_currents(vbe, vce, IS, beta, beta_R, VA, VT)
@@ -211,7 +217,7 @@ def _newton_one(red: Reduced, params: NPNParams, v: np.ndarray, scale: float) ->
         vce += alpha * d_ce
         if not (math.isfinite(vbe) and math.isfinite(vce)):
             return False
-        v[0, 0], v[0, 1] = vbe, vce
+        v[i, 0], v[i, 1] = vbe, vce
         if (
             alpha == 1.0
             and abs(d_be) <= STEP_TOL + REL_TOL * abs(vbe)
@@ -222,9 +228,13 @@ def _newton_one(red: Reduced, params: NPNParams, v: np.ndarray, scale: float) ->
 
 
 def _solve_controls(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, todo):
-    """Newton for the members in ``todo``: float arithmetic for a batch of one."""
-    if len(v) == 1:
-        return np.array([bool(todo[0]) and _newton_one(red, params, v, scale)])
+    """Newton for the members in ``todo``: float arithmetic, member by member, for a
+    batch of at most :data:`SCALAR_BATCH`."""
+    if len(v) <= SCALAR_BATCH:
+        return np.array(
+            [bool(todo[i]) and _newton_one(red, params, v, scale, i) for i in range(len(v))],
+            dtype=bool,
+        )
     return _newton(red, params, v, scale, todo)
 
 

@@ -27,10 +27,10 @@ from typing import Final
 
 import numpy as np
 
-from ringwise.analysis.operating import Solved, solve
+from ringwise.analysis.operating import Solved
 from ringwise.analysis.periodic import HARMONICS, SteadyState
+from ringwise.analysis.stability import Neighbours, neighbours
 from ringwise.circuit.topologies import T1
-from ringwise.design import with_param
 
 #: Reference power of the dBm scale, W.
 DBM_REFERENCE: Final = 1e-3
@@ -64,8 +64,12 @@ class LoadOutput:
     pull_ppm: float | None
 
 
-def load_output(solved: Solved, steady: SteadyState | None) -> LoadOutput | None:
-    """Power, voltage and harmonics at the load from the steady state; pulling."""
+def load_output(
+    solved: Solved, steady: SteadyState | None, near: Neighbours | None = None
+) -> LoadOutput | None:
+    """Power, voltage and harmonics at the load from the steady state; pulling
+    (from ``near``, :func:`ringwise.analysis.stability.neighbours` of ``solved``,
+    when the caller has it)."""
     load = solved.design.load
     if load.R_load is None:
         return None
@@ -92,18 +96,5 @@ def load_output(solved: Solved, steady: SteadyState | None) -> LoadOutput | None
         P_dBm=P_dBm,
         harmonics_dBc=harmonics,
         change=load.change,
-        pull_ppm=load_pull_ppm(solved),
+        pull_ppm=(near or neighbours(solved)).load_change_ppm,
     )
-
-
-def load_pull_ppm(solved: Solved) -> float | None:
-    """f_osc moved by the stated load change (R_load·(1 − δ), C_load·(1 + δ)), ppm."""
-    design, f0 = solved.design, solved.f_osc
-    load = design.load
-    if f0 is None or load.R_load is None:
-        return None
-    changed = with_param(design, "R_load", load.R_load * (1.0 - load.change))
-    if load.C_load is not None:
-        changed = with_param(changed, "C_load", load.C_load * (1.0 + load.change))
-    f1 = solve(changed, solved.op.x, f0).f_osc
-    return None if f1 is None else (f1 / f0 - 1.0) * 1e6

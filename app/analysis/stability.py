@@ -138,14 +138,26 @@ def pushing_at_amplitude(solved: Solved) -> float | None:
 
 def _variants(solved: Solved) -> list[Design]:
     """The designs pushing and pulling need: Vcc ± a step, then (with a load) the
-    load opened and R_load ± a step."""
+    load opened, R_load ± a step and the stated load change."""
     d = solved.design
     # the steps stay inside the fields' bounds (at a bound the difference is one-sided)
     out = [with_param(d, "Vcc", V) for V in _steps(d, "Vcc")]
     if d.load.R_load is not None:
         out.append(d.model_copy(update={"load": d.load.model_copy(update={"R_load": None})}))
         out += [with_param(d, "R_load", R) for R in _steps(d, "R_load")]
+        out.append(load_changed(d))
     return out
+
+
+def load_changed(design: Design) -> Design:
+    """``design`` with its load's resistance lowered and its capacitance raised by
+    the stated fraction ``load.change`` (a buffer that loads the tank harder)."""
+    load = design.load
+    assert load.R_load is not None
+    changed = with_param(design, "R_load", load.R_load * (1.0 - load.change))
+    if load.C_load is not None:
+        changed = with_param(changed, "C_load", load.C_load * (1.0 + load.change))
+    return changed
 
 
 def _steps(d: Design, name: str) -> tuple[float, float]:
@@ -155,14 +167,30 @@ def _steps(d: Design, name: str) -> tuple[float, float]:
     return step_within(name, value, (PUSH_STEP if name == "Vcc" else PULL_STEP) * value)
 
 
-def push_pull(solved: Solved) -> tuple[float | None, float | None, float | None]:
-    """(df_osc/dVcc, Hz/V; f with the load − f open, Hz; df/dR_load, Hz/Ω).
+@dataclass(frozen=True)
+class Neighbours:
+    """The small-signal figures of the designs next to a solved one, from one batch.
 
-    Central differences of full solves (operating point re-solved), all in
-    one batch of the pipeline; ``None`` where a figure does not exist.
+    Attributes
+    ----------
+    push : df_osc/dVcc, Hz/V
+    shift : f_osc with the load − f_osc with the load open, Hz
+    slope : df_osc/dR_load, Hz/Ω
+    load_change_ppm : f_osc moved by the stated load change, ppm
     """
+
+    push: float | None
+    shift: float | None
+    slope: float | None
+    load_change_ppm: float | None
+
+
+def neighbours(solved: Solved) -> Neighbours:
+    """Pushing, pulling and the load change's pull: central differences of full
+    solves (operating point re-solved), all in one batch of the pipeline;
+    ``None`` where a figure does not exist."""
     if solved.f_osc is None:
-        return None, None, None
+        return Neighbours(None, None, None, None)
     designs = _variants(solved)
     batch = solve_designs(designs, solved.op.x, solved.f_osc, like=solved.design)
     f = [float(v) if np.isfinite(v) else None for v in batch.loop.f_osc]
@@ -171,20 +199,29 @@ def push_pull(solved: Solved) -> tuple[float | None, float | None, float | None]
     push = (f[0] - f[1]) / (V_hi - V_lo) if None not in f[:2] else None
     R = d.load.R_load
     if R is None:
-        return push, 0.0, None
-    f_open, f_hi, f_lo = f[2:]
+        return Neighbours(push, 0.0, None, None)
+    f_open, f_hi, f_lo, f_changed = f[2:]
     shift = solved.f_osc - f_open if f_open is not None else None
     R_hi, R_lo = _steps(d, "R_load")
     slope = (f_hi - f_lo) / (R_hi - R_lo) if None not in (f_hi, f_lo) else None
-    return push, shift, slope
+    ppm = None if f_changed is None else (f_changed / solved.f_osc - 1.0) * 1e6
+    return Neighbours(push, shift, slope, ppm)
 
 
-def stability(solved: Solved, ss: SteadyState | None) -> Stability:
+def push_pull(solved: Solved) -> tuple[float | None, float | None, float | None]:
+    """(df_osc/dVcc, Hz/V; f with the load − f open, Hz; df/dR_load, Hz/Ω)
+    (see :func:`neighbours`)."""
+    near = neighbours(solved)
+    return near.push, near.shift, near.slope
+
+
+def stability(solved: Solved, ss: SteadyState | None, near: Neighbours | None = None) -> Stability:
     """All stability figures of a solved design with its periodic steady state.
 
     Without a steady state (``None``: the sheet's first answer) the figures
     that need the amplitude (signal power, phase noise, part stresses) are
-    absent and pushing is the small-signal one.
+    absent and pushing is the small-signal one.  ``near`` is
+    :func:`neighbours` of ``solved`` when the caller has it already.
     """
     d = solved.design
     Q = float(solved.loop.Q_loaded) if solved.f_osc is not None else None
@@ -206,7 +243,8 @@ def stability(solved: Solved, ss: SteadyState | None) -> Stability:
         pn = [(o, float(leeson(o, *args))) for o in REPORT_OFFSETS]
         grid = np.logspace(*PLOT_DECADES, PLOT_POINTS)
         curve = list(zip(grid.tolist(), leeson(grid, *args).tolist(), strict=True))
-    push, shift, slope = push_pull(solved)
+    near = near or neighbours(solved)
+    push, shift, slope = near.push, near.shift, near.slope
     if ss is not None and ss.orbit is not None:
         push = pushing_at_amplitude(solved)
     parts = list(ss.parts) if ss is not None else []

@@ -72,6 +72,9 @@ ERROR_MARGIN: Final = 4.0
 BRACKET_XTOL: Final = 1e-12
 #: A bracketed root whose |ln gain| exceeds this is a discontinuity, not a crossing.
 ROOT_CHECK: Final = 1e-4
+#: A root read off a round's parabola (no further solve) must be this fraction
+#: of LOG_GAIN_TOL from ln gain 0 by the parabola's own error estimate.
+INTERPOLATION_SHARE: Final = 0.01
 #: Stand-in for ln(gain) when a trial value gives no loop crossing at all.
 NO_LOOP: Final = -50.0
 #: Maximum sweep length.
@@ -387,7 +390,41 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
                 break
         if abs(best_g) <= LOG_GAIN_TOL:
             break
+        close = _interpolated_root(last, a, b)
+        if close is not None:
+            return close
     return best_x, best_g
+
+
+def _interpolated_root(
+    last: tuple[list[float], list[float]] | None, a: float, b: float
+) -> tuple[float, float] | None:
+    """The root from a round's three points when they already sit on it: every
+    point within :data:`ROOT_CHECK` of ln gain 0 (so no jump hides among them)
+    and the parabola through them placing the root to well within
+    :data:`LOG_GAIN_TOL` of ln gain (its expected error times the slope).
+
+    Returns the root and the ln gain the parabola gives there, or ``None``
+    (another round is needed).  This saves the round that would only confirm
+    what three points this close already fix.
+    """
+    if last is None or max(abs(y) for y in last[1]) > ROOT_CHECK:
+        return None
+    xs, ys = last
+    lo, hi = min(a, *xs), max(b, *xs)
+    width = hi - lo
+    found = _newton_estimate(xs, ys, lo - width, hi + width)
+    if found is None:
+        return None
+    x, err = found
+    (x0, x1, x2), (y0, y1, y2) = xs, ys
+    d01, d12 = (y1 - y0) / (x1 - x0), (y2 - y1) / (x2 - x1)
+    curv = (d12 - d01) / (x2 - x0)
+    slope = d01 + curv * (x1 - x0)
+    if ERROR_MARGIN * abs(slope) * err > INTERPOLATION_SHARE * LOG_GAIN_TOL:
+        return None
+    dx = x - x1
+    return x, y1 + slope * dx + curv * dx * dx
 
 
 @dataclass(frozen=True)

@@ -174,6 +174,46 @@ def restamp(
     return LinearSystem(system.layout, G, C, system.b, system.devices)
 
 
+def restamp_batch(
+    system: LinearSystem, old: Netlist, change_sets: list[dict[str, dict[str, float]]]
+) -> LinearSystem:
+    """:func:`restamp` for several sets of changes at once: G, C of shape (V, n, n).
+
+    Each element's change of stamp is worked out once and the variants are
+    the sums of theirs (one matrix product), so the budget's many variants of
+    one circuit cost one assembly.
+    """
+    names = list(dict.fromkeys(name for changes in change_sets for name in changes))
+    n = system.layout.size
+    if not names:
+        V = len(change_sets)
+        G = np.broadcast_to(system.G, (V, n, n)).copy()
+        return LinearSystem(system.layout, G, np.broadcast_to(system.C, (V, n, n)).copy(),
+                            system.b, system.devices)  # fmt: skip
+    deltas = np.zeros((len(names), 2, n, n))
+    member = np.zeros((len(change_sets), len(names)))
+    for j, changes in enumerate(change_sets):
+        for name in changes:
+            member[j, names.index(name)] = 1.0
+    done: dict[str, dict[str, float]] = {}
+    for changes in change_sets:
+        for name, fields in changes.items():
+            if name in done:
+                if done[name] != fields:
+                    raise ValueError(f"{name} is changed two ways in one batch")
+                continue
+            done[name] = fields
+            k = names.index(name)
+            el = old[name]
+            dG, dC = deltas[k, 0], deltas[k, 1]
+            _stamp_linear(dG, dC, system.layout, el, -1.0)
+            _stamp_linear(dG, dC, system.layout, dataclasses.replace(el, **fields), +1.0)
+    summed = (member @ deltas.reshape(len(names), -1)).reshape(len(change_sets), 2, n, n)
+    return LinearSystem(
+        system.layout, system.G + summed[:, 0], system.C + summed[:, 1], system.b, system.devices
+    )
+
+
 @dataclass(frozen=True)
 class SmallSignal:
     r"""The circuit linearised at its operating point, with the loop broken.
