@@ -24,7 +24,7 @@ from pydantic import (
 )
 from pydantic_core import InitErrorDetails, PydanticCustomError
 
-from ringwise.presets import DEVICE_PRESETS
+from ringwise.presets import DEVICE_PRESETS, VARACTOR_PRESETS
 from ringwise.quantities import SI
 
 FORMAT: Final = "ringwise.design"
@@ -129,6 +129,61 @@ class Crystal(_Part):
             return self.L_x1
         assert self.f_xs is not None
         return 1.0 / ((2.0 * math.pi * self.f_xs) ** 2 * self.C_x1)
+
+
+#: Where the varactor (in series with its coupling capacitor C_v) sits in the
+#: tank: across the coil, or across the Clapp position (in series with L,
+#: beside C3 when there is one).
+VaractorPlace = Literal["across-L", "clapp"]
+
+
+class Varactor(_Part):
+    r"""A reverse-biased tuning diode in the tank: C(V) = C_j0/(1 + V/φ)^m.
+
+    In series with the coupling capacitor C_v; its cathode is fed the tuning
+    voltage through R_tune (the anode sits on the tank, at 0 V DC), so its
+    reverse bias is the tuning voltage.  A ``preset`` fills the diode's values
+    of a class (typical, from memory).
+    """
+
+    preset: Literal["abrupt", "hyperabrupt"] | None = Field(
+        default=None, description="Varactor class the values were taken from (typical, from memory)"
+    )
+    C_j0: Farads = Field(description="Junction capacitance at zero bias, F")
+    phi_j: SI("V", ge=0.1, le=5) = Field(default=0.7, description="Built-in potential φ, V")
+    m_j: SI("", ge=0.1, le=3) = Field(
+        default=0.5, description="Grading coefficient m (1/2 abrupt, about 1 and above hyperabrupt)"
+    )
+    R_v: Ohms = Field(default=0.5, description="Series resistance of the diode, Ω")
+    C_v: Farads = Field(description="Coupling capacitor in series with the diode, F")
+    R_tune: Ohms = Field(default=100e3, description="Resistor feeding the tuning voltage, Ω")
+    V_tune: Volts = Field(description="Tuning voltage (the diode's reverse bias) of this design, V")
+    V_min: Volts = Field(default=1.0, description="Lowest tuning voltage of the range, V")
+    V_max: Volts = Field(default=8.0, description="Highest tuning voltage of the range, V")
+    place: VaractorPlace = Field(
+        default="across-L", description="Across the coil, or across the Clapp position"
+    )
+
+    @model_validator(mode="before")
+    @classmethod
+    def _fill_from_preset(cls, data: Any) -> Any:
+        if isinstance(data, dict) and data.get("preset") is not None:
+            name = data["preset"]
+            if not isinstance(name, str) or name not in VARACTOR_PRESETS:
+                known = ", ".join(sorted(VARACTOR_PRESETS))
+                raise ValueError(f"unknown varactor preset {name!r}; known: {known}")
+            given = {k: v for k, v in data.items() if v is not None}
+            return {**VARACTOR_PRESETS[name], **given}
+        return data
+
+    @model_validator(mode="after")
+    def _range(self) -> Varactor:
+        if self.V_min >= self.V_max:
+            raise ValueError(
+                f"the tuning range is empty: V_min ({self.V_min:g} V) is not below "
+                f"V_max ({self.V_max:g} V)"
+            )
+        return self
 
 
 class Coupling(_Part):
@@ -308,6 +363,9 @@ class Design(_Part):
     crystal: Crystal | None = Field(
         default=None, description="A crystal in place of the coil (tank L and Q_L unused)"
     )
+    varactor: Varactor | None = Field(
+        default=None, description="A varactor tuning the tank (none: a fixed tank)"
+    )
     coupling: Coupling
     load: Load = Field(default_factory=Load)
     device: Device
@@ -399,6 +457,13 @@ PARAMETERS: Final[dict[str, str]] = {
     "C_x1": "crystal",
     "C_x0": "crystal",
     "P_xmax": "crystal",
+    "C_j0": "varactor",
+    "phi_j": "varactor",
+    "m_j": "varactor",
+    "R_v": "varactor",
+    "C_v": "varactor",
+    "R_tune": "varactor",
+    "V_tune": "varactor",
     "C_load": "load",
     "beta": "device",
     "IS": "device",

@@ -176,6 +176,7 @@ PARAM_UNITS: Final = {
     "CE": "F", "CB": "F", "C1": "F", "C2": "F", "C3": "F", "Cc1": "F", "Cc2": "F",
     "L": "H", "Q_L": "", "L_ch": "H", "Q_ch": "", "f_ch": "Hz", "C_load": "F",
     "R_x1": "Ω", "L_x1": "H", "f_xs": "Hz", "C_x1": "F", "C_x0": "F", "P_xmax": "W",
+    "C_j0": "F", "phi_j": "V", "m_j": "", "R_v": "Ω", "C_v": "F", "R_tune": "Ω", "V_tune": "V",
     "beta": "", "IS": "A", "VA": "V", "fT": "Hz", "C_mu": "F",
     "F_dB": "dB", "f_corner": "Hz", "V_cap": "V", "temperature_C": "°C",
 }  # fmt: skip

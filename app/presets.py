@@ -40,3 +40,24 @@ DEVICE_PRESET_LABELS: Final[dict[str, str]] = {
     "rf": "RF NPN (multi-GHz fT)",
     "high-beta-low-noise": "High-beta low-noise NPN",
 }
+
+#: Varactor classes: zero-bias capacitance C_j0 (F), built-in potential phi_j (V),
+#: grading coefficient m_j, series resistance R_v (Ω) and a usual tuning range
+#: (V_min, V_max in V).  Typical values, from memory: an abrupt junction has
+#: m ≈ 1/2; a hyperabrupt one m ≈ 1 or above, for a wider capacitance ratio.
+VARACTOR_PRESETS: Final[dict[str, dict[str, float]]] = {
+    "abrupt": {"C_j0": 50e-12, "phi_j": 0.7, "m_j": 0.5, "R_v": 0.5, "V_min": 1.0, "V_max": 8.0},
+    "hyperabrupt": {
+        "C_j0": 100e-12,
+        "phi_j": 0.7,
+        "m_j": 1.0,
+        "R_v": 1.0,
+        "V_min": 1.0,
+        "V_max": 8.0,
+    },
+}
+
+VARACTOR_PRESET_LABELS: Final[dict[str, str]] = {
+    "abrupt": "Abrupt junction (m ≈ 0.5)",
+    "hyperabrupt": "Hyperabrupt junction (m ≈ 1, wider ratio)",
+}

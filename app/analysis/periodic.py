@@ -188,6 +188,8 @@ def _scale(system: LinearSystem, solved: Solved) -> np.ndarray:
     z = 2.0 * math.pi * (solved.f_osc or solved.tank.f_ideal) * solved.design.tank.L
     for idx in system.layout.branch.values():
         scale[idx] = z
+    for el in system.varactors:  # its charge is in volts (q/C at the bias)
+        scale[system.layout.branch[el.name]] = 1.0
     return scale
 
 
@@ -225,6 +227,12 @@ def floating_groups(system: LinearSystem, x_dc: np.ndarray) -> np.ndarray:
     U = np.zeros((lay.size, len(groups)))
     for c, group in enumerate(groups):
         U[group, c] = 1.0
+    if system.varactors and groups:
+        # a varactor's charge moves with the group its anode floats in (its row holds
+        # v_a − v_b − q/C): the null vectors carry that part along with the nodes
+        fit = np.linalg.lstsq(null[nodes], U[nodes], rcond=None)[0]
+        others = np.setdiff1d(np.arange(lay.size), nodes)
+        U[others] = (null @ fit)[others]
     return U
 
 

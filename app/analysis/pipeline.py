@@ -46,18 +46,22 @@ from ringwise.circuit.mna import (
     linear_patterns,
     small_signal,
 )
-from ringwise.circuit.netlist import NPNParams
+from ringwise.circuit.netlist import NPNParams, Varactor
 from ringwise.circuit.npn import HybridPi, JunctionState, hybrid_pi
 from ringwise.circuit.topologies import (
     CHOKE,
     CHOKE_LOSS,
     CHOKE_SELF_C,
+    TUNE_SUPPLY,
+    VARACTOR,
     build,
     choke_loss,
     choke_self_capacitance,
     coil_loss,
     crystal_frequency,
     device_params_at,
+    tank_capacitance,
+    varactor_branch,
 )
 from ringwise.design import PARAMETERS, Design, get_param
 
@@ -75,6 +79,8 @@ def part_values(design: Design) -> dict[str, float | None]:
     values["temperature_C"] = design.temperature_C
     if design.crystal is not None:
         values["L_x1"] = design.crystal.L1  # entered, or from f_xs
+    if design.varactor is not None:
+        values["varactor_place"] = design.varactor.place  # fixed by the structure
     return values
 
 
@@ -89,6 +95,7 @@ def structure_of(design: Design) -> tuple:
         design.load.R_load is not None,
         design.load.C_load is not None,
         design.crystal is not None,
+        None if design.varactor is None else design.varactor.place,
     )
 
 
@@ -128,10 +135,14 @@ def stamp_values(
     A part the structure has but a member leaves out (``None`` or NaN) is
     open: zero conductance, zero capacitance.
     """
-    C_s = 1.0 / sum(1.0 / _value(values[c], batch) for c in TANK_CAPACITORS if _present(values, c))
+    C_s = _tank_capacitance(values, batch, _value)
     out: dict[tuple[str, str], np.ndarray | float] = {}
     for name, fld, _target, _M in patterns.terms:
-        if name == CHOKE:
+        if name == VARACTOR:
+            out[(name, fld)] = _varactor_stamp(values, fld, batch)
+        elif name == TUNE_SUPPLY:
+            out[(name, fld)] = _value(values["V_tune"], batch)
+        elif name == CHOKE:
             out[(name, fld)] = _value(values["L_ch"], batch) if fld == "L" else 0.0
         elif name == CHOKE_LOSS:
             R_p = choke_loss(values["L_ch"], values["Q_ch"], values["L"], C_s)
@@ -155,6 +166,35 @@ def stamp_values(
     return out
 
 
+def _tank_capacitance(values: PartValues, batch: int, as_value) -> np.ndarray | float:
+    """The capacitance the coil resonates with (the varactor branch at its bias included)."""
+    C = [as_value(values[c], batch) if _present(values, c) else None for c in TANK_CAPACITORS]
+    if not _present(values, "C_j0"):
+        return tank_capacitance(*C)
+    C_b = varactor_branch(
+        *(as_value(values[k], batch) for k in ("C_v", "C_j0", "phi_j", "m_j", "V_tune"))
+    )
+    return tank_capacitance(*C, C_b, values.get("varactor_place") or "across-L")
+
+
+def _varactor_stamp(values: PartValues, fld: str, batch: int):
+    """The varactor's stamp values: C(V_tune), R_v·C(V_tune), the row's offset."""
+    args = [values[k] for k in ("C_j0", "phi_j", "m_j", "V_tune")]
+    if all(np.ndim(a) == 0 for a in args):
+        els = [Varactor("", "", "", *(float(a) for a in args))]  # type: ignore[arg-type]
+    else:
+        rows = zip(*np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in args)), strict=True)
+        els = [Varactor("", "", "", *(float(a) for a in row)) for row in rows]
+    C_b = np.array([el.C_bias for el in els])
+    if fld == "C_b":
+        got = C_b
+    elif fld == "RC":
+        got = C_b * values["R_v"]
+    else:
+        got = np.array([el.offset for el in els])
+    return _value(got if got.size > 1 else float(got[0]), batch)
+
+
 def _present(values: PartValues, name: str) -> bool:
     v = values.get(name)
     return v is not None
@@ -162,7 +202,7 @@ def _present(values: PartValues, name: str) -> bool:
 
 def f_ideal_of(values: PartValues, batch: int) -> np.ndarray:
     """1/(2π√(L·C_s)) of every member, Hz."""
-    C_s = 1.0 / sum(1.0 / _array(values[c], batch) for c in TANK_CAPACITORS if _present(values, c))
+    C_s = _tank_capacitance(values, batch, _array)
     if _present(values, "C_x1"):
         return crystal_frequency(
             _array(values["L_x1"], batch), _array(values["C_x1"], batch),
@@ -298,7 +338,9 @@ def stack_values(designs: Sequence[Design]) -> dict[str, np.ndarray | float | No
     out: dict[str, np.ndarray | float | None] = {}
     for name in rows[0]:
         column = [r[name] for r in rows]
-        if all(v is None for v in column):
+        if isinstance(column[0], str):  # a choice the structure fixes (the varactor's place)
+            out[name] = column[0]
+        elif all(v is None for v in column):
             out[name] = None
         elif name in OPTIONAL_PARTS:
             out[name] = np.array([np.inf if v is None else v for v in column], dtype=float)

@@ -254,8 +254,7 @@ def _trajectory(stepper: _Stepper, x0: np.ndarray, hs, N: int | None = None, sub
         v_prev, v = v, v_new
         xs.append(x)
         qs.append(ph)
-    q = np.array(qs)
-    return np.array(xs), q[:, :2], q[:, 4:8].reshape(-1, 2, 2)
+    return np.array(xs), *stepper.unpack(np.array(qs))
 
 
 def _split_step(stepper: _Stepper, h: float, x: np.ndarray, v: tuple, ph: tuple, levels: int):
@@ -290,7 +289,7 @@ def _linearisation(stepper: _Stepper, hs: np.ndarray, X: np.ndarray, J: np.ndarr
     M = np.stack([sm.M for sm in mats])[which]
     D = np.stack([sm.Ainv @ (2.0 * d.C / h**2) for sm, h in zip(mats, sizes, strict=True)])[which]
     E = B - K @ (J[:-1] @ Wt)  # B − K J_k Wᵀ
-    Q = np.linalg.solve(np.eye(2)[None] + J[1:] @ M, J[1:])  # (I + J M)⁻¹ J
+    Q = np.linalg.solve(np.eye(J.shape[-1])[None] + J[1:] @ M, J[1:])  # (I + J M)⁻¹ J
     S = E - K @ (Q @ (Wt @ E))
     v = np.einsum("kij,kj->ki", D, X[1:] - X[:-1]) * hs[:, None]
     g = v - np.einsum("kij,kj->ki", K, np.einsum("kij,kj->ki", Q, v @ Wt.T))

@@ -45,7 +45,9 @@ import numpy as np
 
 from ringwise.analysis import runlines
 from ringwise.analysis.operating import Solved, solve
+from ringwise.circuit import varactor as junction_law
 from ringwise.circuit.mna import LinearSystem, incidence, with_junction_capacitances
+from ringwise.circuit.netlist import Varactor
 from ringwise.circuit.npn import junction_currents
 from ringwise.circuit.topologies import T1
 from ringwise.design import Design, Topology
@@ -126,7 +128,8 @@ def transient_system(solved: Solved) -> tuple[LinearSystem, np.ndarray]:
     f = solved.f_osc or solved.tank.f_ideal
     # A coil current i gives a tank voltage of about i·ω·L.
     x0[system.layout.branch["L"]] += KICK_VOLTS / (2.0 * math.pi * f * solved.netlist["L"].L)
-    return LinearSystem(system.layout, system.G, C, system.b, system.devices), x0
+    varactors = tuple(solved.netlist.of_kind(Varactor))
+    return LinearSystem(system.layout, system.G, C, system.b, system.devices, varactors), x0
 
 
 def bias_time_constant(design: Design) -> float:
@@ -168,10 +171,32 @@ class Dynamics:
     P: np.ndarray
     W: np.ndarray
     phi: Callable[[float, float], tuple]
+    #: Further one-control nonlinearities (a varactor's charge law), P's and W's
+    #: columns 2, 3, …: each maps its control u to (value, slope); ``extra_scale``
+    #: is each control's size per volt (1 for a varactor's charge in volts).
+    extra: tuple[Callable[[float], tuple[float, float]], ...] = ()
+    extra_scale: tuple[float, ...] = ()
+
+
+def varactor_remainder(el: Varactor) -> Callable[[float], tuple[float, float]]:
+    """The varactor's nonlinearity in its branch row as a function of its charge in
+    volts u = q/C_b (C_b = C(V_bias)): V(C_b·u) − V_bias − u + q(V_bias)/C_b, and
+    its slope C_b/C(V) − 1 (the linear stamps hold the rest, so it is zero with
+    zero slope at the bias)."""
+    args = (el.C_j0, el.phi, el.m)
+    C_b, V_b = el.C_bias, el.V_bias
+    u_b = float(junction_law.charge(V_b, *args)) / C_b
+
+    def f(u: float) -> tuple[float, float]:
+        V = junction_law.voltage(C_b * u, *args)
+        return V - V_b - (u - u_b), C_b / junction_law.capacitance_at(V, *args) - 1.0
+
+    return f
 
 
 def circuit_dynamics(system: LinearSystem) -> Dynamics:
-    """The transistor circuit as :class:`Dynamics`: φ = (I_C, I_B) of (v_BE, v_CE)."""
+    """The transistor circuit as :class:`Dynamics`: φ = (I_C, I_B) of (v_BE, v_CE),
+    and each varactor's charge law in its branch row (control: its charge)."""
     lay = system.layout
     dev = system.devices[0]
     missing = {dev.c, dev.b, dev.e} - set(lay.node)
@@ -186,7 +211,18 @@ def circuit_dynamics(system: LinearSystem) -> Dynamics:
     # the device enters as P·φ(Wᵀx): the same incidence as every other
     # analysis (mna.device_currents), reduced here to its two controls
     inc = incidence(lay, dev)
-    return Dynamics(system.C, system.G, system.b, inc.P, inc.W, phi)
+    P, W = inc.P, inc.W
+    if not system.varactors:
+        return Dynamics(system.C, system.G, system.b, P, W, phi)
+    # the row reads … − V(q) = offset: the remainder enters with −1 in the varactor's row
+    rows = np.zeros((lay.size, len(system.varactors)))
+    for j, el in enumerate(system.varactors):
+        rows[lay.branch[el.name], j] = 1.0
+    return Dynamics(
+        system.C, system.G, system.b, np.column_stack((P, -rows)), np.column_stack((W, rows)),
+        phi, tuple(varactor_remainder(el) for el in system.varactors),
+        tuple(1.0 for _el in system.varactors),
+    )  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -229,11 +265,33 @@ class _Stepper:
         self.phi = dyn.phi
         self.Wt = np.ascontiguousarray(dyn.W.T)
         self._cache: dict[float, tuple] = {}
+        self.extra = dyn.extra
+        if self.extra:
+            self.phi = self._phi_all
 
-    def controls(self, x: np.ndarray) -> tuple[float, float]:
-        """The two controlling voltages (v_BE, v_CE) of state x."""
+    def controls(self, x: np.ndarray) -> tuple:
+        """The controls of state x: (v_BE, v_CE), then each further nonlinearity's."""
         v = (self.Wt @ x).tolist()
-        return v[0], v[1]
+        return tuple(v) if self.extra else (v[0], v[1])
+
+    def _phi_all(self, *v: float) -> tuple:
+        """The transistor's tuple, then (value, slope) of each further nonlinearity."""
+        out = list(self.dyn.phi(v[0], v[1]))
+        for f, u in zip(self.extra, v[2:], strict=True):
+            out += f(u)
+        return tuple(out)
+
+    def unpack(self, qs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Device tuples along a trajectory (rows) as currents (…, k) and Jacobians (…, k, k)."""
+        J2 = qs[:, 4:8].reshape(-1, 2, 2)
+        if not self.extra:
+            return qs[:, :2], J2
+        k = 2 + len(self.extra)
+        J = np.zeros((len(qs), k, k))
+        J[:, :2, :2] = J2
+        idx = np.arange(2, k)
+        J[:, idx, idx] = qs[:, 9::2]
+        return np.column_stack((qs[:, :2], qs[:, 8::2])), J
 
     def step_matrices(self, h: float) -> StepMatrices:
         d = self.dyn
@@ -250,6 +308,8 @@ class _Stepper:
 
     def step(self, h: float, x: np.ndarray, v: tuple, v_prev: tuple, ph: tuple):
         """One step from state x (controls v, previous controls v_prev, device state ph)."""
+        if self.extra:
+            return self._step_extended(h, x, v, v_prev, ph)
         B, c, K0, K1, m00, m01, m10, m11 = self.matrices(h)
         y = B @ x + c
         wy = (self.Wt @ y).tolist()
@@ -268,6 +328,104 @@ class _Stepper:
         q = self.phi(vbe, vce)
         x_new = y - K0 * (ic_n + q[0]) - K1 * (ib_n + q[1])
         return x_new, (vbe, vce), q
+
+    def _extended_matrices(self, h: float) -> StepMatrices:
+        key = ("extended", h)
+        if key not in self._cache:
+            self._cache[key] = self.step_matrices(h)
+        return self._cache[key]
+
+    def _currents(self, ph: tuple) -> np.ndarray:
+        return np.array((ph[0], ph[1], *ph[8::2]))
+
+    def _step_extended(self, h: float, x: np.ndarray, v: tuple, v_prev: tuple, ph: tuple):
+        """:meth:`step` with further nonlinearities: Newton on all k controls (a k×k solve)."""
+        sm = self._extended_matrices(h)
+        y = sm.B @ x + sm.c
+        i_n = self._currents(ph)
+        a = self.Wt @ y - sm.M @ i_n
+        v_now = np.array(v)
+        solve = self._newton_three if len(v) == 3 else self._newton_extended
+        for start in (2.0 * v_now - np.array(v_prev), v_now):
+            found = solve(start, a, sm.M)
+            if found is not None:
+                break
+        else:
+            return None
+        q = self.phi(*found)
+        x_new = y - sm.K @ (i_n + self._currents(q))
+        return x_new, found, q
+
+    def _newton_three(self, v: np.ndarray, a: np.ndarray, M: np.ndarray) -> tuple | None:
+        """:meth:`_newton_extended` for three controls (one varactor), in plain floats."""
+        v0, v1, v2 = v.tolist()
+        a0, a1, a2 = a.tolist()
+        (m00, m01, m02), (m10, m11, m12), (m20, m21, m22) = M.tolist()
+        phi, f = self.dyn.phi, self.extra[0]
+        clamp, tol = NEWTON_CLAMP, NEWTON_TOL
+        for _ in range(NEWTON_MAX):
+            q = phi(v0, v1)
+            u, s = f(v2)
+            c0, c1 = q[0], q[1]
+            g0 = v0 + m00 * c0 + m01 * c1 + m02 * u - a0
+            g1 = v1 + m10 * c0 + m11 * c1 + m12 * u - a1
+            g2 = v2 + m20 * c0 + m21 * c1 + m22 * u - a2
+            # I + M·Jφ, Jφ = [[q4, q5, 0], [q6, q7, 0], [0, 0, s]]
+            j00 = 1.0 + m00 * q[4] + m01 * q[6]
+            j01 = m00 * q[5] + m01 * q[7]
+            j02 = m02 * s
+            j10 = m10 * q[4] + m11 * q[6]
+            j11 = 1.0 + m10 * q[5] + m11 * q[7]
+            j12 = m12 * s
+            j20 = m20 * q[4] + m21 * q[6]
+            j21 = m20 * q[5] + m21 * q[7]
+            j22 = 1.0 + m22 * s
+            k0 = j11 * j22 - j12 * j21
+            k1 = j12 * j20 - j10 * j22
+            k2 = j10 * j21 - j11 * j20
+            det = j00 * k0 + j01 * k1 + j02 * k2
+            if det == 0.0 or det != det:
+                return None
+            d0 = (g0 * k0 + j01 * (j12 * g2 - g1 * j22) + j02 * (g1 * j21 - j11 * g2)) / det
+            d1 = (j00 * (g1 * j22 - j12 * g2) + g0 * k1 + j02 * (j10 * g2 - g1 * j20)) / det
+            d2 = (j00 * (j11 * g2 - g1 * j21) + j01 * (g1 * j20 - j10 * g2) + g0 * k2) / det
+            if d0 != d0 or d1 != d1 or d2 != d2:
+                return None
+            d0 = max(-clamp, min(clamp, d0))
+            d1 = max(-clamp, min(clamp, d1))
+            d2 = max(-clamp, min(clamp, d2))
+            v0, v1, v2 = v0 - d0, v1 - d1, v2 - d2
+            if -tol < d0 < tol and -tol < d1 < tol and -tol < d2 < tol:
+                return v0, v1, v2
+        return None
+
+    def _newton_extended(self, v: np.ndarray, a: np.ndarray, M: np.ndarray) -> tuple | None:
+        """Solve v + M·φ(v) = a on every control; ``None`` if it does not converge.
+
+        The transistor's controls are clamped as in :meth:`_newton`; a further
+        control (a charge) to NEWTON_CLAMP volts' worth of its scale."""
+        k = len(v)
+        scale = np.array((1.0, 1.0, *self.dyn.extra_scale))
+        clamp, tol = NEWTON_CLAMP * scale, NEWTON_TOL * scale
+        eye = np.eye(k)
+        for _ in range(NEWTON_MAX):
+            q = self.phi(*v.tolist())
+            cur = self._currents(q)
+            Jphi = np.zeros((k, k))
+            Jphi[:2, :2] = ((q[4], q[5]), (q[6], q[7]))
+            Jphi[range(2, k), range(2, k)] = q[9::2]
+            g = v + M @ cur - a
+            try:
+                d = np.linalg.solve(eye + M @ Jphi, g)
+            except np.linalg.LinAlgError:
+                return None
+            if not np.all(np.isfinite(d)):
+                return None
+            d = np.clip(d, -clamp, clamp)
+            v = v - d
+            if np.all(np.abs(d) < tol):
+                return tuple(v.tolist())
+        return None
 
     def _newton(self, vbe, vce, a0, a1, m00, m01, m10, m11) -> tuple[float, float] | None:
         """Solve v + M·φ(v) = a for the two controls; ``None`` if it does not converge."""

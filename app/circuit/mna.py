@@ -38,6 +38,7 @@ from ringwise.circuit.netlist import (
     Netlist,
     NPNParams,
     Resistor,
+    Varactor,
 )
 from ringwise.circuit.npn import (
     HybridPi,
@@ -76,7 +77,7 @@ def layout_of(netlist: Netlist) -> Layout:
     node = {name: i for i, name in enumerate(netlist.nodes)}
     branch: dict[str, int] = {}
     for element in netlist:
-        if isinstance(element, Inductor | DCSupply):
+        if isinstance(element, Inductor | DCSupply | Varactor):
             branch[element.name] = len(node) + len(branch)
     return Layout(node=node, branch=branch, size=len(node) + len(branch))
 
@@ -103,6 +104,22 @@ class LinearSystem:
     C: np.ndarray
     b: np.ndarray
     devices: tuple[NPN, ...]
+    #: the varactors, whose charge law the transient and the steady state add
+    varactors: tuple[Varactor, ...] = ()
+
+
+def _stamp_varactor(G: np.ndarray, C: np.ndarray, b: np.ndarray, lay: Layout, el: Varactor) -> None:
+    """Row k: v_a − v_b − u − R_s·C_b·u̇ = offset (:class:`Varactor`, u = q/C_b in volts);
+    the current C_b·u̇ leaves a and enters b."""
+    k = lay.branch[el.name]
+    for node, sign in ((el.a, 1.0), (el.b, -1.0)):
+        i = lay.node.get(node)
+        if i is not None:
+            C[i, k] += sign * el.C_bias
+            G[k, i] += sign
+    G[k, k] -= 1.0
+    C[k, k] -= el.R_s * el.C_bias
+    b[k] += el.offset
 
 
 def assemble(netlist: Netlist) -> LinearSystem:
@@ -115,6 +132,7 @@ def assemble(netlist: Netlist) -> LinearSystem:
     for i in lay.node.values():
         G[i, i] += G_MIN
     devices: list[NPN] = []
+    varactors: list[Varactor] = []
     for el in netlist:
         if isinstance(el, Resistor):
             if np.isfinite(el.R):
@@ -138,9 +156,12 @@ def assemble(netlist: Netlist) -> LinearSystem:
             b[k] = el.V
         elif isinstance(el, NPN):
             devices.append(el)
+        elif isinstance(el, Varactor):
+            _stamp_varactor(G, C, b, lay, el)
+            varactors.append(el)
         else:  # pragma: no cover - the Element union is closed
             raise TypeError(f"unknown element {el!r}")
-    return LinearSystem(lay, G, C, b, tuple(devices))
+    return LinearSystem(lay, G, C, b, tuple(devices), tuple(varactors))
 
 
 def _stamp_linear(G: np.ndarray, C: np.ndarray, lay: Layout, el, sign: float) -> None:
@@ -154,6 +175,13 @@ def _stamp_linear(G: np.ndarray, C: np.ndarray, lay: Layout, el, sign: float) ->
         k = lay.branch[el.name]
         G[k, k] -= sign * el.R_s
         C[k, k] -= sign * el.L
+    elif isinstance(el, Varactor):
+        k = lay.branch[el.name]
+        for node, pin in ((el.a, 1.0), (el.b, -1.0)):
+            i = lay.node.get(node)
+            if i is not None:
+                C[i, k] += sign * pin * el.C_bias
+        C[k, k] -= sign * el.R_s * el.C_bias
     else:
         raise TypeError(f"{el.name} is not a linear two-terminal element")
 
@@ -171,7 +199,7 @@ def restamp(
         el = old[name]
         _stamp_linear(G, C, system.layout, el, -1.0)
         _stamp_linear(G, C, system.layout, dataclasses.replace(el, **fields), +1.0)
-    return LinearSystem(system.layout, G, C, system.b, system.devices)
+    return LinearSystem(system.layout, G, C, system.b, system.devices, system.varactors)
 
 
 def restamp_batch(
@@ -485,6 +513,8 @@ def linear_patterns(netlist: Netlist) -> Patterns:
             zeroed.append(dataclasses.replace(el, L=0.0, R_s=0.0))
         elif isinstance(el, DCSupply):
             zeroed.append(dataclasses.replace(el, V=0.0))
+        elif isinstance(el, Varactor):
+            zeroed.append(dataclasses.replace(el, C_j0=0.0, R_s=0.0))
         else:
             zeroed.append(el)
     base = assemble(Netlist(tuple(zeroed)))
@@ -504,6 +534,16 @@ def linear_patterns(netlist: Netlist) -> Patterns:
             Mr, Ml = np.zeros((n, n)), np.zeros((n, n))
             Mr[k, k], Ml[k, k] = -1.0, -1.0
             terms += [(el.name, "R_s", "G", Mr), (el.name, "L", "C", Ml)]
+        elif isinstance(el, Varactor):
+            k = lay.branch[el.name]
+            Mc, Mr = np.zeros((n, n)), np.zeros((n, n))
+            for node, pin in ((el.a, 1.0), (el.b, -1.0)):
+                if node in lay.node:
+                    Mc[lay.node[node], k] = pin
+            Mr[k, k] = -1.0
+            v = np.zeros(n)
+            v[k] = 1.0
+            terms += [(el.name, "C_b", "C", Mc), (el.name, "RC", "C", Mr), (el.name, "V0", "b", v)]
         elif isinstance(el, DCSupply):
             v = np.zeros(n)
             v[lay.branch[el.name]] = 1.0

@@ -1,8 +1,9 @@
 """The netlist: the one description of a circuit that every analysis reads.
 
-Five element kinds are enough for a discrete Colpitts-family oscillator:
-resistor, capacitor, inductor with series loss, an ideal DC supply and an NPN
-transistor.  Nodes are named by strings; ``GROUND`` is the reference node.
+Six element kinds are enough for a discrete Colpitts-family oscillator:
+resistor, capacitor, inductor with series loss, an ideal DC supply, an NPN
+transistor and a varactor (a junction capacitance with its series loss).
+Nodes are named by strings; ``GROUND`` is the reference node.
 Elements are immutable; :meth:`Netlist.replace` makes a modified copy, which
 is how analyses ask "what if this part were ideal".
 """
@@ -96,7 +97,50 @@ class NPN:
     params: NPNParams
 
 
-Element = Resistor | Capacitor | Inductor | DCSupply | NPN
+@dataclass(frozen=True, slots=True)
+class Varactor:
+    r"""A reverse-biased junction capacitance from cathode ``a`` to anode ``b`` with
+    its series resistance ``R_s`` (Ω): C(V) = C_j0/(1 + V/φ)^m
+    (:mod:`ringwise.circuit.varactor`), V = v_a − v_b the reverse voltage.
+
+    Its charge is an unknown of the nodal equations, in volts: u = q/C_b with
+    C_b = C(V_bias) the capacitance at the operating point's reverse voltage
+    ``V_bias`` (V).  The branch row reads
+
+    .. math:: v_a - v_b - u - R_s C_b\,\dot u = V_{bias} - q(V_{bias})/C_b
+
+    and the current C_b·u̇ = dq/dt leaves ``a``: open at DC (with the true
+    charge at the bias), the capacitance C_b in series with R_s for small
+    signals; the transient and the steady state add V(q) − V_bias −
+    (q − q(V_bias))/C_b to the row as a nonlinearity, so the trapezoidal
+    stepper carries the charge itself and conserves it.
+    """
+
+    name: str
+    a: str
+    b: str
+    C_j0: float
+    phi: float
+    m: float
+    V_bias: float
+    R_s: float = 0.0
+
+    @property
+    def C_bias(self) -> float:
+        """C(V_bias), F (0 for an element stamped as zero, C_j0 = 0)."""
+        return self.C_j0 / (1.0 + self.V_bias / self.phi) ** self.m
+
+    @property
+    def offset(self) -> float:
+        """V_bias − q(V_bias)/C(V_bias), V: the branch row's source term."""
+        from ringwise.circuit.varactor import charge
+
+        if self.C_j0 == 0.0:
+            return 0.0
+        return self.V_bias - charge(self.V_bias, self.C_j0, self.phi, self.m) / self.C_bias
+
+
+Element = Resistor | Capacitor | Inductor | DCSupply | NPN | Varactor
 
 
 @dataclass(frozen=True)

@@ -53,8 +53,10 @@ from ringwise.circuit.netlist import (
     Netlist,
     NPNParams,
     Resistor,
+    Varactor,
 )
 from ringwise.circuit.npn import BETA_REVERSE, saturation_current, thermal_voltage
+from ringwise.circuit.varactor import capacitance as junction_capacitance
 from ringwise.design import Design, Topology
 from ringwise.units import format_si
 
@@ -65,6 +67,10 @@ T1, T2, TL = "t1", "t2", "tl"
 #: The crystal's inner node (between its motional inductance and capacitance),
 #: and the netlist names of its motional and shunt capacitances.
 TX, CRYSTAL_C1, CRYSTAL_C0 = "tx", "C_x1", "C_x0"
+#: The varactor: its netlist name, its cathode node (fed the tuning voltage), the
+#: tuning supply and its node, the feed resistor and the coupling capacitor.
+VARACTOR, VD, TUNE_SUPPLY, VTUNE = "D_v", "vd", "Vtune", "vtune"
+VARACTOR_FEED, VARACTOR_COUPLING = "R_tune", "C_v"
 #: Capacitances of the netlist that are no capacitor part with a voltage rating:
 #: the crystal's model, the choke's self-capacitance, a buffer's input.
 UNRATED_CAPACITANCES: Final = (CRYSTAL_C1, CRYSTAL_C0, "Cch", "C_load")
@@ -120,9 +126,39 @@ def crystal_frequency(L1, C1, C0, C_L):
     return 1.0 / (2.0 * np.pi * np.sqrt(L1 * C1 * (C0 + C_L) / (C1 + C0 + C_L)))
 
 
+def varactor_branch(C_v, C_j0, phi, m, V):
+    """The varactor branch's capacitance at the reverse bias V, F: C_v in series
+    with C(V) (floats or arrays)."""
+    C_d = junction_capacitance(V, C_j0, phi, m)
+    return C_v * C_d / (C_v + C_d)
+
+
+def tank_capacitance(C1, C2, C3, C_branch=None, place: str = "across-L"):
+    r"""The capacitance the coil resonates with, F (floats or arrays; C3, C_branch may be None).
+
+    Without a varactor the series combination of C1, C2 and C3.  A varactor
+    branch C_b across the coil adds to it (the coil's ideal resonance is
+    :math:`1/\sqrt{L(C_s + C_b)}`); across the Clapp position it adds to C3.
+    """
+    if C_branch is None:
+        return series(C1, C2, C3)
+    if place == "clapp":
+        return series(C1, C2, C_branch if C3 is None else C3 + C_branch)
+    return series(C1, C2, C3) + C_branch
+
+
+def design_tank_capacitance(design: Design) -> float:
+    """:func:`tank_capacitance` of ``design`` at its tuning voltage, F."""
+    t, v = design.tank, design.varactor
+    if v is None:
+        return series(t.C1, t.C2, t.C3)
+    C_b = float(varactor_branch(v.C_v, v.C_j0, v.phi_j, v.m_j, v.V_tune))
+    return float(tank_capacitance(t.C1, t.C2, t.C3, C_b, v.place))
+
+
 def tank_figures(design: Design) -> TankFigures:
     t = design.tank
-    C_s = series(t.C1, t.C2, t.C3)
+    C_s = design_tank_capacitance(design)
     x = design.crystal
     if x is not None:
         # the crystal's load capacitance is the capacitors' series combination
@@ -156,7 +192,7 @@ def choke_figures(design: Design) -> ChokeFigures | None:
     b = design.bias
     assert b.L_ch is not None and b.Q_ch is not None
     t = design.tank
-    R_p = choke_loss(b.L_ch, b.Q_ch, t.L, series(t.C1, t.C2, t.C3))
+    R_p = choke_loss(b.L_ch, b.Q_ch, t.L, design_tank_capacitance(design))
     C_self = 0.0 if b.f_ch is None else choke_self_capacitance(b.L_ch, b.f_ch)
     return ChokeFigures(R_p=float(R_p), C_self=float(C_self))
 
@@ -297,7 +333,9 @@ def build(design: Design) -> Netlist:
         Capacitor("Cc1", *cc1, k.Cc1),
         Capacitor("Cc2", *cc2, k.Cc2),
     ]
-    end = lc[1] if t.C3 is None else TL
+    v = design.varactor
+    clapp_varactor = v is not None and v.place == "clapp"
+    end = lc[1] if t.C3 is None and not clapp_varactor else TL
     if design.crystal is None:
         tank.append(Inductor("L", lc[0], end, t.L, R_s))
     else:
@@ -310,6 +348,15 @@ def build(design: Design) -> Netlist:
         ]
     if t.C3 is not None:
         tank.append(Capacitor("C3", TL, lc[1], t.C3))
+    if v is not None:
+        # cathode fed from the tuning supply through R_tune, anode on the tank (0 V DC)
+        hot, anode = (TL, lc[1]) if clapp_varactor else (lc[0], end)
+        tank += [
+            DCSupply(TUNE_SUPPLY, VTUNE, v.V_tune),
+            Resistor(VARACTOR_FEED, VTUNE, VD, v.R_tune),
+            Capacitor(VARACTOR_COUPLING, hot, VD, v.C_v),
+            Varactor(VARACTOR, VD, anode, v.C_j0, v.phi_j, v.m_j, v.V_tune, v.R_v),
+        ]
     if design.load.R_load is not None:
         tank.append(Resistor("R_load", T1, GROUND, design.load.R_load))
     if design.load.C_load is not None:

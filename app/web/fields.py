@@ -34,7 +34,7 @@ from ringwise.design import (
 )
 from ringwise.display import format_value
 from ringwise.errors import describe_validation_error
-from ringwise.presets import DEVICE_PRESET_LABELS, DEVICE_PRESETS
+from ringwise.presets import DEVICE_PRESET_LABELS, DEVICE_PRESETS, VARACTOR_PRESET_LABELS
 from ringwise.units import format_si
 
 
@@ -105,6 +105,7 @@ GROUPS: Final = (
     ("transistor", "Transistor"),
     ("load", "Coupling and load"),
     ("crystal", "Crystal in place of the coil (all blank: the coil)"),
+    ("varactor", "Varactor tuning (all blank: a fixed tank)"),
     ("conditions", "Conditions"),
     ("tolerances", "Tolerances and temperature range (for the spread)"),
 )
@@ -187,6 +188,28 @@ FIELDS: Final[tuple[FormField, ...]] = (
     FormField("C_x1", "crystal", "C₁, motional capacitance", "F"),
     FormField("C_x0", "crystal", "C₀, shunt capacitance", "F"),
     FormField("P_xmax", "crystal", "Drive-level rating (blank: not checked)", "W"),
+    FormField(
+        "v_preset",
+        "varactor",
+        "Diode class (fills the blank values; typical, from memory)",
+        kind="choice",
+        doc_section="varactor",
+        doc_key="preset",
+    ),
+    FormField("V_tune", "varactor", "V_tune, tuning voltage (reverse bias)", "V", slider=True),
+    FormField("C_v", "varactor", "C_v, coupling capacitor in series with the diode", "F"),
+    FormField("C_j0", "varactor", "C_j0, junction capacitance at 0 V", "F"),
+    FormField("phi_j", "varactor", "φ, built-in potential (blank: default)", "V"),
+    FormField("m_j", "varactor", "m, grading coefficient (blank: default)", ""),
+    FormField("R_v", "varactor", "R_s, diode's series resistance (blank: default)", "Ω"),
+    FormField("R_tune", "varactor", "R_tune, tuning-voltage feed (blank: default)", "Ω"),
+    FormField(
+        "V_min", "varactor", "Tuning range, lowest (blank: default)", "V", doc_section="varactor"
+    ),
+    FormField(
+        "V_max", "varactor", "Tuning range, highest (blank: default)", "V", doc_section="varactor"
+    ),
+    FormField("place", "varactor", "Placed", kind="choice", doc_section="varactor"),
     FormField("Vcc", "conditions", "Vcc, supply", "V"),
     FormField("temperature_C", "conditions", "Temperature", "°C"),
     FormField("V_cap", "conditions", "Capacitor voltage rating (blank: default)", "V"),
@@ -254,6 +277,11 @@ FEED_LABELS: Final = {
     "choke": "an RF choke (L_ch, Q_ch)",
 }
 
+PLACE_LABELS: Final = {
+    "across-L": "across the coil",
+    "clapp": "across the Clapp position (in series with L)",
+}
+
 
 def _model_of(annotation: Any) -> type[BaseModel] | None:
     """The section model of a design field's annotation (``Crystal | None`` → Crystal)."""
@@ -306,6 +334,10 @@ def choices(field: FormField) -> list[tuple[str, str]]:
         return [("", "custom values"), *DEVICE_PRESET_LABELS.items()]
     if field.name == "feed":
         return list(FEED_LABELS.items())
+    if field.name == "v_preset":
+        return [("", "custom values"), *VARACTOR_PRESET_LABELS.items()]
+    if field.name == "place":
+        return list(PLACE_LABELS.items())
     if field.doc_sub == "dielectric":
         default = DEFAULT_DIELECTRIC[field.key]
         return [("", f"default ({default})"), *DIELECTRICS.items()]
@@ -376,7 +408,8 @@ def check_field(field: FormField, text: str) -> FieldState:
             return FieldState(text, None, "", str(err))
         return FieldState(text, text or None, text or "none", None)
     if text.strip() == "" and field.kind == "choice" and field.optional:
-        return FieldState(text, None, f"default {field.default}", None)
+        shown = "none" if field.nullable else f"default {field.default}"
+        return FieldState(text, None, shown, None)
     if text.strip() == "" and field.kind == "quantity":
         if field.nullable:
             shown = "none"
