@@ -13,6 +13,7 @@ from ringwise.figures import axes
 from ringwise.figures.style import (
     ACCENT,
     BLUE,
+    CHAR_PX,
     GREEN,
     INK,
     MUTED,
@@ -44,6 +45,13 @@ NOISE_OFFSETS_HZ: Final = (10.0, 1e7)
 LOG_PAD: Final = 1.25
 #: Headroom of a linear curve, as a fraction of its span.
 LINEAR_PAD: Final = 0.05
+#: The narrowest the budget chart's plotting area gets, px (a 1920 px screen puts it
+#: in a pair of plots, about 340 px beside its labels; the printed summary's is wider):
+#: every bar's value text must fit beside its bar in it.
+BUDGET_MIN_AREA_PX: Final = 300
+#: Room between a bar's end and its text, and inside a bar round its text, px (the
+#: text's own width is estimated as for tick labels, style.CHAR_PX a character).
+BAR_TEXT_PAD_PX: Final = 10
 
 
 def _log_range(*series: Any, include: tuple[float, ...] = ()) -> tuple[float, float]:
@@ -190,12 +198,54 @@ def reactance_spec(r: dict[str, Any]) -> dict[str, Any]:
     )
 
 
+def bar_text_places(costs: list[float], texts: list[str]) -> tuple[float, float, list[bool]]:
+    """The cost axis's range that leaves room for each bar's value text, and which texts
+    are written beside zero rather than by Plotly on their bar.
+
+    A text goes inside its bar when it fits there even in the narrowest plotting area
+    (:data:`BUDGET_MIN_AREA_PX`); otherwise beside the bar: right of a positive bar's
+    end, and for a negative bar right of zero (left of it are the labels), and the
+    range reaches far enough for it.  With ``S`` the range's span and ``a`` a text's
+    width as a fraction of the area, the span solves ``S = max(end + a·S) − min(c)``
+    over the texts outside; fixed-point iteration finds it (it converges, each width
+    being well under the area).  Returns ``(lo, hi, beside_zero)``.
+    """
+    widths = [(len(t) * CHAR_PX + BAR_TEXT_PAD_PX) / BUDGET_MIN_AREA_PX for t in texts]
+    lo, hi = min([0.0, *costs]), max([0.0, *costs])
+    span = (hi - lo) or 1.0
+    for _ in range(50):
+        outside = [abs(c) < a * span for c, a in zip(costs, widths, strict=True)]
+        ends = [max(c, 0.0) + a * span for c, a, o in zip(costs, widths, outside, strict=True) if o]
+        hi = max([0.0, *costs, *ends])
+        if abs((hi - lo) - span) <= 1e-9 * span:
+            break
+        span = hi - lo
+    beside_zero = [o and c < 0 for c, o in zip(costs, outside, strict=True)]
+    return lo, hi, beside_zero
+
+
 def budget_spec(b: dict[str, Any]) -> dict[str, Any]:
     """What each loss the hand formula ignores costs, dB, as horizontal bars (the core's
-    order: largest first, "the rest" last), each bar printing its value."""
+    order: largest first, "the rest" last), each bar printing its value inside the bar
+    or beside it, never over the labels or past the plot's edge (:func:`bar_text_places`)."""
     costs = b["cost_dB"]
-    lo = min([0.0, *costs])
-    hi = max([0.0, *costs])
+    labels = [wrap(label) for label in b["labels"]]
+    lo, hi, beside_zero = bar_text_places(costs, b["text"])
+    # a negative bar's text too long for it is written right of zero, as an annotation
+    notes = [
+        {
+            "x": 0.0,
+            "y": label,
+            "xref": "x",
+            "yref": "y",
+            "text": text,
+            "showarrow": False,
+            "xanchor": "left",
+            "xshift": BAR_TEXT_PAD_PX / 2,
+        }
+        for label, text, zero in zip(labels, b["text"], beside_zero, strict=True)
+        if zero
+    ]
     return fit_margins(
         {
             "data": [
@@ -203,11 +253,11 @@ def budget_spec(b: dict[str, Any]) -> dict[str, Any]:
                     "type": "bar",
                     "orientation": "h",
                     "x": costs,
-                    "y": [wrap(label) for label in b["labels"]],
+                    "y": labels,
                     "marker": {"color": [ACCENT if v >= 0 else GREEN for v in costs]},
                     "customdata": b["share"],
                     "text": b["text"],
-                    "textposition": "auto",
+                    "textposition": ["none" if zero else "auto" for zero in beside_zero],
                     "cliponaxis": False,
                     "hovertemplate": "%{y}: %{text} (%{customdata:.0%} of the gap)<extra></extra>",
                 }
@@ -215,10 +265,11 @@ def budget_spec(b: dict[str, Any]) -> dict[str, Any]:
             "layout": layout(
                 showlegend=False,
                 xaxis=titled(
-                    axes.linear_axis(lo, hi, "", NARROW_X_LABELS, pad=0.15),
+                    axes.linear_axis(lo, hi, "", NARROW_X_LABELS, pad=LINEAR_PAD),
                     "loop gain it costs (dB)",
                 ),
                 yaxis={"autorange": "reversed", "automargin": True, "type": "category"},
+                annotations=notes,
             ),
         }
     )

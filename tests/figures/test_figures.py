@@ -59,3 +59,29 @@ def test_the_sheet_gets_the_same_figures():
 def test_config_keeps_image_download():
     assert rf.CONFIG["toImageButtonOptions"]["format"] == "png"
     assert "toImage" not in rf.CONFIG["modeBarButtonsToRemove"]
+
+
+def test_budget_texts_have_room_beside_their_bars():
+    from ringwise.figures.sheet import BUDGET_MIN_AREA_PX, CHAR_PX, bar_text_places
+
+    # invented costs: one large loss and small ones, a negative "rest", a lone loss,
+    # equal losses (common practice, no source: a value is printed inside its bar or
+    # beside it, never over the category labels left of the plot)
+    cases = [
+        [3.69, 0.63, 0.02, -0.12],
+        [1.75, 0.14, 0.01],
+        [0.01],
+        [0.2, 0.2, 0.2],
+        [0.05, -0.3],
+    ]
+    for costs in cases:
+        texts = [f"{c:.2f} dB · {100 * c / 9.5:.1f} %" for c in costs]
+        lo, hi, beside_zero = bar_text_places(costs, texts)
+        assert lo == min(0.0, *costs)  # no room is taken left of the bars
+        px = BUDGET_MIN_AREA_PX / (hi - lo)  # px per dB in the narrowest plotting area
+        for c, t, zero in zip(costs, texts, beside_zero, strict=True):
+            width = len(t) * CHAR_PX
+            inside = abs(c) * px >= width
+            end = 0.0 if c < 0 else c
+            assert inside or (hi - end) * px >= width, (costs, c, t)
+            assert zero == (c < 0 and not inside), (costs, c)

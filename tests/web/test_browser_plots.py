@@ -65,3 +65,58 @@ def test_tick_labels_never_overlap(context, live_server, artifacts, width, desig
     if design == "clapp-clock-1M":
         page.screenshot(path=str(artifacts / f"sheet-{width}.png"), full_page=True)
     page.close()
+
+
+_BAR_TEXTS = """el => {
+  const box = (t) => {
+    const r = t.getBoundingClientRect();
+    return {text: t.textContent, x: r.left, y: r.top, w: r.width, h: r.height};
+  };
+  const shown = (sel) => [...el.querySelectorAll(sel)].filter((t) => t.textContent.trim());
+  const texts = shown('.bartext, .annotation-text').map(box);
+  const labels = shown('g.ytick text').map(box);
+  const o = el.getBoundingClientRect();
+  return {texts, labels, plot: {x: o.left, w: o.width}, bars: el.data[0].x.length};
+}"""
+
+
+@pytest.mark.parametrize(
+    "design",
+    [
+        "clapp-clock-1M",
+        "common-base-carrier-10M",
+        "crystal-clock-10M",
+        "follower-test-source-4M",
+        "proximity-exciter-150k",
+    ],
+)
+def test_budget_values_are_printed_whole(context, live_server, artifacts, design):
+    # every bar's value text inside the plot and clear of the category labels, at
+    # every width (a negative bar's text sits right of zero, not over its label)
+    page = context.new_page()
+    page.goto(f"{live_server}/?design={design}")
+    page.wait_for_selector(READY)
+    for width in WIDTHS:
+        page.set_viewport_size({"width": width, "height": 1000})
+        page.locator("#plot-budget").scroll_into_view_if_needed()
+        page.wait_for_selector("#plot-budget .main-svg")
+        page.wait_for_function(
+            "w => { const el = document.querySelector('#plot-budget');"
+            " return el._fullLayout && Math.abs(el._fullLayout.width - el.clientWidth) < 2; }",
+            arg=width,
+        )
+        got = page.eval_on_selector("#plot-budget", _BAR_TEXTS)
+        plot = got["plot"]
+        assert len(got["texts"]) == got["bars"], (design, width)
+        for t in got["texts"]:
+            assert plot["x"] - 1 <= t["x"] and t["x"] + t["w"] <= plot["x"] + plot["w"] + 1, (
+                design,
+                width,
+                t,
+            )
+            for label in got["labels"]:
+                assert _overlap(t, label) < 1.0, (design, width, t["text"], label["text"])
+        page.locator("#plot-budget").screenshot(
+            path=str(artifacts / f"budget-{design}-{width}.png")
+        )
+    page.close()
