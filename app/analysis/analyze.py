@@ -47,6 +47,7 @@ from ringwise.result import (
     TankOut,
     VerdictOut,
     WarningOut,
+    from_attributes,
 )
 
 #: Analyses remembered, keyed by the design's canonical JSON: the sheet asks
@@ -121,56 +122,42 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     return Result(
         name=design.name,
         topology=design.topology.value,
-        operating_point=OperatingPointOut(
-            VB=op.VB,
-            VE=op.VE,
-            VC=op.VC,
-            IC=op.IC,
-            IB=op.IB,
-            VCE=op.VCE,
-            VBE=op.VBE,
-            P_device=op.P_device,
-            I_divider=op.VB / design.bias.RB2,
-            region=op.region.value,
+        operating_point=from_attributes(
+            OperatingPointOut, op, I_divider=op.VB / design.bias.RB2, region=op.region.value
         ),
-        small_signal=SmallSignalOut(gm=hp.gm, r_pi=hp.r_pi, r_o=hp.r_o, C_pi=hp.C_pi, C_mu=hp.C_mu),
-        tank=TankOut(
-            C_series=s.tank.C_series,
-            f_ideal=s.tank.f_ideal,
-            feedback_ratio=s.tank.feedback_ratio,
-            R_s=s.tank.R_s,
-            output_node=OUTPUT_NODE_LABEL[design.topology],
-        ),
-        loop=LoopOut(
+        small_signal=from_attributes(SmallSignalOut, hp),
+        tank=from_attributes(TankOut, s.tank, output_node=OUTPUT_NODE_LABEL[design.topology]),
+        loop=from_attributes(
+            LoopOut,
+            s.loop,
             f_osc=f_osc,
             gain=gain,
             gain_ideal=hand.value,
             phase_slope=float(s.loop.phase_slope),
             Q_loaded=float(s.loop.Q_loaded),
             Z_out=float(s.loop.Z_out),
-            budget=[BudgetLineOut(**vars(line)) for line in budget],
+            budget=[from_attributes(BudgetLineOut, line) for line in budget],
             story=None
             if story is None
-            else GainStoryOut(
+            else from_attributes(
+                GainStoryOut,
+                story,
                 formula=hand.symbols,
                 numbers=hand.numbers,
                 hand=hand.value,
-                full=story.full,
-                gap_dB=story.gap_dB,
-                losses=[LossOut(**vars(loss)) for loss in story.losses],
+                losses=[from_attributes(LossOut, loss) for loss in story.losses],
             ),
         ),
-        poles=PolesOut(
+        poles=from_attributes(
+            PolesOut,
+            poles,
             sigma=dom.sigma if dom else None,
             f=dom.f if dom else None,
-            growth_time=poles.growth_time,
-            other_rhp=[PoleOut(sigma=p.sigma, f=p.f) for p in poles.other_rhp],
+            other_rhp=[from_attributes(PoleOut, p) for p in poles.other_rhp],
         ),
-        startup=StartupOut(
-            verdict=v.verdict,
-            label=v.label,
-            margin=v.margin,
-            margin_dB=v.margin_dB,
+        startup=from_attributes(
+            StartupOut,
+            v,
             threshold_param=threshold.param,
             threshold_value=threshold.value,
             threshold_RC=threshold.value if setter == "RC" else None,

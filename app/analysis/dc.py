@@ -185,9 +185,7 @@ def _fraction_one(v_old: float, step: float, VT: float, v_crit: float) -> float:
     return max((v_lim - v_old) / step, MIN_DAMPING)
 
 
-def _newton_one(
-    red: Reduced, params: NPNParams, v: np.ndarray, scale: float, i: int = 0
-) -> bool:
+def _newton_one(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, i: int = 0) -> bool:
     """:func:`_newton` for member ``i`` alone, in float arithmetic: the same iterates
     without array overhead (the pipeline's one scalar fast path, for small batches)."""
     IS, beta, beta_R, VA, VT = (
