@@ -156,7 +156,10 @@ class Varactor(_Part):
     )
     R_v: Ohms = Field(default=0.5, description="Series resistance of the diode, Ω")
     C_v: Farads = Field(description="Coupling capacitor in series with the diode, F")
-    R_tune: Ohms = Field(default=100e3, description="Resistor feeding the tuning voltage, Ω")
+    R_tune: Ohms = Field(
+        default=100e3,
+        description="Resistor feeding the tuning voltage, Ω (the anode's DC return has the same)",
+    )
     V_tune: Volts = Field(description="Tuning voltage (the diode's reverse bias) of this design, V")
     V_min: Volts = Field(default=1.0, description="Lowest tuning voltage of the range, V")
     V_max: Volts = Field(default=8.0, description="Highest tuning voltage of the range, V")

@@ -314,6 +314,49 @@ class CrystalOut(_Out):
     startup_time: Num = Field(description="ln(A_ss/1 µV)/σ from the growth rate, s")
 
 
+class TuningPointOut(_Out):
+    """The steady state at one tuning voltage, and the diode's swing against its bias."""
+
+    V_tune: Num = Field(description="Tuning voltage (the diode's reverse bias), V")
+    f_osc: Num = Field(description="Small-signal oscillation frequency, Hz")
+    gain: Num = Field(description="Loop gain |T(f_osc)|")
+    starts: bool
+    behaviour: str = Field(description="Steady-state behaviour (settles, squegs, …, no-orbit)")
+    f_steady: Num = Field(description="Frequency at full amplitude, Hz")
+    amp_out: Num = Field(description="Fundamental amplitude at the output node, V")
+    V_diode_min: Num = Field(description="Lowest reverse voltage of the junction on the orbit, V")
+    V_diode_max: Num = Field(description="Highest reverse voltage of the junction on the orbit, V")
+    V_rf_peak: Num = Field(description="Largest excursion of the junction voltage from the bias, V")
+    forward_biased: bool | None = Field(
+        description="The RF swing drives the junction forward (its reverse voltage below 0)"
+    )
+
+
+class TuningOut(_Out):
+    """A varactor-tuned tank across its tuning range (lists run over ``V``)."""
+
+    V: list[float] = Field(description="Tuning voltages, V")
+    f_osc: list[float | None] = Field(description="f_osc at each, Hz (null: no crossing)")
+    K: list[float | None] = Field(description="Tuning gain df_osc/dV at each, Hz/V")
+    gain: list[float] = Field(description="Loop gain at each")
+    starts: list[bool]
+    C_branch: list[float] = Field(description="Varactor branch (C_v in series with C(V)), F")
+    f_low: Num = Field(description="Lowest f_osc of the range, Hz")
+    f_high: Num = Field(description="Highest f_osc of the range, Hz")
+    tuning_ratio: Num = Field(description="f_high / f_low")
+    K_at_min: Num = Field(description="Tuning gain at V_min, Hz/V")
+    K_at_max: Num = Field(description="Tuning gain at V_max, Hz/V")
+    K_ratio: Num = Field(description="K(V_min)/K(V_max): how unevenly the range is spread")
+    starts_everywhere: bool = Field(description="It starts at every tuning voltage")
+    min_gain: Num = Field(description="Lowest loop gain across the range")
+    points: list[TuningPointOut] = Field(
+        description="Steady state at V_min, the middle and V_max (empty on the first answer)"
+    )
+    forward_biased: bool | None = Field(
+        description="The RF swing forward-biases the diode at one of those points"
+    )
+
+
 class Result(_Out):
     format: Literal["ringwise.result"] = "ringwise.result"
     version: Literal[1] = 1
@@ -335,6 +378,9 @@ class Result(_Out):
     )
     output: OutputOut | None = Field(
         default=None, description="Power, voltage and harmonics at the load (null: no load)"
+    )
+    tuning: TuningOut | None = Field(
+        default=None, description="Across the varactor's tuning range (null: no varactor)"
     )
     warnings: list[WarningOut]
 
@@ -403,6 +449,7 @@ class HistogramOut(_Out):
 class WorstCaseOut(_Out):
     sample: int
     T_C: Num
+    V_tune: Num = Field(default=None, description="Tuning voltage of the corner, V (a varactor)")
     gain: Num
     f_osc: Num
     parts: dict[str, float]
@@ -425,6 +472,16 @@ class TemperaturePointOut(_Out):
     p95: Num
 
 
+class CrystalCornerOut(_Out):
+    """The spread's worst corner for the crystal's negative-resistance margin."""
+
+    sample: int
+    T_C: Num
+    margin: Num = Field(description="|R_neg|/R₁ there")
+    R_neg: Num = Field(description="Negative resistance at the motional arm there, Ω")
+    parts: dict[str, float]
+
+
 class SpreadOut(_Out):
     samples: int
     seed: int
@@ -444,6 +501,20 @@ class SpreadOut(_Out):
         description="f_osc band (5/50/95 %) across the temperature range"
     )
     sensitivities: list[SensitivityOut] = Field(description="Ranked: what to tighten first")
+    tuning_voltages: list[float] | None = Field(
+        default=None,
+        description="With a varactor: the tuning voltages every temperature is solved at "
+        "(the yield asks it to start at every one), V",
+    )
+    crystal_margin_min: Num = Field(
+        default=None, description="With a crystal: lowest |R_neg|/R₁ over every corner"
+    )
+    crystal_margin_yield: Num = Field(
+        default=None, description="Fraction with |R_neg|/R₁ ≥ 5 at every corner (a crystal)"
+    )
+    crystal_worst: CrystalCornerOut | None = Field(
+        default=None, description="The corner with the lowest |R_neg|/R₁ (a crystal)"
+    )
 
 
 class SpreadResult(_Out):

@@ -20,6 +20,7 @@ from ringwise.analysis.startup import verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
 from ringwise.analysis.threshold import find_threshold
+from ringwise.analysis.tuning import tuning, tuning_checks
 from ringwise.analysis.verdict import combined_verdict
 from ringwise.circuit.topologies import OUTPUT_NODE_LABEL, T1, gain_setter, hand_formula
 from ringwise.design import Design
@@ -45,6 +46,8 @@ from ringwise.result import (
     StartupOut,
     SteadyStateOut,
     TankOut,
+    TuningOut,
+    TuningPointOut,
     VerdictOut,
     WarningOut,
     from_attributes,
@@ -118,6 +121,8 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     output = load_output(s, ss, near)
     crystal = crystal_figures(s, ss, poles)
     findings += crystal_checks(crystal)
+    tuned = tuning(design, large_signal)
+    findings += tuning_checks(tuned)
     story = gain_story(hand, s, budget, setter) if gain is not None else None
     return Result(
         name=design.name,
@@ -181,6 +186,11 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
         ),
         output=None if output is None else OutputOut(**vars(output)),
         crystal=None if crystal is None else CrystalOut(**vars(crystal)),
+        tuning=None
+        if tuned is None
+        else from_attributes(
+            TuningOut, tuned, points=[from_attributes(TuningPointOut, p) for p in tuned.points]
+        ),
         warnings=[WarningOut(code=f.code, message=f.message) for f in findings],
     )
 

@@ -48,10 +48,11 @@ import numpy as np
 from ringwise.analysis.checks import Finding
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.periodic import SteadyState
+from ringwise.analysis.pipeline import stamp_values, structure_of
 from ringwise.analysis.poles import PoleFigures
-from ringwise.circuit.mna import assemble, small_signal
+from ringwise.circuit.mna import assemble, assemble_batch, linear_patterns, small_signal
 from ringwise.circuit.netlist import Netlist
-from ringwise.circuit.topologies import CRYSTAL_C0, CRYSTAL_C1
+from ringwise.circuit.topologies import CRYSTAL_C0, CRYSTAL_C1, build
 from ringwise.units import format_si
 
 #: Amplitude the startup time is counted from, V: a noise-level start
@@ -159,3 +160,47 @@ def crystal_checks(c: CrystalFigures | None) -> list[Finding]:
             )
         )
     return out
+
+
+def _without_crystal(design) -> Netlist:
+    """The design's netlist with the crystal taken out (motional arm and C₀)."""
+    return Netlist(
+        tuple(el for el in build(design) if el.name not in ("L", CRYSTAL_C1, CRYSTAL_C0))
+    )
+
+
+_REST: dict[tuple, tuple] = {}
+
+
+def crystal_margins(design, values, sol) -> tuple[np.ndarray, np.ndarray]:
+    """|R_neg|/R₁ and R_neg (Ω) of every member of a pipeline batch, each at its own f_osc.
+
+    The same test current as :func:`presented_impedance`, for a whole batch:
+    the circuit without the crystal is assembled from its unit stamps with
+    the members' part values and linearised with their own hybrid-π
+    elements (``sol.hybrid``).  NaN where a member has no zero-phase
+    crossing; a margin of 0 where the circuit shows no negative resistance.
+    """
+    key = structure_of(design)
+    if key not in _REST:
+        rest = _without_crystal(design)
+        _REST[key] = (linear_patterns(rest), rest)
+    patterns, rest = _REST[key]
+    B = len(sol.loop.f_osc)
+    system = assemble_batch(patterns, stamp_values(patterns, values, B))
+    ss = small_signal(system, sol.hybrid)
+    lay = ss.layout
+    full = build(design)
+    arm, c0 = full["L"], full[CRYSTAL_C0]
+    rhs = (lay.unit(arm.a) - lay.unit(c0.b)).astype(complex)  # type: ignore[union-attr]
+    f = np.asarray(sol.loop.f_osc, dtype=float)
+    w = 2.0 * np.pi * np.where(np.isfinite(f), f, 1.0)
+    Y = ss.G_full + 1j * w[:, None, None] * ss.C
+    v = np.linalg.solve(Y, np.broadcast_to(rhs, (B, lay.size))[..., None])[..., 0]
+    Z = v @ rhs
+    C0 = np.asarray(values["C_x0"], dtype=float)
+    Z_arm = 1.0 / (1.0 / Z + 1j * w * C0)
+    R_neg = np.where(np.isfinite(f), Z_arm.real, np.nan)
+    R1 = np.asarray(values["R_x1"], dtype=float)
+    margin = np.where(R_neg < 0, -R_neg / R1, np.where(np.isfinite(R_neg), 0.0, np.nan))
+    return margin, R_neg

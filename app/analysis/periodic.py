@@ -227,12 +227,6 @@ def floating_groups(system: LinearSystem, x_dc: np.ndarray) -> np.ndarray:
     U = np.zeros((lay.size, len(groups)))
     for c, group in enumerate(groups):
         U[group, c] = 1.0
-    if system.varactors and groups:
-        # a varactor's charge moves with the group its anode floats in (its row holds
-        # v_a − v_b − q/C): the null vectors carry that part along with the nodes
-        fit = np.linalg.lstsq(null[nodes], U[nodes], rcond=None)[0]
-        others = np.setdiff1d(np.arange(lay.size), nodes)
-        U[others] = (null @ fit)[others]
     return U
 
 

@@ -54,6 +54,7 @@ from ringwise.circuit.topologies import (
     CHOKE_SELF_C,
     TUNE_SUPPLY,
     VARACTOR,
+    VARACTOR_RETURN,
     build,
     choke_loss,
     choke_self_capacitance,
@@ -142,6 +143,8 @@ def stamp_values(
             out[(name, fld)] = _varactor_stamp(values, fld, batch)
         elif name == TUNE_SUPPLY:
             out[(name, fld)] = _value(values["V_tune"], batch)
+        elif name == VARACTOR_RETURN:
+            out[(name, fld)] = 1.0 / _value(values["R_tune"], batch)
         elif name == CHOKE:
             out[(name, fld)] = _value(values["L_ch"], batch) if fld == "L" else 0.0
         elif name == CHOKE_LOSS:

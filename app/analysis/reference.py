@@ -14,7 +14,7 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from ringwise.analysis.operating import solve
-from ringwise.analysis.transient import dynamic_unknowns, transient_system
+from ringwise.analysis.transient import dynamic_unknowns, transient_system, varactor_remainder
 from ringwise.circuit.mna import LinearSystem, nonlinear_residual
 from ringwise.circuit.topologies import T1
 from ringwise.design import Design
@@ -32,16 +32,23 @@ def integrate_reference(
     dyn = dynamic_unknowns(system.C, system.G)
     Cdd_inv = np.linalg.inv(system.C[np.ix_(dyn, dyn)])
     x_full = x0.copy()
+    # each varactor's charge law in its branch row (the stepper's own remainder function)
+    laws = [(system.layout.branch[el.name], varactor_remainder(el)) for el in system.varactors]
+
+    def residual(xd: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        x_full[dyn] = xd
+        F, J = nonlinear_residual(system, x_full)
+        for k, law in laws:
+            value, slope = law(float(x_full[k]))
+            F[k] -= value
+            J[k, k] -= slope
+        return F, J
 
     def rhs(_t: float, xd: np.ndarray) -> np.ndarray:
-        x_full[dyn] = xd
-        F, _J = nonlinear_residual(system, x_full)
-        return -Cdd_inv @ F[dyn]
+        return -Cdd_inv @ residual(xd)[0][dyn]
 
     def jac(_t: float, xd: np.ndarray) -> np.ndarray:
-        x_full[dyn] = xd
-        _F, J = nonlinear_residual(system, x_full)
-        return -Cdd_inv @ J[np.ix_(dyn, dyn)]
+        return -Cdd_inv @ residual(xd)[1][np.ix_(dyn, dyn)]
 
     sol = solve_ivp(
         rhs, (0.0, t_end), x0[dyn], method=method, jac=jac, rtol=rtol,

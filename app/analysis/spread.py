@@ -30,6 +30,7 @@ from typing import Final
 import numpy as np
 
 from ringwise.analysis.criteria import MARGINAL_BELOW
+from ringwise.analysis.crystal import NEGATIVE_R_RULE, crystal_margins
 from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.pipeline import (
     BatchSolution,
@@ -219,8 +220,14 @@ class Spread:
     f_vs_temperature: list[tuple[float, float, float, float]]  # (T_C, p5, p50, p95)
     batches: list[Batch] = field(repr=False)
     draws: Draws = field(repr=False)
-    #: (temperatures, samples): the sample starts there (gain > 1, active device)
+    #: (corners, samples): the sample starts there (gain > 1, active device)
     starts: np.ndarray = field(repr=False)
+    #: with a varactor: the tuning voltages every temperature is solved at, V
+    tuning_voltages: list[float] | None = None
+    #: with a crystal: |R_neg|/R₁ at every corner (its lowest, and the corner)
+    crystal_margin_min: float | None = None
+    crystal_margin_yield: float | None = None
+    crystal_worst: dict | None = None
 
 
 def _percentiles(a: np.ndarray) -> dict[int, float]:
@@ -255,21 +262,33 @@ def monte_carlo(
         raise SpreadError(f"the frequency window must satisfy 0 < low < high, got {window}")
     draws = draw(design, samples, seed)
     prepared = _prepare(design)
-    steps = len(draws.temperatures) + TEMPERATURE_STEPS
+    corners = _corners(design, draws)
+    steps = len(corners) + TEMPERATURE_STEPS
     batches = []
-    for T in draws.temperatures:
-        batches.append(analyse_batch(design, values_at(design, draws, T), T, prepared))
+    crystal_margin = []
+    for T, V in corners:
+        vals = values_at(design, draws, T)
+        if V is not None:
+            vals = {**vals, "V_tune": V}
+        batches.append(analyse_batch(design, vals, T, prepared))
+        if design.crystal is not None:
+            crystal_margin.append(
+                crystal_margins(design, {**part_values(design), **vals}, batches[-1].solution)
+            )
         if progress is not None:
             progress(len(batches) / steps)
     gains = np.stack([b.gain for b in batches])  # (corners, samples)
-    freqs = np.stack([b.f_osc for b in batches])
     active = np.stack([b.active for b in batches])
     started = np.stack([b.starts for b in batches])
     margin_ok = (gains > margin) & active
+    # the frequency figures at the design's own tuning voltage (every corner without a varactor)
+    own_V = None if design.varactor is None else design.varactor.V_tune
+    own = [i for i, (_T, V) in enumerate(corners) if own_V == V]
+    freqs = np.stack([batches[i].f_osc for i in own])
     in_window = None
     if window is not None:
         inside = (freqs >= window[0]) & (freqs <= window[1])
-        in_window = float(np.mean(np.all(inside & started, axis=0)))
+        in_window = float(np.mean(np.all(inside & started[own], axis=0)))
     worst = []
     min_gain = np.min(gains, axis=0)
     for i in np.argsort(min_gain)[:WORST_CASES]:
@@ -277,9 +296,10 @@ def monte_carlo(
         worst.append(
             {
                 "sample": int(i),
-                "T_C": draws.temperatures[k],
+                "T_C": corners[k][0],
+                "V_tune": corners[k][1],
                 "gain": float(gains[k, i]),
-                "f_osc": float(freqs[k, i]) if np.isfinite(freqs[k, i]) else None,
+                "f_osc": _finite(batches[k].f_osc[i]),
                 "parts": {p: float(v[i]) for p, v in draws.values.items()},
             }
         )
@@ -302,7 +322,8 @@ def monte_carlo(
         yield_start=float(np.mean(np.all(started, axis=0))),
         yield_margin=float(np.mean(np.all(margin_ok, axis=0))),
         yield_by_temperature={
-            T: float(np.mean(s)) for T, s in zip(draws.temperatures, started, strict=True)
+            T: float(np.mean(np.all(started[[c[0] == T for c in corners]], axis=0)))
+            for T in draws.temperatures
         },
         in_window=in_window,
         window=window,
@@ -315,7 +336,51 @@ def monte_carlo(
         batches=batches,
         draws=draws,
         starts=started,
+        tuning_voltages=_tuning_voltages(design),
+        **_crystal_corners(crystal_margin, corners, draws),
     )
+
+
+def _finite(x) -> float | None:
+    return float(x) if np.isfinite(x) else None
+
+
+def _tuning_voltages(design: Design) -> list[float] | None:
+    """With a varactor: V_min, the middle, V_max and the design's own V_tune, V."""
+    v = design.varactor
+    if v is None:
+        return None
+    return sorted({v.V_min, 0.5 * (v.V_min + v.V_max), v.V_max, v.V_tune})
+
+
+def _corners(design: Design, draws: Draws) -> list[tuple[float, float | None]]:
+    """(temperature, tuning voltage) of every corner: each temperature, and with a
+    varactor each at every tuning voltage of :func:`_tuning_voltages` (yield = starts
+    at every one)."""
+    tunes: list[float | None] = list(_tuning_voltages(design) or [None])
+    return [(T, V) for T in draws.temperatures for V in tunes]
+
+
+def _crystal_corners(margins: list[np.ndarray], corners, draws: Draws) -> dict:
+    """The crystal's |R_neg|/R₁ over every corner: lowest, the fraction above the rule
+    everywhere, and the worst corner (sample, temperature, margin, R_neg)."""
+    if not margins:
+        return {}
+    m = np.stack([a for a, _r in margins])  # (corners, samples)
+    r = np.stack([b for _a, b in margins])
+    filled = np.where(np.isfinite(m), m, 0.0)
+    k, i = np.unravel_index(int(np.argmin(filled)), filled.shape)
+    return {
+        "crystal_margin_min": float(filled.min()),
+        "crystal_margin_yield": float(np.mean(np.all(filled >= NEGATIVE_R_RULE, axis=0))),
+        "crystal_worst": {
+            "sample": int(i),
+            "T_C": corners[k][0],
+            "margin": float(filled[k, i]),
+            "R_neg": float(r[k, i]) if np.isfinite(r[k, i]) else None,
+            "parts": {p: float(v[i]) for p, v in draws.values.items()},
+        },
+    }
 
 
 def spread_result(

@@ -71,6 +71,9 @@ TX, CRYSTAL_C1, CRYSTAL_C0 = "tx", "C_x1", "C_x0"
 #: tuning supply and its node, the feed resistor and the coupling capacitor.
 VARACTOR, VD, TUNE_SUPPLY, VTUNE = "D_v", "vd", "Vtune", "vtune"
 VARACTOR_FEED, VARACTOR_COUPLING = "R_tune", "C_v"
+#: The anode's DC return to ground (of R_tune's value) when the anode sits on a tank
+#: node that the coupling capacitors isolate: it holds the diode's bias at V_tune.
+VARACTOR_RETURN = "R_ret"
 #: Capacitances of the netlist that are no capacitor part with a voltage rating:
 #: the crystal's model, the choke's self-capacitance, a buffer's input.
 UNRATED_CAPACITANCES: Final = (CRYSTAL_C1, CRYSTAL_C0, "Cch", "C_load")
@@ -349,7 +352,8 @@ def build(design: Design) -> Netlist:
     if t.C3 is not None:
         tank.append(Capacitor("C3", TL, lc[1], t.C3))
     if v is not None:
-        # cathode fed from the tuning supply through R_tune, anode on the tank (0 V DC)
+        # cathode fed from the tuning supply through R_tune, anode on the tank, returned
+        # to ground through a resistor of the same value (0 V DC)
         hot, anode = (TL, lc[1]) if clapp_varactor else (lc[0], end)
         tank += [
             DCSupply(TUNE_SUPPLY, VTUNE, v.V_tune),
@@ -357,6 +361,8 @@ def build(design: Design) -> Netlist:
             Capacitor(VARACTOR_COUPLING, hot, VD, v.C_v),
             Varactor(VARACTOR, VD, anode, v.C_j0, v.phi_j, v.m_j, v.V_tune, v.R_v),
         ]
+        if anode != GROUND:
+            tank.append(Resistor(VARACTOR_RETURN, anode, GROUND, v.R_tune))
     if design.load.R_load is not None:
         tank.append(Resistor("R_load", T1, GROUND, design.load.R_load))
     if design.load.C_load is not None:

@@ -122,3 +122,32 @@ def test_the_result_carries_drive_level_startup_time_and_warnings() -> None:
     codes = {w.code for w in r.warnings}
     assert "crystal-overdriven" in codes  # 100 µW rating against a hard-driven Pierce
     assert analyze(design_from(BASE_CE)).crystal is None
+
+
+def test_spread_margin_at_every_corner_equals_the_single_design_figure() -> None:
+    """The spread's batched |R_neg|/R₁ at its worst corner against the sheet's own
+    crystal figures for that sample at that temperature (one design, one solve)."""
+    from ringwise.analysis.spread import monte_carlo, sample_design, spread_out
+
+    d = pierce()
+    r = monte_carlo(d, samples=30, seed=5)
+    w = r.crystal_worst
+    assert w is not None and r.crystal_margin_min == w["margin"] > 0
+    one = sample_design(d, r.draws, w["sample"], w["T_C"])
+    s = solve(one)
+    c = crystal_figures(s, None, natural_frequencies(s.ss, s.tank.f_ideal, s.f_osc))
+    assert c is not None
+    assert w["margin"] == pytest.approx(c.margin, rel=1e-6)
+    assert w["R_neg"] == pytest.approx(c.R_neg, rel=1e-6)
+    # every other corner is no worse: the nominal design's margin is above the worst
+    nominal = crystal_figures(solve(d), None, natural_frequencies(*_poles_args(d)))
+    assert nominal.margin >= w["margin"]
+    assert 0.0 <= r.crystal_margin_yield <= 1.0
+    out = spread_out(d, r).spread
+    assert out.crystal_worst.margin == pytest.approx(w["margin"])
+    assert out.crystal_margin_min == pytest.approx(w["margin"])
+
+
+def _poles_args(d):
+    s = solve(d)
+    return s.ss, s.tank.f_ideal, s.f_osc

@@ -107,7 +107,9 @@ def test_batched_threshold_equals_the_sequential_answer(path) -> None:
     param = gain_setter(design)
     s = solve(design)
     th = find_threshold(design, param, start=s)
-    assert th.value == pytest.approx(SEQUENTIAL_THRESHOLDS[path.stem], rel=1e-6)
+    # samples added after the search was batched have no sequential record: brentq only
+    if path.stem in SEQUENTIAL_THRESHOLDS:
+        assert th.value == pytest.approx(SEQUENTIAL_THRESHOLDS[path.stem], rel=1e-6)
 
     # The same root by scipy.optimize.brentq on full solves, bracketed ±5 %
     # around it (reference library; one solve per trial, in sequence).

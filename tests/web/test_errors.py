@@ -31,7 +31,7 @@ def test_not_found_exact_body(client):
         "error": "not-found",
         "message": (
             "no sample design named 'nope'; known: clapp-clock-1M, common-base-carrier-10M, "
-            "crystal-clock-10M, follower-test-source-4M, proximity-exciter-150k"
+            "crystal-clock-10M, follower-test-source-4M, proximity-exciter-150k, varactor-lo-5M"
         ),
         "problems": [],
     }
