@@ -85,6 +85,9 @@ const API = {
 // a drag coalesced to one request per SLIDER_MS (older requests are aborted).
 const TYPING_PAUSE_MS = 450;
 const SLIDER_MS = 30;
+// While a slider moves, the figures follow it but the plots wait until it rests this
+// long: a plot's redraw is the page's longest task, and a drag must not queue them.
+const SLIDER_REST_MS = 100;
 const PRESET_FIELDS = ["beta", "IS", "VA", "fT", "C_mu"];
 
 const $ = (sel, root = document) => root.querySelector(sel);
@@ -92,7 +95,7 @@ const $$ = (sel, root = document) => Array.from(root.querySelectorAll(sel));
 const form = $(SEL.form);
 const config = JSON.parse($(SEL.config).textContent);
 
-const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, steady: null, timer: 0, inputAt: 0, view: null, whatIfChosen: false, sent: null };
+const state = { mainSeq: 0, sweepSeq: 0, main: null, sweep: null, steady: null, timer: 0, inputAt: 0, view: null, whatIfChosen: false, sent: null, again: false, slid: false };
 // The time-domain run: the job being polled, and the query of the design it ran on.
 const run = { id: null, timer: 0, query: null, seq: 0, done: null };
 
@@ -182,49 +185,84 @@ async function post(url, body, signal) {
   return data;
 }
 
-function schedule(wait = SLIDER_MS) {
+// Typing waits for a pause (each keystroke restarts the wait); a slider drag sends
+// at most one step per SLIDER_MS (the newest texts when the time comes).
+function schedule(wait, throttle = false) {
   state.inputAt = performance.now();
   const texts = formTexts();
   updateLinks(texts);
+  if (throttle && state.timer && state.throttled) return;
   clearTimeout(state.timer);
+  state.throttled = throttle;
   state.timer = setTimeout(recompute, wait);
 }
 
 function commit() {
   clearTimeout(state.timer);
   // Enter fires both submit and change: the same texts are not sent twice
-  if (state.sent === query(formTexts()) && state.main && !state.main.signal.aborted) return;
+  if (state.sent === query(formTexts())) return;
   state.inputAt = performance.now();
   updateLinks();
   recompute();
 }
 
+// One sheet request at a time.  The server finishes a request whether or not the
+// page still waits for it (aborting frees the page, not the server), so an edit
+// made meanwhile waits for the answer and then goes, with the newest texts: a
+// slider drag never piles requests up on the server.  An answer overtaken by an
+// edit is dropped, except during a drag, where it is shown (the sheet follows the
+// slider) without the what-if plot and the steady state, which only the newest
+// answer asks for.
 async function recompute() {
   clearTimeout(state.timer);
+  state.timer = 0;
+  if (state.main) {
+    state.again = true;
+    return;
+  }
   const seq = ++state.mainSeq;
   const inputAt = state.inputAt;
-  state.main?.abort();
+  state.again = false;
+  state.slid = false;
+  state.sweep?.abort();
   state.steady?.abort();
   state.main = new AbortController();
   const texts = formTexts();
   state.sent = query(texts);
   $(SEL.outcome).dataset.state = "busy";
+  let view;
   try {
-    const view = await post(API.sheet, { fields: texts, sweep_param: $(SEL.sweepParam).value || null }, state.main.signal);
-    if (seq !== state.mainSeq) return; // a newer answer is on its way
-    render(view);
-    if (view.ok) requestSweep(texts, view, inputAt);
-    if (view.ok && view.result.steady_state === null) requestSteady(texts, seq, inputAt);
-    await plotsDrawn();
-    if (seq !== state.mainSeq) return;
-    document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq, inputAt, at: performance.now(), query: view.query } }));
+    view = await post(API.sheet, { fields: texts, sweep_param: $(SEL.sweepParam).value || null }, state.main.signal);
   } catch (err) {
-    if (err.name !== "AbortError" && seq === state.mainSeq) status(`Not computed: ${err.message}`);
+    state.sent = null; // not answered: the same texts may be sent again
+    if (err.name !== "AbortError" && !state.again) status(`Not computed: ${err.message}`);
+  } finally {
+    state.main = null;
   }
+  if (state.again) {
+    if (view && state.slid) {
+      render(view);
+      $(SEL.outcome).dataset.state = "busy";
+    }
+    recompute();
+    return;
+  }
+  if (!view) return;
+  // the what-if sweep first (it needs this answer's threshold), the steady state once
+  // the sweep has answered (both at once would share the server and slow the sweep)
+  const steady = view.ok && view.result.steady_state === null;
+  const afterSweep = () => steady && seq === state.mainSeq && !state.main && requestSteady(texts, seq, inputAt);
+  if (view.ok) requestSweep(texts, view, inputAt, afterSweep);
+  render(view);
+  if (steady) $(SEL.outcome).dataset.steady = "pending";
+  await plotsDrawn();
+  if (seq !== state.mainSeq) return;
+  document.dispatchEvent(new CustomEvent(EVENTS.rendered, { detail: { seq, inputAt, at: performance.now(), query: view.query } }));
 }
 
 // The small-signal answer is shown first; the steady state follows on a second
-// request.  An edit in between aborts it (its answer would be for an older design).
+// request, sent once the what-if sweep has answered (the two would share the
+// server).  An edit in between aborts it (its answer would be for an older design).
 async function requestSteady(texts, seq, inputAt) {
   state.steady?.abort();
   state.steady = new AbortController();
@@ -240,7 +278,8 @@ async function requestSteady(texts, seq, inputAt) {
   }
 }
 
-async function requestSweep(texts, view, inputAt) {
+// answered() is called once the server has answered (or failed), before the plot is drawn.
+async function requestSweep(texts, view, inputAt, answered = () => {}) {
   const seq = ++state.sweepSeq;
   state.sweep?.abort();
   state.sweep = new AbortController();
@@ -248,7 +287,12 @@ async function requestSweep(texts, view, inputAt) {
   const param = view.sweep_param;
   const hint = param === startup.threshold_param ? startup.threshold_value : null;
   try {
-    const data = await post(API.sweep, { fields: texts, param, threshold_hint: hint }, state.sweep.signal);
+    let data;
+    try {
+      data = await post(API.sweep, { fields: texts, param, threshold_hint: hint }, state.sweep.signal);
+    } finally {
+      answered();
+    }
     if (seq !== state.sweepSeq || !data.ok) return;
     plotFigure("sweep", data.figure);
     await plotsDrawn();
@@ -265,19 +309,32 @@ function status(text) {
 
 // ---- rendering -------------------------------------------------------------
 
+// Each input's elements, looked up once (the form never changes): its echo of the
+// value, its error line, the input and its slider.
+const fieldEls = new Map();
+function fieldElements(name) {
+  if (!fieldEls.has(name)) {
+    fieldEls.set(name, { shown: $(`[data-shown="${name}"]`), error: $(`[data-error="${name}"]`), input: form.elements.namedItem(name), ladder: $(`[data-ladder="${name}"]`) });
+  }
+  return fieldEls.get(name);
+}
+
+// Text and attributes are written only when they change: a write the page does not
+// need still makes the browser lay the page out again.
+function setText(el, text) {
+  if (el.textContent !== text) el.textContent = text;
+}
+
 function render(view) {
   state.view = view;
   for (const [name, f] of Object.entries(view.fields)) {
-    const shown = $(`[data-shown="${name}"]`);
-    if (shown) shown.textContent = f.display;
-    const error = $(`[data-error="${name}"]`);
-    error.textContent = f.error || "";
-    error.hidden = !f.error;
-    const input = form.elements.namedItem(name);
+    const { shown, error, input, ladder } = fieldElements(name);
+    if (shown) setText(shown, f.display);
+    setText(error, f.error || "");
+    if (error.hidden !== !f.error) error.hidden = !f.error;
     if (f.error) input.setAttribute("aria-invalid", "true");
-    else input.removeAttribute("aria-invalid");
-    const ladder = $(`[data-ladder="${name}"]`);
-    if (ladder && f.step !== null && ladder !== document.activeElement) ladder.value = f.step;
+    else if (input.hasAttribute("aria-invalid")) input.removeAttribute("aria-invalid");
+    if (ladder && f.step !== null && ladder !== document.activeElement && ladder.value !== String(f.step)) ladder.value = f.step;
   }
   const idle = config.idle[view.idle_key] || [];
   for (const field of $$("[data-input]")) field.classList.toggle("idle", idle.includes(field.dataset.input));
@@ -294,9 +351,9 @@ function render(view) {
   for (const el of $$(SEL.figures)) {
     const figure = view.shown[el.dataset.field];
     if (!figure) continue;
-    el.dataset.value = figure.raw;
-    if (!el.classList.contains("verdict")) el.textContent = figure.text;
-    if ("hidden" in figure) el.hidden = figure.hidden;
+    if (el.dataset.value !== figure.raw) el.dataset.value = figure.raw;
+    if (!el.classList.contains("verdict")) setText(el, figure.text);
+    if ("hidden" in figure && el.hidden !== figure.hidden) el.hidden = figure.hidden;
   }
   renderStress(view);
   markRunStale(view);
@@ -311,7 +368,7 @@ function render(view) {
   const list = $(SEL.warnings);
   list.replaceChildren(...(view.result.warnings.length ? view.result.warnings.map(warningItem) : [noneItem()]));
   renderSweepOptions(view);
-  $(SEL.handFormula).textContent = view.budget_caption;
+  setText($(SEL.handFormula), view.budget_caption);
   for (const [name, figure] of Object.entries(view.figures)) plotFigure(name, figure);
 }
 
@@ -435,9 +492,9 @@ function plotWhenSeen(sel, data, draw) {
 const observed = new Set();
 
 // Plots due for drawing are drawn one per task (each Plotly.react is its own
-// task), so the page answers input between them; plotsDrawn() resolves when
-// none is left.
-const queue = { ids: [], running: false, waiting: [] };
+// task), so the page answers input between them, and not while a slider moves;
+// plotsDrawn() resolves when none is left.
+const queue = { ids: [], running: false, waiting: [], holdUntil: 0 };
 
 function flushPlot(id) {
   if (!lazy.pending.has(id) || queue.ids.includes(id)) return;
@@ -449,6 +506,11 @@ function flushPlot(id) {
 }
 
 function drawNext() {
+  const wait = queue.holdUntil - performance.now();
+  if (wait > 0) {
+    setTimeout(drawNext, wait); // a slider is moving: draw once it rests
+    return;
+  }
   const id = queue.ids.shift();
   const job = id && lazy.pending.get(id);
   if (job) {
@@ -881,7 +943,9 @@ function onInput(event) {
   const el = event.target;
   if (el.dataset.ladder) {
     setField(el.dataset.ladder, config.ladders[el.dataset.ladder][Number(el.value)]);
-    schedule(SLIDER_MS);
+    state.slid = true;
+    queue.holdUntil = performance.now() + SLIDER_REST_MS;
+    schedule(SLIDER_MS, true);
     return;
   }
   if (el.tagName === "SELECT") return; // its change event commits

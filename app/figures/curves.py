@@ -22,9 +22,9 @@ from ringwise.design import PART_PARAMETERS, Design, get_param
 TWO_PI: Final = 2.0 * math.pi
 #: The loop curve spans f_ideal / LOOP_SPAN ... f_ideal · LOOP_SPAN.
 LOOP_SPAN: Final = 4.0
-LOOP_POINTS: Final = 161
+LOOP_POINTS: Final = 101
 #: Extra points packed around f_osc, over ± LOOP_DENSE_WIDTHS resonance widths f/Q.
-LOOP_DENSE_POINTS: Final = 120
+LOOP_DENSE_POINTS: Final = 60
 LOOP_DENSE_WIDTHS: Final = 4.0
 #: The reactance chart spans f_ideal / REACTANCE_SPAN ... f_ideal · REACTANCE_SPAN.
 REACTANCE_SPAN: Final = 10.0
