@@ -89,6 +89,20 @@ SHOWN: Final = tuple(
         ("crystal.P_drive", "W", "Drive level (steady state)", "crystal"),
         ("crystal.P_rating", "W", "Drive-level rating", "crystal"),
         ("crystal.startup_time", "s", "Startup time (growth rate, from 1 µV)", "crystal"),
+        ("tuning.f_low", "Hz", "f_osc at V_min", "tuning"),
+        ("tuning.f_high", "Hz", "f_osc at V_max", "tuning"),
+        ("tuning.tuning_ratio", "", "Tuning ratio f_high/f_low", "tuning"),
+        ("tuning.K_at_min", "Hz/V", "Tuning gain K at V_min", "tuning"),
+        ("tuning.K_at_max", "Hz/V", "Tuning gain K at V_max", "tuning"),
+        ("tuning.K_ratio", "", "K end to end, K(V_min)/K(V_max)", "tuning"),
+        ("tuning.min_gain", "", "Lowest loop gain across the range", "tuning"),
+        ("tuning.starts_everywhere", "yesno", "Starts at every tuning voltage", "tuning"),
+        ("tuning.points.0.behaviour", "behaviour", "At V_min, once running", "tuning"),
+        ("tuning.points.1.behaviour", "behaviour", "Mid-range, once running", "tuning"),
+        ("tuning.points.2.behaviour", "behaviour", "At V_max, once running", "tuning"),
+        ("tuning.points.0.V_diode_min", "V", "At V_min, lowest junction voltage", "tuning"),
+        ("tuning.points.0.V_rf_peak", "V", "At V_min, RF swing on the diode (peak)", "tuning"),
+        ("tuning.forward_biased", "yesno", "RF swing forward-biases the diode", "tuning"),
         ("output.P_dBm", "dBm", "Power into the load", "output"),
         ("output.P", "W", "Power into the load, watts", "output"),
         ("output.V_rms", "V", "Voltage across the load, RMS", "output"),
@@ -107,9 +121,10 @@ PANELS: Final = (
     ("bias", "Operating point"),
     ("output", "Into the load (periodic steady state)"),
     ("crystal", "Crystal"),
+    ("tuning", "Varactor tuning (V_min, middle, V_max)"),
 )
-#: Panels shown only when the result has their section (a load, a crystal).
-OPTIONAL_PANELS: Final = ("output", "crystal")
+#: Panels shown only when the result has their section (a load, a crystal, a varactor).
+OPTIONAL_PANELS: Final = ("output", "crystal", "tuning")
 
 #: The summary's panels (its stability block, steady-state, load and crystal
 #: lines are its own).

@@ -335,6 +335,7 @@ class TuningPointOut(_Out):
 class TuningOut(_Out):
     """A varactor-tuned tank across its tuning range (lists run over ``V``)."""
 
+    V_tune: Num = Field(description="The design's own tuning voltage, V")
     V: list[float] = Field(description="Tuning voltages, V")
     f_osc: list[float | None] = Field(description="f_osc at each, Hz (null: no crossing)")
     K: list[float | None] = Field(description="Tuning gain df_osc/dV at each, Hz/V")

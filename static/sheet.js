@@ -36,6 +36,7 @@ const SEL = {
     reactance: "#plot-reactance",
     budget: "#plot-budget",
     noise: "#plot-noise",
+    tuning: "#plot-tuning",
     wave: "#plot-wave",
     envelope: "#plot-envelope",
     spectrum: "#plot-spectrum",

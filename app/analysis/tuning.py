@@ -70,10 +70,12 @@ class Tuning:
     """f_osc, K and the loop gain across the tuning range, and the steady state at three points.
 
     Lists run over ``V`` (V).  ``f_osc`` in Hz (``None`` where no zero-phase
-    crossing), ``K`` in Hz/V, ``gain`` |T(f_osc)|, ``C_branch`` the varactor
+    crossing), ``K`` in Hz/V, ``gain`` |T(f_osc)|, ``V_tune`` the design's own
+    tuning voltage, ``C_branch`` the varactor
     branch's capacitance (C_v in series with C(V)), F.
     """
 
+    V_tune: float
     V: list[float]
     f_osc: list[float | None]
     K: list[float | None]
@@ -131,6 +133,7 @@ def tuning(design: Design, large_signal: bool = True) -> Tuning | None:
     fb = [p.forward_biased for p in points if p.forward_biased is not None]
     f_ok = f[ok]
     return Tuning(
+        V_tune=v.V_tune,
         V=V.tolist(),
         f_osc=[_num(x) for x in f],
         K=[_num(x) for x in K],

@@ -26,7 +26,14 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Any, Final
 
 from ringwise.figures import curves
-from ringwise.figures.sheet import budget_spec, loop_spec, noise_spec, reactance_spec, sweep_spec
+from ringwise.figures.sheet import (
+    budget_spec,
+    loop_spec,
+    noise_spec,
+    reactance_spec,
+    sweep_spec,
+    tuning_spec,
+)
 from ringwise.figures.style import CONFIG
 
 if TYPE_CHECKING:  # plotly is imported only when a Figure object is asked for
@@ -69,6 +76,8 @@ def design_curves(
         "budget": curves.budget_bars(result["loop"]),
         "noise": curves.noise_curve(result["stability"]),
     }
+    if result.get("tuning"):
+        data["tuning"] = curves.tuning_curve(result["tuning"])
     if what_if is not None:
         data["sweep"] = what_if
     return data
@@ -81,6 +90,7 @@ SPECS: Final = {
     "budget": budget_spec,
     "noise": noise_spec,
     "sweep": sweep_spec,
+    "tuning": tuning_spec,
 }
 
 

@@ -67,6 +67,18 @@ def loop_curve(solved: Solved) -> dict[str, Any]:
     }
 
 
+def tuning_curve(tuning: dict[str, Any]) -> dict[str, Any]:
+    """f_osc and the tuning gain K across the varactor's tuning range, and the design's
+    own tuning voltage (from the result's ``tuning`` section, JSON form)."""
+    return {
+        "V": tuning["V"],
+        "f_osc": tuning["f_osc"],
+        "K": tuning["K"],
+        "gain": tuning["gain"],
+        "V_tune": tuning["V_tune"],
+    }
+
+
 def reactance_curves(design: Design, C_series: float, f_ideal: float) -> dict[str, Any]:
     """X_L = ωL and X_C = 1/(ωC) of the tank's parts, Ω, against frequency."""
     f = np.geomspace(f_ideal / REACTANCE_SPAN, f_ideal * REACTANCE_SPAN, REACTANCE_POINTS)

@@ -163,6 +163,50 @@ def sweep_spec(s: dict[str, Any]) -> dict[str, Any]:
     )
 
 
+def tuning_spec(t: dict[str, Any]) -> dict[str, Any]:
+    """f_osc (left) and the tuning gain K (log, right) against the tuning voltage;
+    the design's own tuning voltage marked."""
+    V = t["V"]
+    f_range = axes.data_range(t["f_osc"])
+    f_axis = (
+        axes.linear_axis(*f_range, "Hz", Y_LABELS, pad=LINEAR_PAD)
+        if f_range
+        else axes.linear_axis(0.0, 1.0, "Hz", Y_LABELS)
+    )
+    K_pos = [abs(k) if k is not None else None for k in t["K"]]
+    K_axis = axes.log_axis(*_log_range(K_pos), "Hz/V", Y_LABELS)
+    now = marker_line(f"now {format_si(t['V_tune'], 'V')}", x=t["V_tune"], dash="dot", color=INK)
+    return fit_margins(
+        {
+            "data": [
+                {
+                    "type": "scatter",
+                    "x": V,
+                    "y": t["f_osc"],
+                    "name": "f_osc",
+                    "line": {"color": ACCENT, "width": 2},
+                    "hovertemplate": "V_tune %{x:.3s}V  f_osc %{y:.5s}Hz<extra></extra>",
+                },
+                {
+                    "type": "scatter",
+                    "x": V,
+                    "y": K_pos,
+                    "name": "tuning gain |K|",
+                    "yaxis": "y2",
+                    "line": {"color": BLUE, "width": 1.5, "dash": "dot"},
+                    "hovertemplate": "V_tune %{x:.3s}V  K %{y:.3s}Hz/V<extra></extra>",
+                },
+            ],
+            "layout": layout(
+                xaxis=titled(axes.linear_axis(V[0], V[-1], "V", X_LABELS), "tuning voltage"),
+                yaxis=titled(f_axis, "f_osc"),
+                yaxis2=titled(K_axis, "K = df/dV", overlaying="y", side="right", showgrid=False),
+                shapes=[now],
+            ),
+        }
+    )
+
+
 def reactance_spec(r: dict[str, Any]) -> dict[str, Any]:
     """X_L and X_C of the tank parts against frequency (log-log); the ideal resonance marked."""
     data = []

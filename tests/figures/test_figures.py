@@ -6,6 +6,7 @@ import plotly.graph_objects as go
 import pytest
 
 import ringwise.figures as rf
+from ringwise.analysis.analyze import analyze
 from ringwise.design import Design
 from ringwise.web.samples import samples
 
@@ -17,7 +18,9 @@ def figures(request) -> dict[str, go.Figure]:
 
 def test_every_design_figure_is_a_valid_plotly_figure(figures):
     # go.Figure validates every attribute (plotly.py), so a misspelt key fails here
-    assert set(figures) == {*rf.DESIGN_FIGURES, "sweep"}
+    # the tuning plot with a varactor only
+    optional = {"tuning"} & set(figures)
+    assert set(figures) == {*rf.DESIGN_FIGURES, "sweep", *optional}
     for fig in figures.values():
         assert isinstance(fig, go.Figure)
         go.Figure(fig.to_plotly_json())
@@ -85,3 +88,14 @@ def test_budget_texts_have_room_beside_their_bars():
             end = 0.0 if c < 0 else c
             assert inside or (hi - end) * px >= width, (costs, c, t)
             assert zero == (c < 0 and not inside), (costs, c)
+
+
+def test_the_tuning_figure_draws_f_and_K_against_the_tuning_voltage():
+    design = Design.model_validate(samples()["varactor-lo-5M"].document)
+    fig = rf.design_figures(design)["tuning"].to_plotly_json()
+    f_trace, K_trace = fig["data"]
+    result = analyze(design)
+    assert f_trace["x"] == result.tuning.V and f_trace["y"] == result.tuning.f_osc
+    assert K_trace["y"] == [abs(k) for k in result.tuning.K] and K_trace["yaxis"] == "y2"
+    (now,) = fig["layout"]["shapes"]
+    assert now["x0"] == design.varactor.V_tune

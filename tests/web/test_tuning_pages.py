@@ -1,0 +1,48 @@
+"""The varactor's inputs, results panel, plot and summary lines on the pages, and its
+figures in the command line's answer."""
+
+from __future__ import annotations
+
+import json
+import re
+
+from ringwise.cli import main
+from tests.conftest import SAMPLES
+
+SAMPLE = "varactor-lo-5M"
+
+
+def test_sheet_shows_the_tuning_panel_and_plot(client):
+    html = client.get(f"/?design={SAMPLE}").text
+    for name in ("V_tune", "C_v", "C_j0", "m_j", "R_tune", "V_min", "V_max", "v_preset", "place"):
+        assert f'name="{name}"' in html, name
+    panel = re.search(r'<section[^>]*data-panel="tuning"[^>]*>', html).group(0)
+    assert "hidden" not in panel
+    assert 'id="plot-tuning"' in html
+    assert 'data-field="tuning.K_ratio"' in html
+    view = client.get(f"/sheet.json?design={SAMPLE}").json()
+    assert "tuning" in view["figures"]
+    assert view["shown"]["tuning.starts_everywhere"]["text"] in ("yes", "no")
+    # a design without a varactor hides the panel and has no tuning plot
+    plain = client.get("/?design=clapp-clock-1M").text
+    assert "hidden" in re.search(r'<figure[^>]*data-panel="tuning"[^>]*>', plain).group(0)
+    assert "tuning" not in client.get("/sheet.json?design=clapp-clock-1M").json()["figures"]
+
+
+def test_summary_prints_the_tuning_line(client):
+    html = client.get(f"/summary?design={SAMPLE}").text
+    line = html.split('<p class="sum-tuning">')[1].split("</p>")[0]
+    assert "V_min" in line and 'data-field="tuning.K_ratio"' in line
+    assert '<p class="sum-tuning">' not in client.get("/summary?design=clapp-clock-1M").text
+
+
+def test_cli_table_and_json_carry_the_tuning(capsys):
+    path = str(SAMPLES / f"{SAMPLE}.json")
+    assert main(["analyze", path]) == 0
+    data = json.loads(capsys.readouterr().out)
+    t = data["tuning"]
+    assert t["starts_everywhere"] is True and len(t["points"]) == 3
+    assert t["f_low"] < data["loop"]["f_osc"] < t["f_high"]
+    assert main(["analyze", path, "--format", "table"]) == 0
+    out = capsys.readouterr().out
+    assert "Tuning gain K at V_min" in out and "RF swing forward-biases the diode" in out
