@@ -15,11 +15,11 @@ from ringwise.analysis.output import load_output
 from ringwise.analysis.periodic import SteadyState, steady_state
 from ringwise.analysis.phase_noise import SHARE_OFFSETS, OscillatorNoise
 from ringwise.analysis.poles import natural_frequencies
-from ringwise.analysis.stability import REPORT_OFFSETS, neighbours, stability
+from ringwise.analysis.stability import REPORT_OFFSETS, neighbour_designs, neighbours, stability
 from ringwise.analysis.startup import verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
-from ringwise.analysis.threshold import find_threshold
+from ringwise.analysis.threshold import threshold_with_riders
 from ringwise.analysis.tuning import tuning, tuning_checks
 from ringwise.analysis.verdict import combined_verdict
 from ringwise.circuit.topologies import OUTPUT_NODE_LABEL, T1, gain_setter, hand_formula
@@ -103,7 +103,8 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     setter = gain_setter(design)
     budget = loop_budget(s, setter) if f_osc is not None else []
     poles = natural_frequencies(s.ss, s.tank.f_ideal, f_osc)
-    threshold = find_threshold(design, setter, start=s)
+    # pushing and pulling ride in the threshold search's first batch
+    threshold, near_f = threshold_with_riders(design, setter, s, neighbour_designs(s))
     v = verdict(gain, op)
     findings = rule_checks(s, budget, poles)
     findings += tank_checks(s, budget)
@@ -111,7 +112,7 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     ss = steady_state(s) if large_signal else None
     if ss is not None:
         findings += steady_checks(s, ss)
-    near = neighbours(s)
+    near = neighbours(s, near_f)
     st = stability(s, ss, near)
     findings += [Finding(code, message) for code, message in st.notes]
     if threshold.value is None and threshold.reason:

@@ -352,6 +352,32 @@ def stack_values(designs: Sequence[Design]) -> dict[str, np.ndarray | float | No
     return out
 
 
+def join_values(blocks: Sequence[tuple[PartValues, int]]) -> dict[str, np.ndarray | str | None]:
+    """Part values of several batches of one structure as one batch (members in order).
+
+    Each block is (values, its batch size); a part no block has stays
+    ``None``, an optional part (:data:`OPTIONAL_PARTS`) a block leaves out is
+    infinite (open) there, any other missing part NaN.
+    """
+    out: dict[str, np.ndarray | str | None] = {}
+    for name in dict.fromkeys(k for values, _n in blocks for k in values):
+        column = [values.get(name) for values, _n in blocks]
+        if isinstance(column[0], str):  # a choice the structure fixes (the varactor's place)
+            out[name] = column[0]
+            continue
+        if all(v is None for v in column):
+            out[name] = None
+            continue
+        missing = np.inf if name in OPTIONAL_PARTS else np.nan
+        out[name] = np.concatenate(
+            [
+                _array(missing if v is None else v, n)
+                for v, (_values, n) in zip(column, blocks, strict=True)
+            ]
+        )
+    return out
+
+
 def solve_designs(
     designs: Sequence[Design],
     x0: np.ndarray | None = None,

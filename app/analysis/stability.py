@@ -185,15 +185,26 @@ class Neighbours:
     load_change_ppm: float | None
 
 
-def neighbours(solved: Solved) -> Neighbours:
+def neighbour_designs(solved: Solved) -> list[Design]:
+    """The designs :func:`neighbours` solves (none without a loop crossing)."""
+    return [] if solved.f_osc is None else _variants(solved)
+
+
+def neighbours(solved: Solved, f_osc: np.ndarray | None = None) -> Neighbours:
     """Pushing, pulling and the load change's pull: central differences of full
     solves (operating point re-solved), all in one batch of the pipeline;
-    ``None`` where a figure does not exist."""
+    ``None`` where a figure does not exist.
+
+    ``f_osc`` holds the small-signal f_osc of :func:`neighbour_designs` when
+    another batch already solved them (the threshold search's first one,
+    warm-started from ``solved`` as here).
+    """
     if solved.f_osc is None:
         return Neighbours(None, None, None, None)
-    designs = _variants(solved)
-    batch = solve_designs(designs, solved.op.x, solved.f_osc, like=solved.design)
-    f = [float(v) if np.isfinite(v) else None for v in batch.loop.f_osc]
+    if f_osc is None:
+        designs = _variants(solved)
+        f_osc = solve_designs(designs, solved.op.x, solved.f_osc, like=solved.design).loop.f_osc
+    f = [float(v) if np.isfinite(v) else None for v in f_osc]
     d = solved.design
     V_hi, V_lo = _steps(d, "Vcc")
     push = (f[0] - f[1]) / (V_hi - V_lo) if None not in f[:2] else None

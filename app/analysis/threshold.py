@@ -30,6 +30,7 @@ the crossing nearest the current value.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Final, Literal
 
@@ -39,10 +40,12 @@ from pydantic import ValidationError
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.pipeline import (
     BatchSolution,
+    join_values,
     part_values,
     patterns_of_structure,
     solve_designs,
     solve_values,
+    stack_values,
 )
 from ringwise.circuit.mna import Patterns
 from ringwise.design import Design, get_param, param_limits, with_param
@@ -72,9 +75,14 @@ ERROR_MARGIN: Final = 4.0
 BRACKET_XTOL: Final = 1e-12
 #: A bracketed root whose |ln gain| exceeds this is a discontinuity, not a crossing.
 ROOT_CHECK: Final = 1e-4
-#: A root read off a round's parabola (no further solve) must be this fraction
-#: of LOG_GAIN_TOL from ln gain 0 by the parabola's own error estimate.
+#: A root read off a round's points (no further solve) must be this fraction
+#: of LOG_GAIN_TOL from ln gain 0 by its interpolation error estimate ...
 INTERPOLATION_SHARE: Final = 0.01
+#: ... and every point of the round within this of ln gain 0 (a gain within
+#: about 5 %, where ln gain is smooth unless the loop loses its crossing).
+INTERPOLATION_REACH: Final = 0.05
+#: Newton steps on an interpolating polynomial (it converges in a handful).
+POLY_NEWTON_STEPS: Final = 30
 #: Stand-in for ln(gain) when a trial value gives no loop crossing at all.
 NO_LOOP: Final = -50.0
 #: Maximum sweep length.
@@ -127,6 +135,11 @@ class _Trials:
     param: str
     x0: np.ndarray | None
     f_guess: float | None
+    #: Designs of the same structure solved in the first batch alongside the
+    #: trials (another analysis's members riding along: one pipeline call
+    #: fewer); their f_osc is :attr:`rider_f_osc` (NaN where none).
+    riders: Sequence[Design] = ()
+    rider_f_osc: np.ndarray | None = field(init=False, default=None)
     parts: dict = field(init=False)
     patterns: Patterns = field(init=False)
     limits: tuple[float, float] = field(init=False)
@@ -155,12 +168,20 @@ class _Trials:
         allowed = (values >= lo) & (values <= hi)
         parts = dict(self.parts)
         parts[self.param] = np.where(allowed, values, parts[self.param])
-        sol = solve_values(self.patterns, parts, values.size, self.x0, self.f_guess)
+        m = values.size
+        if self.riders and self.rider_f_osc is None:
+            riders = len(self.riders)
+            joined = join_values([(parts, m), (stack_values(self.riders), riders)])
+            sol = solve_values(self.patterns, joined, m + riders, self.x0, self.f_guess)
+            self.rider_f_osc = np.where(sol.converged[m:], sol.loop.f_osc[m:], np.nan)
+        else:
+            sol = solve_values(self.patterns, parts, m, self.x0, self.f_guess)
         self.last = sol
-        gain = sol.gain
+        gain = sol.gain[:m]
+        sol_ok = sol.converged[:m]
         with np.errstate(divide="ignore"):
             g = np.where(gain > 0, np.log(np.where(gain > 0, gain, 1.0)), NO_LOOP)
-        return np.where(allowed & sol.converged, g, np.nan)
+        return np.where(allowed & sol_ok, g, np.nan)
 
 
 def find_threshold(design: Design, param: str, start: Solved | None = None) -> Threshold:
@@ -169,15 +190,35 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
     ``start`` (the design already solved) warm-starts every trial's DC Newton
     and loop search.
     """
+    return threshold_with_riders(design, param, start)[0]
+
+
+def threshold_with_riders(
+    design: Design, param: str, start: Solved | None = None, riders: Sequence[Design] = ()
+) -> tuple[Threshold, np.ndarray | None]:
+    """:func:`find_threshold`, with ``riders`` (designs of the same structure)
+    solved in the search's first batch, warm-started as its trials are.
+
+    Returns the threshold and the riders' f_osc (Hz, NaN where none), or
+    ``None`` when the search needed no batch (the riders are then the
+    caller's to solve).
+    """
     value = _check_param(design, param)
     if start is not None and abs(_ln(start.gain)) <= LOG_GAIN_TOL:
-        return Threshold(param, value, value)
+        return Threshold(param, value, value), None
     trials = _Trials(
         design,
         param,
         None if start is None else start.op.x,
         None if start is None else start.f_osc,
+        tuple(riders),
     )
+    return _search(trials, value, start), trials.rider_f_osc
+
+
+def _search(trials: _Trials, value: float, start: Solved | None) -> Threshold:
+    """The threshold search of :func:`find_threshold` on its trials."""
+    param = trials.param
     x0 = math.log(value)
     g0 = _ln(start.gain) if start is not None else float(trials.log_gain(np.array([x0]))[0])
     if abs(g0) <= LOG_GAIN_TOL:
@@ -361,6 +402,7 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
     best_x, best_g = (a, ga) if abs(ga) < abs(gb) else (b, gb)
     j = k if k + 2 < xs.size and math.isfinite(gs[k + 2]) else k - 1
     last = (xs[j : j + 3].tolist(), gs[j : j + 3].tolist()) if j >= 0 else None
+    seen = [(x, g) for x, g in zip(xs.tolist(), gs.tolist(), strict=True) if _usable(g)]
     for _ in range(POLISH_ROUNDS):
         width = b - a
         if width <= BRACKET_XTOL:
@@ -378,6 +420,10 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
         gt = trials.log_gain(trial)
         trials.warm_from(1)
         last = (trial.tolist(), gt.tolist()) if np.all(np.isfinite(gt)) else None
+        others = seen
+        seen = seen + [
+            (x, g) for x, g in zip(trial.tolist(), gt.tolist(), strict=True) if _usable(g)
+        ]
         for p, g in zip(trial.tolist(), gt.tolist(), strict=True):
             if not math.isfinite(g):
                 continue
@@ -390,41 +436,82 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
                 break
         if abs(best_g) <= LOG_GAIN_TOL:
             break
-        close = _interpolated_root(last, a, b)
+        close = _interpolated_root(last, others, a, b)
         if close is not None:
             return close
     return best_x, best_g
 
 
-def _interpolated_root(
-    last: tuple[list[float], list[float]] | None, a: float, b: float
-) -> tuple[float, float] | None:
-    """The root from a round's three points when they already sit on it: every
-    point within :data:`ROOT_CHECK` of ln gain 0 (so no jump hides among them)
-    and the parabola through them placing the root to well within
-    :data:`LOG_GAIN_TOL` of ln gain (its expected error times the slope).
+def _usable(g: float) -> bool:
+    """A trial's ln gain that interpolation may use (a loop crossing was found)."""
+    return math.isfinite(g) and g != NO_LOOP
 
-    Returns the root and the ln gain the parabola gives there, or ``None``
-    (another round is needed).  This saves the round that would only confirm
-    what three points this close already fix.
+
+def _interpolated_root(
+    last: tuple[list[float], list[float]] | None,
+    others: list[tuple[float, float]],
+    a: float,
+    b: float,
+) -> tuple[float, float] | None:
+    """The root read off a round's three points without another round, when
+    interpolation already pins it down.
+
+    The root of the parabola through the round's points is compared with the
+    root of the cubic through them and the nearest earlier point: their
+    difference is the parabola's interpolation error (the cubic's term), and
+    it must be within :data:`INTERPOLATION_SHARE` of :data:`LOG_GAIN_TOL` in
+    ln gain.  A jump among the points (the loop losing its crossing) shows as
+    a large difference, or as a point beyond :data:`INTERPOLATION_REACH`.
+
+    Returns the cubic's root and the error bound in ln gain, or ``None``
+    (another round is needed).
     """
-    if last is None or max(abs(y) for y in last[1]) > ROOT_CHECK:
+    if last is None or not all(_usable(y) for y in last[1]):
         return None
     xs, ys = last
-    lo, hi = min(a, *xs), max(b, *xs)
-    width = hi - lo
-    found = _newton_estimate(xs, ys, lo - width, hi + width)
-    if found is None:
+    if max(abs(y) for y in ys) > INTERPOLATION_REACH:
         return None
-    x, err = found
-    (x0, x1, x2), (y0, y1, y2) = xs, ys
-    d01, d12 = (y1 - y0) / (x1 - x0), (y2 - y1) / (x2 - x1)
-    curv = (d12 - d01) / (x2 - x0)
-    slope = d01 + curv * (x1 - x0)
-    if ERROR_MARGIN * abs(slope) * err > INTERPOLATION_SHARE * LOG_GAIN_TOL:
+    near = [p for p in others if p[0] not in xs]
+    if not near:
         return None
-    dx = x - x1
-    return x, y1 + slope * dx + curv * dx * dx
+    middle = xs[1]
+    x4, y4 = min(near, key=lambda p: abs(p[0] - middle))
+    r3 = _polynomial_root(xs, ys, middle)
+    r4 = _polynomial_root([*xs, x4], [*ys, y4], middle)
+    if r3 is None or r4 is None or not a <= r4[0] <= b:
+        return None
+    bound = abs(r4[0] - r3[0]) * abs(r4[1])
+    if bound > INTERPOLATION_SHARE * LOG_GAIN_TOL:
+        return None
+    return r4[0], bound
+
+
+def _polynomial_root(xs: list[float], ys: list[float], start: float) -> tuple[float, float] | None:
+    """Root (and slope there) of the polynomial through the points (Newton's
+    divided differences), by Newton's method from ``start``; ``None`` when it
+    does not settle within the points' span."""
+    n = len(xs)
+    coef = list(ys)
+    for level in range(1, n):
+        for i in range(n - 1, level - 1, -1):
+            coef[i] = (coef[i] - coef[i - 1]) / (xs[i] - xs[i - level])
+    lo, hi = min(xs), max(xs)
+    span = hi - lo
+    x = start
+    for _ in range(POLY_NEWTON_STEPS):
+        value, slope = coef[-1], 0.0
+        for i in range(n - 2, -1, -1):
+            slope = slope * (x - xs[i]) + value
+            value = value * (x - xs[i]) + coef[i]
+        if slope == 0.0 or not math.isfinite(slope):
+            return None
+        step = value / slope
+        x -= step
+        if not lo - span <= x <= hi + span:
+            return None
+        if abs(step) <= BRACKET_XTOL:
+            return x, slope
+    return None
 
 
 @dataclass(frozen=True)

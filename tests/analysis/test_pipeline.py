@@ -9,14 +9,16 @@ import numpy as np
 import pytest
 
 from ringwise.analysis import spread as spread_module
+from ringwise.analysis.budget import _solve_variants, _variants, budget_items, loop_budget
 from ringwise.analysis.criteria import START_GAIN, Region
+from ringwise.analysis.dc import SCALAR_BATCH
 from ringwise.analysis.operating import solve
 from ringwise.analysis.pipeline import solve_designs
 from ringwise.analysis.sensitivity import STEP, sensitivities
 from ringwise.analysis.spread import analyse_batch, draw, monte_carlo, sample_design, values_at
-from ringwise.analysis.stability import PUSH_STEP, push_pull
+from ringwise.analysis.stability import PUSH_STEP, load_changed, neighbours, push_pull
 from ringwise.analysis.startup import verdict
-from ringwise.analysis.threshold import sweep
+from ringwise.analysis.threshold import _Trials, sweep
 from ringwise.design import with_param
 from tests.conftest import BASE_CE, at_gain, design_from
 
@@ -56,6 +58,44 @@ def test_batch_of_n_equals_n_single_solves() -> None:
             assert batch.loop.gain[i] == pytest.approx(one.gain, rel=RTOL)
             assert batch.loop.Q_loaded[i] == pytest.approx(float(one.loop.Q_loaded), rel=1e-7)
         assert batch.hybrid.gm[i] == pytest.approx(one.hybrid.gm, rel=RTOL)
+
+
+def test_array_newton_batch_equals_single_solves() -> None:
+    # Past SCALAR_BATCH members the DC Newton runs on arrays; single designs
+    # run it in floats.  Both give each member the same operating point.
+    designs = _designs() * (SCALAR_BATCH // len(VARIANTS) + 1)
+    assert len(designs) > SCALAR_BATCH
+    batch = solve_designs(designs)
+    for i, d in enumerate(designs):
+        one = solve(d)
+        np.testing.assert_allclose(batch.x[i], one.op.x, rtol=RTOL, atol=1e-12)
+        if one.f_osc is None:
+            assert np.isnan(batch.loop.f_osc[i])
+        else:
+            assert batch.loop.f_osc[i] == pytest.approx(one.f_osc, rel=RTOL)
+            assert batch.loop.gain[i] == pytest.approx(one.gain, rel=RTOL)
+
+
+def test_budget_batch_equals_each_variant_alone() -> None:
+    # Every loss made ideal in one batch, against each variant solved on its own.
+    design = design_from(BASE_CE, load={"R_load": "10k"})
+    s = solve(design)
+    lines = loop_budget(s, "RC")
+    for item, line in zip(budget_items(s.netlist, "RC"), lines, strict=True):
+        alone = _solve_variants(s, _variants(s, [[item]]))
+        assert line.gain_without == pytest.approx(float(alone.gain[0]), rel=RTOL)
+        assert line.f_without == pytest.approx(float(alone.f_osc[0]), rel=RTOL)
+
+
+def test_threshold_trials_equal_single_solves() -> None:
+    # One batch of the threshold's trial values, against a single solve of each.
+    design = design_from(BASE_CE)
+    s = solve(design)
+    trials = _Trials(design, "RC", s.op.x, s.f_osc)
+    values = np.array([300.0, 1e3, 4.7e3])
+    log_gain = trials.log_gain(np.log(values))
+    for value, g in zip(values, log_gain, strict=True):
+        assert g == pytest.approx(np.log(solve(with_param(design, "RC", value)).gain), abs=1e-9)
 
 
 def test_source_stepped_members_equal_their_single_solves() -> None:
@@ -102,6 +142,9 @@ def test_pushing_equals_difference_of_single_solves() -> None:
     assert push == pytest.approx((up - down) / (2 * PUSH_STEP * 10.0), rel=1e-6)
     open_load = design.model_copy(update={"load": design.load.model_copy(update={"R_load": None})})
     assert shift == pytest.approx(s.f_osc - solve(open_load).f_osc, rel=1e-6)
+    # the stated load change rides in the same batch
+    changed = solve(load_changed(design)).f_osc
+    assert neighbours(s).load_change_ppm == pytest.approx((changed / s.f_osc - 1) * 1e6, rel=1e-6)
 
 
 def _near_threshold(tolerances: dict):
