@@ -51,6 +51,10 @@ BISECT_HANDOVER: Final = 1e-6
 BISECT_MAX: Final = 60
 #: Newton iterations allowed when refining a crossing.
 NEWTON_STEPS: Final = 30
+#: Batches of at least this many members drop the unknowns a supply pins
+#: before the search (:func:`without_pinned`): fewer to factorise per step,
+#: worth the reindexing once the factorisations dominate.
+CONDENSE_BATCH: Final = 64
 TWO_PI: Final = 2.0 * math.pi
 
 
@@ -241,6 +245,8 @@ def find_oscillation(
         )
         return LoopFigures(*(a[0] for a in _astuple(figs)))
     batch = np.shape(ss.gm)
+    if np.size(ss.gm) >= CONDENSE_BATCH:
+        ss = without_pinned(ss)
     f_ref_a = np.broadcast_to(np.asarray(f_ref, dtype=float), batch)
     start = f_ref_a if f_guess is None else np.broadcast_to(np.asarray(f_guess, float), batch)
     first = refine_crossing(ss, start, start / SEARCH_SPAN, start * SEARCH_SPAN)
@@ -253,6 +259,49 @@ def find_oscillation(
     for out, part in zip(merged, _astuple(second), strict=True):
         out[todo] = part
     return LoopFigures(*merged)
+
+
+def without_pinned(ss: SmallSignal) -> SmallSignal:
+    """``ss`` without the unknowns an ideal supply pins, for every member at once.
+
+    A supply's row reads v_p = 0 (it is an AC ground) and its branch current
+    appears only in node p's current law, so dropping that row and column
+    pair and node p's leaves the other unknowns, T(s), dT/ds and the load the
+    controlled source drives (u·x, x_p = 0) exactly as they were, with
+    smaller matrices to factorise.  The result's layout is that of ``ss``
+    (its indices no longer address the matrices: loop figures only).
+    """
+    G, C = ss.G, ss.C
+    n = G.shape[-1]
+    G0, C0 = G.reshape(-1, n, n)[0], C.reshape(-1, n, n)[0]
+    drop: list[int] = []
+    for k in range(n):
+        # the pattern of member 0 names the candidates; every member must share it
+        hits = np.flatnonzero(G0[k])
+        if hits.size != 1 or hits[0] == k or C0[k].any() or C0[:, k].any():
+            continue
+        p = int(hits[0])
+        if np.flatnonzero(G0[:, k]).tolist() != [p] or p in drop or k in drop:
+            continue
+        row, col = G[..., k, :], G[..., :, k]
+        if (
+            np.count_nonzero(row) == row[..., p].size
+            and np.count_nonzero(col) == col[..., p].size
+            and np.all(np.abs(row[..., p]) == 1.0)
+            and not np.any(C[..., k, :])
+            and not np.any(C[..., :, k])
+        ):
+            drop += [k, p]
+    if not drop:
+        return ss
+    keep = np.setdiff1d(np.arange(n), drop)
+    return dataclasses.replace(
+        ss,
+        G=G[..., keep[:, None], keep],
+        C=C[..., keep[:, None], keep],
+        u=ss.u[keep],
+        w=ss.w[keep],
+    )
 
 
 def _grid_search(ss: SmallSignal, f_ref: np.ndarray) -> LoopFigures:

@@ -35,6 +35,7 @@ from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.pipeline import (
     BatchSolution,
     f_ideal_of,
+    join_values,
     part_values,
     patterns_of_structure,
     solve_values,
@@ -188,17 +189,51 @@ def analyse_batch(
     """The small-signal analysis of every sample at ``T_C``: one batch of the pipeline."""
     n_samples = len(vals["L"])
     prepared = prepared or _prepare(design)
-    nominal = prepared.nominal
     values: dict = {**part_values(design), **vals, "temperature_C": T_C}
-    f_ideal = f_ideal_of(values, n_samples)
-    # Start each sample's search where the nominal design's crossing sits
-    # relative to its ideal resonance, and its Newton at the nominal DC point.
-    offset = nominal.f_osc / nominal.tank.f_ideal if nominal.f_osc else 1.0
-    sol = solve_values(prepared.patterns, values, n_samples, nominal.op.x, f_ideal * offset)
+    sol = _solve_samples(values, n_samples, prepared)
     loop = sol.loop
     with np.errstate(divide="ignore", invalid="ignore"):
         sigma = np.where(loop.found, ((1.0 - loop.T) / loop.dT_ds).real, np.nan)
     return Batch(T_C, sol, sigma)
+
+
+def _solve_samples(values: dict, n_samples: int, prepared: _Prepared) -> BatchSolution:
+    """The pipeline on samples' part values (temperature included, a float or
+    one per sample), warm-started from the nominal design."""
+    nominal = prepared.nominal
+    f_ideal = f_ideal_of(values, n_samples)
+    # Start each sample's search where the nominal design's crossing sits
+    # relative to its ideal resonance, and its Newton at the nominal DC point.
+    offset = nominal.f_osc / nominal.tank.f_ideal if nominal.f_osc else 1.0
+    return solve_values(prepared.patterns, values, n_samples, nominal.op.x, f_ideal * offset)
+
+
+def _band(
+    design: Design, draws: Draws, temperatures: np.ndarray, prepared: _Prepared
+) -> list[tuple[float, float, float, float]]:
+    """f_osc percentiles (5, 50, 95) of the samples at each temperature: every
+    temperature's samples in one batch of the pipeline."""
+    n = len(draws.values["L"])
+    blocks = [
+        (
+            {
+                **part_values(design),
+                **values_at(design, draws, float(T)),
+                "temperature_C": float(T),
+            },
+            n,
+        )
+        for T in temperatures
+    ]
+    sol = _solve_samples(join_values(blocks), n * len(blocks), prepared)
+    f_all = np.where(sol.converged, sol.loop.f_osc, np.nan).reshape(len(blocks), n)
+    band = []
+    for T, f in zip(temperatures, f_all, strict=True):
+        f = f[np.isfinite(f)]
+        if f.size:
+            p5, p50, p95 = np.percentile(f, (5, 50, 95))
+            band.append((float(T), float(p5), float(p50), float(p95)))
+    return band
 
 
 @dataclass(frozen=True)
@@ -304,16 +339,12 @@ def monte_carlo(
             }
         )
     band_draws = draw(design, min(samples, TEMPERATURE_BAND_SAMPLES), seed)
-    band = []
     lo, hi = design.tolerances.T_min, design.tolerances.T_max
-    for T in np.linspace(lo, hi, TEMPERATURE_STEPS if hi > lo else 1):
-        b = analyse_batch(design, values_at(design, band_draws, float(T)), float(T), prepared)
-        f = b.f_osc[np.isfinite(b.f_osc)]
-        if f.size:
-            p5, p50, p95 = np.percentile(f, (5, 50, 95))
-            band.append((float(T), float(p5), float(p50), float(p95)))
-        if progress is not None:
-            progress(min(1.0, (len(batches) + len(band)) / steps))
+    band = _band(
+        design, band_draws, np.linspace(lo, hi, TEMPERATURE_STEPS if hi > lo else 1), prepared
+    )
+    if progress is not None:
+        progress(1.0)
     return Spread(
         samples=samples,
         seed=seed,

@@ -466,12 +466,7 @@ def small_signal(system: LinearSystem, hp: HybridPi) -> SmallSignal:
     inc = incidence(system.layout, system.devices[0])
     # i_b = g_pi v_be + g_r v_ce into the base, returning through the emitter;
     # i_c (without g_m v_be) = g_o v_ce into the collector, out of the emitter.
-    G = (
-        system.G
-        + _scaled(hp.g_pi, inc.B_BE)
-        + _scaled(hp.g_r, inc.B_CE)
-        + _scaled(hp.g_o, inc.C_CE)
-    )
+    G = _plus_scaled(system.G, ((hp.g_pi, inc.B_BE), (hp.g_r, inc.B_CE), (hp.g_o, inc.C_CE)))
     C = with_junction_capacitances(system.C, inc, hp.C_pi, hp.C_mu)
     return SmallSignal(system.layout, G, C, hp.gm, inc.P_C, inc.W_BE, hp)
 
@@ -479,8 +474,20 @@ def small_signal(system: LinearSystem, hp: HybridPi) -> SmallSignal:
 def with_junction_capacitances(C: np.ndarray, inc: Incidence, C_pi, C_mu) -> np.ndarray:
     """C with the junction capacitances C_π (base-emitter) and C_μ (base-collector), F,
     stamped in: the one stamp of them, for the small signal and the transient alike."""
-    C = C + np.asarray(C_pi)[..., None, None] * inc.S_BE
-    return C + np.asarray(C_mu)[..., None, None] * inc.S_BC
+    return _plus_scaled(C, ((C_pi, inc.S_BE), (C_mu, inc.S_BC)))
+
+
+def _plus_scaled(base: np.ndarray, terms) -> np.ndarray:
+    """base + Σ k·M over ``terms`` (k a float or batch array, M a stamp pattern),
+    touching only the patterns' few entries: the same sums, in the same order,
+    as the dense expression, without its full-size temporaries."""
+    ks = [np.asarray(k, dtype=float) for k, _M in terms]
+    shape = np.broadcast_shapes(np.shape(base)[:-2], *(k.shape for k in ks)) + np.shape(base)[-2:]
+    out = np.array(np.broadcast_to(base, shape), dtype=np.result_type(base, float))
+    for k, (_k, M) in zip(ks, terms, strict=True):
+        for i, j in zip(*np.nonzero(M), strict=True):
+            out[..., i, j] += k * M[i, j]
+    return out
 
 
 @dataclass(frozen=True)

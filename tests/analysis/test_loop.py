@@ -8,7 +8,7 @@ import math
 import numpy as np
 import pytest
 
-from ringwise.analysis.loop import find_oscillation, return_ratio
+from ringwise.analysis.loop import CONDENSE_BATCH, find_oscillation, return_ratio, without_pinned
 from ringwise.analysis.operating import solve
 from tests.conftest import BASE_CE, design_from
 
@@ -60,3 +60,26 @@ def test_no_crossing_is_nan() -> None:
     s = solve(design_from(BASE_CE, tank__Q_L=0.2))
     assert s.f_osc is None
     assert np.isnan(s.loop.gain) and np.isnan(s.loop.Q_loaded)
+
+
+def test_large_batch_without_the_pinned_unknowns_equals_single_solves() -> None:
+    # A batch of CONDENSE_BATCH members drops the supply's pinned unknowns
+    # before its search; each member must keep the figures of its own solve.
+    s = solve(design_from(BASE_CE))
+    assert without_pinned(s.ss).G.shape[-1] == s.ss.G.shape[-1] - 2  # v_cc and the supply's current
+    scale = np.linspace(0.8, 1.25, CONDENSE_BATCH)
+    batch = dataclasses.replace(
+        s.ss,
+        G=np.broadcast_to(s.ss.G, (CONDENSE_BATCH, *s.ss.G.shape)),
+        C=s.ss.C * scale[:, None, None],
+        gm=s.ss.gm * scale,
+    )
+    assert without_pinned(batch).G.shape[-1] == s.ss.G.shape[-1] - 2
+    figs = find_oscillation(batch, s.tank.f_ideal / np.sqrt(scale))
+    for i in (0, CONDENSE_BATCH // 2, CONDENSE_BATCH - 1):
+        one = dataclasses.replace(s.ss, G=s.ss.G, C=batch.C[i], gm=batch.gm[i])
+        alone = find_oscillation(one, s.tank.f_ideal / np.sqrt(scale[i]))
+        for a, b in ((figs.f_osc[i], alone.f_osc), (figs.gain[i], alone.gain)):
+            assert a == pytest.approx(float(b), rel=1e-9)
+        assert figs.Q_loaded[i] == pytest.approx(float(alone.Q_loaded), rel=1e-7)
+        assert figs.Z_out[i] == pytest.approx(float(alone.Z_out), rel=1e-9)
