@@ -22,6 +22,7 @@ efficiency = (coil loss + load power)/DC input power.
 
 from __future__ import annotations
 
+import cmath
 import math
 import threading
 from dataclasses import dataclass, field
@@ -332,12 +333,15 @@ def _figures(
     P_tank = next(p.P for p in parts if p.part == "L")
     P_load = next((p.P for p in parts if p.part == "R_load"), 0.0)
     P_in = _input_power(solved, system, dyn, orbit)
+    # one period of each waveform from the output's rising zero crossing (its
+    # fundamental's), wherever the solver's phase condition left the orbit
+    shift = _start_phase(spec_out[1])
     waveforms = {"t": orbit.t.tolist()}
     for name, idx in lay.node.items():
-        waveforms[name] = X[:, idx].tolist()
-    waveforms["i_L"] = X[:, lay.branch["L"]].tolist()
-    waveforms["v_be"] = v_be.tolist()
-    waveforms["v_ce"] = v_ce.tolist()
+        waveforms[name] = _shifted(X[:, idx], shift).tolist()
+    waveforms["i_L"] = _shifted(X[:, lay.branch["L"]], shift).tolist()
+    waveforms["v_be"] = _shifted(v_be, shift).tolist()
+    waveforms["v_ce"] = _shifted(v_ce, shift).tolist()
     return SteadyState(
         behaviour=fl.behaviour,
         reason=None,
@@ -351,7 +355,7 @@ def _figures(
         IC_avg=IC_avg,
         VE_avg=VE_avg,
         VE_shift=VE_avg - solved.op.VE,
-        VCE_min=float(v_ce.min()),
+        VCE_min=-band_limited_max(-v_ce),
         P_tank=P_tank,
         P_load=P_load,
         P_in=P_in,
@@ -379,30 +383,91 @@ def _parts(solved: Solved, system: LinearSystem, orbit: Orbit) -> list[PartPower
                 continue
             v = _across(lay, X, el.a, el.b)
             i_ac = (v - orbit.mean(v)) / el.R
-            peak = float(np.max(np.abs(v)))
+            peak = _peak(v)
             out.append(PartPower(el.name, _rms(orbit, i_ac), peak, float(orbit.mean(v * v)) / el.R))
         elif isinstance(el, Capacitor):
             v = _across(lay, X, el.a, el.b)
             # i = C dv/dt, its step average C·Δv/h_k (the trapezoidal rule's own)
             i_step = el.C * np.diff(v) / orbit.h
             I_rms = float(math.sqrt(float(np.dot(orbit.dtau, i_step**2))))
-            out.append(PartPower(el.name, I_rms, float(np.max(np.abs(v))), 0.0))
+            out.append(PartPower(el.name, I_rms, _peak(v), 0.0))
         elif isinstance(el, Inductor):
             i = X[:, lay.branch[el.name]]
             v = _across(lay, X, el.a, el.b)
             P = el.R_s * float(orbit.mean(i * i))
-            out.append(
-                PartPower(el.name, _rms(orbit, i - orbit.mean(i)), float(np.max(np.abs(v))), P)
-            )
+            out.append(PartPower(el.name, _rms(orbit, i - orbit.mean(i)), _peak(v), P))
     dev = system.devices[0]
     IC, IB = orbit.phi[:, 0], orbit.phi[:, 1]
     v_be = _across(lay, X, dev.b, dev.e)
     v_ce = _across(lay, X, dev.c, dev.e)
     P = float(orbit.mean(IC * v_ce + IB * v_be))
-    out.append(
-        PartPower(dev.name, _rms(orbit, IC - orbit.mean(IC)), float(np.max(np.abs(v_ce))), P)
-    )
+    out.append(PartPower(dev.name, _rms(orbit, IC - orbit.mean(IC)), _peak(v_ce), P))
     return out
+
+
+#: Newton steps that refine an extreme of the band-limited interpolant.
+EXTREME_STEPS: Final = 6
+
+
+def _harmonic_weights(N: int, size: int) -> np.ndarray:
+    """Weights that turn rfft(v)/N into the trigonometric interpolant's coefficients."""
+    k = np.arange(size)
+    return np.where((k == 0) | ((N % 2 == 0) & (k == N // 2)), 1.0, 2.0)
+
+
+def band_limited_max(values: np.ndarray) -> float:
+    """Largest value of the trigonometric interpolant of one period of samples.
+
+    ``values`` are N+1 samples on the orbit's uniform grid (the last repeats the
+    first).  The largest sample depends on where the grid falls on the
+    waveform (by up to (ωh)²/8 of its swing); the interpolant's maximum, found
+    by Newton's method on its derivative from the largest sample, does not —
+    so the figure is the same whatever phase the solver left the orbit at.
+    """
+    v = np.asarray(values[:-1], dtype=float)
+    N = v.size
+    i = int(np.argmax(v))
+    a = np.fft.rfft(v) / N
+    a *= _harmonic_weights(N, a.size)
+    k = np.arange(a.size)
+    theta = 2.0 * math.pi * i / N
+    for _ in range(EXTREME_STEPS):
+        e = a * np.exp(1j * k * theta)
+        d1 = float(np.real(np.sum(1j * k * e)))
+        d2 = float(np.real(np.sum(-(k**2) * e)))
+        if not d2 < 0.0:
+            break
+        step = max(-math.pi / N, min(math.pi / N, -d1 / d2))
+        theta += step
+        if abs(step) < 1e-12:
+            break
+    best = float(np.real(np.sum(a * np.exp(1j * k * theta))))
+    return max(best, float(v[i]))
+
+
+def _peak(v: np.ndarray) -> float:
+    """Largest |v| over the period (band-limited, see :func:`band_limited_max`)."""
+    return max(band_limited_max(v), band_limited_max(-v))
+
+
+def _start_phase(c1: complex) -> float:
+    """Fraction of a period from the orbit's start to the rising zero crossing of the
+    fundamental whose complex peak amplitude (c_k = (2/T)∫v e^{−jkωt}) is ``c1``."""
+    # v ≈ |c1|cos(ωt + arg c1) rises through zero where ωt + arg c1 = −π/2
+    return ((-0.5 * math.pi - cmath.phase(c1)) / (2.0 * math.pi)) % 1.0
+
+
+def _shifted(values: np.ndarray, shift: float) -> np.ndarray:
+    """One period of samples (N+1, uniform grid) advanced by ``shift`` periods, by the
+    trigonometric interpolant (exact for whole steps)."""
+    v = np.asarray(values[:-1], dtype=float)
+    N = v.size
+    c = np.fft.rfft(v)
+    c *= np.exp(2j * math.pi * np.arange(c.size) * shift)
+    if N % 2 == 0:
+        c[-1] = c[-1].real  # the Nyquist term stays real (a cosine at the grid's rate)
+    out = np.fft.irfft(c, N)
+    return np.concatenate((out, out[:1]))
 
 
 def _rms(orbit: Orbit, v: np.ndarray) -> float:

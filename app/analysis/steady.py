@@ -385,6 +385,13 @@ def shoot(
         dx[dyn_idx] = step[:m] / w
         done = (T, dtau, S, Phi, dxdT_T / T, dyn_idx, it - 1, w, level, floating)
         if err <= tol and abs(dT) <= PERIOD_TOL * T:
+            # One more (quadratically convergent) step, taken without a new
+            # linearisation: what is left of the start point — a residual of
+            # 1e-9 is an error of 1e-5 along a multiplier of 0.9999 — falls to
+            # round-off, so the orbit does not depend on where Newton began.
+            final_traj, final_err = mismatch(x + dx, T + dT)
+            if final_traj is not None and final_err <= err:
+                return _finish(final_traj, T + dT, *done[1:])
             return _finish(traj, *done)
         # Damped Newton with the natural monotonicity test: a step is taken
         # when the simplified correction A⁻¹r(new) is shorter than A⁻¹r(old),

@@ -375,6 +375,39 @@ def test_warm_start_after_an_edit_finds_the_cold_orbit():
     assert warm.f == pytest.approx(cold.f, rel=1e-9)
 
 
+#: Figures of the steady state compared between a cold and a warm start.
+SHOWN_FIGURES = ("f", "amp_out", "amp_be", "thd", "IC_avg", "VE_avg", "VCE_min", "P_tank", "P_in")
+
+
+@pytest.mark.parametrize("path", SAMPLES, ids=lambda p: p.stem)
+def test_the_same_design_gives_the_same_figures_whatever_was_solved_before(path):
+    """Warm-started from neighbours solved before it, a design's figures, parts and
+    waveforms equal its cold-start ones to well below the printed digits
+    (reproducibility; common practice, no source)."""
+    from ringwise.analysis.periodic import forget
+    from ringwise.circuit.topologies import gain_setter
+    from ringwise.display import format_value
+
+    design = _sample(path)
+    part = gain_setter(design)
+    cold = steady_state(solve(design), warm=False)
+    for k in (1.03, 0.95):
+        forget()
+        steady_state(solve(with_param(design, part, get_param(design, part) * k)))
+        warm = steady_state(solve(design))
+        assert warm.orbit.iterations < cold.orbit.iterations
+        for name in SHOWN_FIGURES:
+            a, b = getattr(cold, name), getattr(warm, name)
+            assert b == pytest.approx(a, rel=1e-7), name
+            assert format_value(b, "V") == format_value(a, "V"), name
+        for pa, pb in zip(cold.parts, warm.parts, strict=True):
+            assert pb.V_peak == pytest.approx(pa.V_peak, rel=1e-6), pa.part
+        # one period from the output's rising crossing, wherever Newton started
+        for name, wave in cold.waveforms.items():
+            a, b = np.array(wave), np.array(warm.waveforms[name])
+            assert np.max(np.abs(a - b)) <= 1e-6 * np.max(np.abs(a)), name
+
+
 def test_orbit_exposes_what_phase_noise_needs():
     """The left eigenvector of the monodromy for multiplier 1, carried back with S_kᵀ,
     stays periodic (its value after one period equals the start): the orbit's
