@@ -303,19 +303,21 @@ class _Stepper:
         if h not in self._cache:
             sm = self.step_matrices(h)
             m = sm.M.ravel().tolist()
-            self._cache[h] = (sm.B, sm.c, sm.K[:, 0].copy(), sm.K[:, 1].copy(), *m)
+            self._cache[h] = (sm.B, sm.c, np.ascontiguousarray(sm.K), *m)
         return self._cache[h]
 
     def step(self, h: float, x: np.ndarray, v: tuple, v_prev: tuple, ph: tuple):
         """One step from state x (controls v, previous controls v_prev, device state ph)."""
         if self.extra:
             return self._step_extended(h, x, v, v_prev, ph)
-        B, c, K0, K1, m00, m01, m10, m11 = self.matrices(h)
-        y = B @ x + c
-        wy = (self.Wt @ y).tolist()
+        B, c, K, m00, m01, m10, m11 = self.matrices(h)
+        # as few numpy calls as possible: this runs 128 times a period
+        y = np.dot(B, x)
+        y += c
+        wy0, wy1 = np.dot(self.Wt, y).tolist()
         ic_n, ib_n = ph[0], ph[1]
-        a0 = wy[0] - (m00 * ic_n + m01 * ib_n)
-        a1 = wy[1] - (m10 * ic_n + m11 * ib_n)
+        a0 = wy0 - (m00 * ic_n + m01 * ib_n)
+        a1 = wy1 - (m10 * ic_n + m11 * ib_n)
         # Start Newton from the linear extrapolation of the controls, and from
         # the last controls if that does not converge.
         for vbe, vce in ((2.0 * v[0] - v_prev[0], 2.0 * v[1] - v_prev[1]), v):
@@ -324,10 +326,9 @@ class _Stepper:
                 break
         else:
             return None
-        vbe, vce = found
-        q = self.phi(vbe, vce)
-        x_new = y - K0 * (ic_n + q[0]) - K1 * (ib_n + q[1])
-        return x_new, (vbe, vce), q
+        vbe, vce, q = found
+        y -= np.dot(K, np.array((ic_n + q[0], ib_n + q[1])))
+        return y, (vbe, vce), q
 
     def _extended_matrices(self, h: float) -> StepMatrices:
         key = ("extended", h)
@@ -427,8 +428,14 @@ class _Stepper:
                 return tuple(v.tolist())
         return None
 
-    def _newton(self, vbe, vce, a0, a1, m00, m01, m10, m11) -> tuple[float, float] | None:
-        """Solve v + M·φ(v) = a for the two controls; ``None`` if it does not converge."""
+    def _newton(self, vbe, vce, a0, a1, m00, m01, m10, m11) -> tuple | None:
+        """Solve v + M·φ(v) = a for the two controls; ``None`` if it does not converge.
+
+        Returns the last iterate at which φ was evaluated, with φ there: the
+        correction that passed the test (below NEWTON_TOL) is not applied, so
+        the controls and the device tuple stay one consistent pair without a
+        further evaluation of φ.
+        """
         phi, clamp, tol = self.phi, NEWTON_CLAMP, NEWTON_TOL
         for _ in range(NEWTON_MAX):
             q = phi(vbe, vce)
@@ -444,13 +451,13 @@ class _Stepper:
                 return None  # singular (or NaN): this start does not converge
             d0 = (g0 * j11 - g1 * j01) / det
             d1 = (j00 * g1 - j10 * g0) / det
+            if -tol < d0 < tol and -tol < d1 < tol:
+                return vbe, vce, q
             if d0 > clamp or d0 < -clamp or d1 > clamp or d1 < -clamp:
                 d0 = max(-clamp, min(clamp, d0))
                 d1 = max(-clamp, min(clamp, d1))
             vbe -= d0
             vce -= d1
-            if -tol < d0 < tol and -tol < d1 < tol:
-                return vbe, vce
         return None
 
 
