@@ -56,9 +56,12 @@ from ringwise.circuit.topologies import T1
 
 #: Harmonics reported (2nd … HARMONICS-th).
 HARMONICS: Final = 7
-#: Periods carried by the stepper from the cold start before Newton, and
-#: again (once) if Newton fails from there.
-PRE_PERIODS: Final = 3
+#: Periods carried by the stepper from the cold start before Newton (one lines
+#: the tank up with its orbit; more cost more than the Newton steps they
+#: save); if Newton fails from there, SECOND_PERIODS more, then RETRY_PERIODS
+#: (hard-driven designs, loop gains of tens, need the longer ways in).
+PRE_PERIODS: Final = 1
+SECOND_PERIODS: Final = 3
 RETRY_PERIODS: Final = 40
 #: The start's collector swing is at most this fraction of the DC V_CE.
 START_HEADROOM: Final = 0.8
@@ -271,7 +274,8 @@ def _cold(
     N = STEPS_PER_PERIOD
     h = T0 / N
     error: ShootingError | None = None
-    for periods, middle in ((PRE_PERIODS, False), (RETRY_PERIODS, True)):
+    ladder = ((PRE_PERIODS, False), (SECOND_PERIODS, False), (RETRY_PERIODS, True))
+    for periods, middle in ladder:
         traj = _trajectory(stepper, x0, h, N * periods, PRE_SUBSTEPS)
         if traj is None:
             raise ShootingError("a trapezoidal step failed on the way in")
@@ -376,33 +380,45 @@ def _parts(solved: Solved, system: LinearSystem, orbit: Orbit) -> list[PartPower
     """Every R, C and L, and the transistor: RMS signal current, peak voltage, dissipation."""
     lay = system.layout
     X = orbit.x
-    out = []
+    rows: list[tuple[str, float, float]] = []  # (part, I_rms, P)
+    volts: list[np.ndarray] = []
     for el in solved.netlist:
         if isinstance(el, Resistor):
             if not np.isfinite(el.R):
                 continue
             v = _across(lay, X, el.a, el.b)
             i_ac = (v - orbit.mean(v)) / el.R
-            peak = _peak(v)
-            out.append(PartPower(el.name, _rms(orbit, i_ac), peak, float(orbit.mean(v * v)) / el.R))
+            rows.append((el.name, _rms(orbit, i_ac), float(orbit.mean(v * v)) / el.R))
         elif isinstance(el, Capacitor):
             v = _across(lay, X, el.a, el.b)
             # i = C dv/dt, its step average C·Δv/h_k (the trapezoidal rule's own)
             i_step = el.C * np.diff(v) / orbit.h
-            I_rms = float(math.sqrt(float(np.dot(orbit.dtau, i_step**2))))
-            out.append(PartPower(el.name, I_rms, _peak(v), 0.0))
+            rows.append((el.name, float(math.sqrt(float(np.dot(orbit.dtau, i_step**2)))), 0.0))
         elif isinstance(el, Inductor):
             i = X[:, lay.branch[el.name]]
             v = _across(lay, X, el.a, el.b)
-            P = el.R_s * float(orbit.mean(i * i))
-            out.append(PartPower(el.name, _rms(orbit, i - orbit.mean(i)), _peak(v), P))
+            rows.append(
+                (el.name, _rms(orbit, i - orbit.mean(i)), el.R_s * float(orbit.mean(i * i)))
+            )
+        else:
+            continue
+        volts.append(v)
     dev = system.devices[0]
     IC, IB = orbit.phi[:, 0], orbit.phi[:, 1]
     v_be = _across(lay, X, dev.b, dev.e)
     v_ce = _across(lay, X, dev.c, dev.e)
-    P = float(orbit.mean(IC * v_ce + IB * v_be))
-    out.append(PartPower(dev.name, _rms(orbit, IC - orbit.mean(IC)), _peak(v_ce), P))
-    return out
+    rows.append(
+        (dev.name, _rms(orbit, IC - orbit.mean(IC)), float(orbit.mean(IC * v_ce + IB * v_be)))
+    )
+    volts.append(v_ce)
+    V = np.stack(volts)
+    # largest |v| of every part at once: the band-limited maxima of v and −v
+    both = band_limited_max(np.concatenate((V, -V)))
+    peaks = np.maximum(both[: len(V)], both[len(V) :])
+    return [
+        PartPower(name, I_rms, float(pk), P)
+        for (name, I_rms, P), pk in zip(rows, peaks, strict=True)
+    ]
 
 
 #: The band-limited interpolant is evaluated on a grid this many times finer
@@ -440,11 +456,6 @@ def band_limited_max(values: np.ndarray) -> np.ndarray | float:
         top = np.where(curv < 0.0, b - 0.125 * (d - a) ** 2 / curv, b)
     top = np.maximum(top, v.max(axis=-1))
     return float(top) if np.ndim(top) == 0 else top
-
-
-def _peak(v: np.ndarray) -> float:
-    """Largest |v| over the period (band-limited, see :func:`band_limited_max`)."""
-    return float(np.max(band_limited_max(np.stack((v, -v)))))
 
 
 def _start_phase(c1: complex) -> float:

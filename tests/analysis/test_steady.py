@@ -404,7 +404,9 @@ def test_the_same_design_gives_the_same_figures_whatever_was_solved_before(path)
         # turns a change of 1e-9 into 1e-5 of the settling time
         assert warm.settle_cycles == pytest.approx(cold.settle_cycles, rel=1e-4)
         for pa, pb in zip(cold.parts, warm.parts, strict=True):
-            assert pb.V_peak == pytest.approx(pa.V_peak, rel=1e-6), pa.part
+            # the band-limited peak of a sampled waveform moves with the grid's
+            # phase only by what the grid aliases: parts per million
+            assert pb.V_peak == pytest.approx(pa.V_peak, rel=1e-5), pa.part
         # one period from the output's rising crossing, wherever Newton started
         for name, wave in cold.waveforms.items():
             a, b = np.array(wave), np.array(warm.waveforms[name])
