@@ -90,8 +90,14 @@ class Bias(_Part):
 
 
 class Tank(_Part):
-    L: Henries = Field(description="Tank inductance, H")
-    Q_L: Quality = Field(description="Unloaded Q of the inductor at the tank's ideal resonance")
+    L: Henries | None = Field(
+        default=None, description="Tank inductance, H (required unless a crystal replaces the coil)"
+    )
+    Q_L: Quality | None = Field(
+        default=None,
+        description="Unloaded Q of the inductor at the tank's ideal resonance "
+        "(required unless a crystal replaces the coil)",
+    )
     C1: Farads = Field(description="Tank capacitor, collector side (across C-E), F")
     C2: Farads = Field(description="Tank capacitor, base side (across B-E), F")
     C3: Farads | None = Field(default=None, description="Clapp capacitor in series with L, F")
@@ -383,6 +389,26 @@ class Design(_Part):
     def _parts_for_topology(self) -> Design:
         needs = self.needed_parts()
         missing = [part for part in needs if getattr(self.bias, part) is None]
+        if self.crystal is None:
+            # the coil sets the tank unless a crystal takes its place
+            lacking = [p for p in ("L", "Q_L") if getattr(self.tank, p) is None]
+            if lacking:
+                raise ValidationError.from_exception_data(
+                    "Design",
+                    [
+                        InitErrorDetails(
+                            type=PydanticCustomError(
+                                "coil_required",
+                                "tank.{part} is required without a crystal "
+                                "(the coil sets the tank)",
+                                {"part": part},
+                            ),
+                            loc=("tank", part),
+                            input=None,
+                        )
+                        for part in lacking
+                    ],
+                )
         if missing:
             raise ValidationError.from_exception_data(
                 "Design",

@@ -48,6 +48,8 @@ def _message(error: dict[str, Any]) -> str:
         return "is required"
     if kind == "part_required":
         return f"is required by the {ctx.get('form')}"
+    if kind == "coil_required":
+        return "is required without a crystal (the coil sets the tank)"
     if kind == "extra_forbidden":
         return "is not a field of the design format"
     if kind == "value_error":

@@ -65,10 +65,14 @@ def test_wrong_unit_is_caught() -> None:
 
 def test_missing_and_extra_fields() -> None:
     data = copy.deepcopy(BASE_CE)
-    del data["tank"]["L"]
+    del data["tank"]["L"]  # optional only where a crystal replaces the coil
+    fields = {p["field"]: p["message"] for p in _problems(data)}
+    assert fields == {"tank.L": "is required without a crystal (the coil sets the tank)"}
+    data = copy.deepcopy(BASE_CE)
+    del data["supply"]["Vcc"]
     data["tank"]["Lx"] = 1
     fields = {p["field"]: p["message"] for p in _problems(data)}
-    assert fields == {"tank.L": "is required", "tank.Lx": "is not a field of the design format"}
+    assert fields == {"supply.Vcc": "is required", "tank.Lx": "is not a field of the design format"}
 
 
 def test_form_needs_its_parts() -> None:

@@ -189,7 +189,9 @@ def steady_state(solved: Solved, warm: bool = True) -> SteadyState:
 def _scale(system: LinearSystem, solved: Solved) -> np.ndarray:
     """Weights of the unknowns: 1 for voltages, ω·L (Ω) for branch currents."""
     scale = np.ones(system.layout.size)
-    z = 2.0 * math.pi * (solved.f_osc or solved.tank.f_ideal) * solved.design.tank.L
+    L = solved.design.tank.L
+    L = solved.netlist["L"].L if L is None else L  # a crystal without a coil: its motional L
+    z = 2.0 * math.pi * (solved.f_osc or solved.tank.f_ideal) * L
     for idx in system.layout.branch.values():
         scale[idx] = z
     for el in system.varactors:  # its charge is in volts (q/C at the bias)

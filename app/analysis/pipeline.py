@@ -148,7 +148,10 @@ def stamp_values(
         elif name == CHOKE:
             out[(name, fld)] = _value(values["L_ch"], batch) if fld == "L" else 0.0
         elif name == CHOKE_LOSS:
-            R_p = choke_loss(values["L_ch"], values["Q_ch"], values["L"], C_s)
+            if _present(values, "C_x1"):  # at the crystal's resonance (no coil)
+                R_p = values["Q_ch"] * values["L_ch"] * 2.0 * np.pi * f_ideal_of(values, batch)
+            else:
+                R_p = choke_loss(values["L_ch"], values["Q_ch"], values["L"], C_s)
             out[(name, fld)] = 1.0 / _value(R_p, batch)
         elif name == CHOKE_SELF_C:
             out[(name, fld)] = _value(choke_self_capacitance(values["L_ch"], values["f_ch"]), batch)

@@ -141,7 +141,8 @@ def _apply(design: Design, p: np.ndarray) -> Design:
         v = get_param(design, part)
         if v is not None:
             out = with_param(out, part, v * k)
-    out = with_param(out, "Q_L", design.tank.Q_L * q)
+    if design.tank.Q_L is not None:  # a coil (a crystal has no Q_L to fit)
+        out = with_param(out, "Q_L", design.tank.Q_L * q)
     out = with_param(out, "beta", design.device.beta * b)
     if design.load.R_load is not None:
         out = with_param(out, "R_load", design.load.R_load * r)

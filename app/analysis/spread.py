@@ -114,7 +114,8 @@ def values_at(design: Design, draws: Draws, T_C: float) -> dict[str, np.ndarray]
     dT = T_C - T_REFERENCE_C
     for part, k in draws.cap_drift.items():
         out[part] = draws.values[part] * (1.0 + k * dT)
-    out["L"] = draws.values["L"] * (1.0 + design.tolerances.L_tempco_ppm * 1e-6 * dT)
+    if "L" in draws.values:  # a coil (a crystal replaces it)
+        out["L"] = draws.values["L"] * (1.0 + design.tolerances.L_tempco_ppm * 1e-6 * dT)
     return out
 
 
@@ -187,7 +188,7 @@ def analyse_batch(
     design: Design, vals: dict[str, np.ndarray], T_C: float, prepared: _Prepared | None = None
 ) -> Batch:
     """The small-signal analysis of every sample at ``T_C``: one batch of the pipeline."""
-    n_samples = len(vals["L"])
+    n_samples = len(vals["beta"])
     prepared = prepared or _prepare(design)
     values: dict = {**part_values(design), **vals, "temperature_C": T_C}
     sol = _solve_samples(values, n_samples, prepared)

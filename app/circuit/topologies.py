@@ -167,6 +167,7 @@ def tank_figures(design: Design) -> TankFigures:
         # the crystal's load capacitance is the capacitors' series combination
         f = float(crystal_frequency(x.L1, x.C_x1, x.C_x0, C_s))
         return TankFigures(C_series=C_s, f_ideal=f, R_s=x.R_x1, feedback_ratio=t.C1 / t.C2)
+    assert t.L is not None and t.Q_L is not None  # required without a crystal
     w0 = 1.0 / math.sqrt(t.L * C_s)
     return TankFigures(
         C_series=C_s,
@@ -195,7 +196,10 @@ def choke_figures(design: Design) -> ChokeFigures | None:
     b = design.bias
     assert b.L_ch is not None and b.Q_ch is not None
     t = design.tank
-    R_p = choke_loss(b.L_ch, b.Q_ch, t.L, design_tank_capacitance(design))
+    if design.crystal is not None:  # at the crystal's resonance with the circuit's load
+        R_p = b.Q_ch * 2.0 * math.pi * tank_figures(design).f_ideal * b.L_ch
+    else:
+        R_p = choke_loss(b.L_ch, b.Q_ch, t.L, design_tank_capacitance(design))
     C_self = 0.0 if b.f_ch is None else choke_self_capacitance(b.L_ch, b.f_ch)
     return ChokeFigures(R_p=float(R_p), C_self=float(C_self))
 
@@ -340,6 +344,7 @@ def build(design: Design) -> Netlist:
     clapp_varactor = v is not None and v.place == "clapp"
     end = lc[1] if t.C3 is None and not clapp_varactor else TL
     if design.crystal is None:
+        assert t.L is not None
         tank.append(Inductor("L", lc[0], end, t.L, R_s))
     else:
         # the motional arm keeps the coil's name "L": its current is the resonator's

@@ -84,7 +84,7 @@ def reactance_curves(design: Design, C_series: float, f_ideal: float) -> dict[st
     f = np.geomspace(f_ideal / REACTANCE_SPAN, f_ideal * REACTANCE_SPAN, REACTANCE_POINTS)
     w = TWO_PI * f
     t = design.tank
-    lines = [{"part": "L", "label": "L", "X": _finite(w * t.L)}]
+    lines = [] if t.L is None else [{"part": "L", "label": "L", "X": _finite(w * t.L)}]
     for part in ("C1", "C2", "C3"):
         C = getattr(t, part)
         if C is not None:

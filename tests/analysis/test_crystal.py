@@ -151,3 +151,29 @@ def test_spread_margin_at_every_corner_equals_the_single_design_figure() -> None
 def _poles_args(d):
     s = solve(d)
     return s.ss, s.tank.f_ideal, s.f_osc
+
+
+def test_a_crystal_design_needs_no_coil() -> None:
+    """The crystal replaces the coil: L and Q_L may be left out, and the figures are
+    those of the same design with an (unused) coil written in."""
+    with_coil = pierce()
+    data = with_coil.model_dump(mode="json")
+    data["tank"].update(L=None, Q_L=None)
+    no_coil = Design.model_validate(data)
+    assert no_coil.tank.L is None and "L" in build(no_coil)  # the motional arm
+    a, b = analyze(with_coil), analyze(no_coil)
+    assert b.loop.f_osc == pytest.approx(a.loop.f_osc, rel=1e-12)
+    assert b.loop.gain == pytest.approx(a.loop.gain, rel=1e-12)
+    assert b.crystal.margin == pytest.approx(a.crystal.margin, rel=1e-9)
+    assert b.steady_state.behaviour == a.steady_state.behaviour
+    assert b.steady_state.f == pytest.approx(a.steady_state.f, rel=1e-9)
+    assert b.crystal.P_drive == pytest.approx(a.crystal.P_drive, rel=1e-4)
+    from ringwise.analysis.spread import monte_carlo
+
+    assert monte_carlo(no_coil, samples=10, seed=2).crystal_margin_min > 0
+    # a coil design still needs its coil, and says why
+    coil = with_coil.model_dump(mode="json")
+    coil["crystal"] = None
+    coil["tank"]["Q_L"] = None
+    with pytest.raises(ValidationError, match=r"tank\.Q_L is required without a crystal"):
+        Design.model_validate(coil)

@@ -1,5 +1,5 @@
 """The varactor's inputs, results panel, plot and summary lines on the pages, and its
-figures in the command line's answer."""
+figures in the command line's answer; a crystal design on the sheet without a coil."""
 
 from __future__ import annotations
 
@@ -46,3 +46,12 @@ def test_cli_table_and_json_carry_the_tuning(capsys):
     assert main(["analyze", path, "--format", "table"]) == 0
     out = capsys.readouterr().out
     assert "Tuning gain K at V_min" in out and "RF swing forward-biases the diode" in out
+
+
+def test_a_crystal_design_on_the_sheet_needs_no_coil(client):
+    view = client.get("/sheet.json?design=crystal-clock-10M&L=&Q_L=").json()
+    assert view["ok"] and view["problems"] == []
+    assert view["result"]["crystal"]["margin"] > 0
+    coil = client.get("/sheet.json?design=clapp-clock-1M&Q_L=").json()
+    assert not coil["ok"]
+    assert any(p.get("field") == "tank.Q_L" for p in coil["problems"])
