@@ -127,9 +127,12 @@ def tuning(design: Design, large_signal: bool = True) -> Tuning | None:
     gain = np.asarray(sol.gain, dtype=float)
     starts = np.asarray(sol.starts, dtype=bool)
     C_b = varactor_branch(v.C_v, v.C_j0, v.phi_j, v.m_j, V)
-    points = [_point(design, v.V_min + frac * (v.V_max - v.V_min)) for frac in STEADY_FRACTIONS]
-    if not large_signal:
-        points = []
+    # the steady states only when asked for (the first answer is small-signal only)
+    points = (
+        [_point(design, v.V_min + frac * (v.V_max - v.V_min)) for frac in STEADY_FRACTIONS]
+        if large_signal
+        else []
+    )
     fb = [p.forward_biased for p in points if p.forward_biased is not None]
     f_ok = f[ok]
     return Tuning(

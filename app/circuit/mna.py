@@ -49,6 +49,9 @@ from ringwise.circuit.npn import (
 
 #: Conductance from every node to ground, S (SPICE's default GMIN).
 G_MIN = 1e-12
+#: Batches of at least this many circuits get the device's stamps entry by
+#: entry (a few strided additions); smaller ones as whole matrices (fewer calls).
+SPARSE_STAMP_BATCH = 64
 
 
 @dataclass(frozen=True)
@@ -483,6 +486,11 @@ def _plus_scaled(base: np.ndarray, terms) -> np.ndarray:
     as the dense expression, without its full-size temporaries."""
     ks = [np.asarray(k, dtype=float) for k, _M in terms]
     shape = np.broadcast_shapes(np.shape(base)[:-2], *(k.shape for k in ks)) + np.shape(base)[-2:]
+    if math.prod(shape[:-2]) < SPARSE_STAMP_BATCH:
+        out = base
+        for k, (_k, M) in zip(ks, terms, strict=True):
+            out = out + k[..., None, None] * M
+        return out
     out = np.array(np.broadcast_to(base, shape), dtype=np.result_type(base, float))
     for k, (_k, M) in zip(ks, terms, strict=True):
         for i, j in zip(*np.nonzero(M), strict=True):

@@ -9,6 +9,8 @@ import pytest
 
 from ringwise.analysis.criteria import Region, region_of
 from ringwise.circuit.mna import (
+    SPARSE_STAMP_BATCH,
+    LinearSystem,
     assemble,
     assemble_batch,
     device_currents,
@@ -185,3 +187,24 @@ def test_small_signal_full_matrix_is_the_linearised_jacobian() -> None:
         C_mu=0.0,
     )
     np.testing.assert_allclose(small_signal(system, hp).G_full, J, rtol=1e-12, atol=1e-15)
+
+
+def test_large_batch_small_signal_equals_each_member() -> None:
+    # From SPARSE_STAMP_BATCH circuits on, the hybrid-π and the junction
+    # capacitances go into their few entries one by one; every member must get
+    # exactly the matrices it gets alone.
+    system = assemble(build(design_from(BASE_CE)))
+    n = SPARSE_STAMP_BATCH
+    rng = np.random.default_rng(5)
+    g = rng.uniform(0.5, 2.0, (6, n))
+    hp = HybridPi(gm=g[0] * 0.04, g_pi=g[1] * 3e-4, g_o=g[2] * 1e-5, g_r=g[3] * -1e-9,
+                  C_pi=g[4] * 20e-12, C_mu=g[5] * 2e-12)  # fmt: skip
+    G = np.broadcast_to(system.G, (n, *system.G.shape))
+    C = np.broadcast_to(system.C, (n, *system.C.shape))
+    batch = small_signal(LinearSystem(system.layout, G, C, system.b, system.devices), hp)
+    for i in (0, n // 2, n - 1):
+        one = small_signal(
+            system, HybridPi(*(float(getattr(hp, f)[i]) for f in HybridPi.__slots__))
+        )
+        np.testing.assert_array_equal(batch.G[i], one.G)
+        np.testing.assert_array_equal(batch.C[i], one.C)
