@@ -64,7 +64,9 @@ MAX_LEVEL: Final = 3
 GRID_TOL: Final = 5e-3
 #: Newton on (x0, T): iteration cap, and convergence when the largest scaled
 #: mismatch x_N − x_0 is below RESIDUAL_TOL times the state's scale and the
-#: period step below PERIOD_TOL relative.
+#: period step below PERIOD_TOL relative; the step computed there is still
+#: taken, along the step linearisations, which leaves an error second order
+#: in it (see :func:`shoot`).
 NEWTON_MAX: Final = 40
 RESIDUAL_TOL: Final = 1e-6
 PERIOD_TOL: Final = 1e-6

@@ -353,7 +353,7 @@ class _Stepper:
                 break
         else:
             return None
-        q = self.phi(*found)
+        found, q = found  # the last iterate and φ there (see :meth:`_newton`)
         x_new = y - sm.K @ (i_n + self._currents(q))
         return x_new, found, q
 
@@ -392,12 +392,12 @@ class _Stepper:
             d2 = (j00 * (j11 * g2 - g1 * j21) + j01 * (g1 * j20 - j10 * g2) + g0 * k2) / det
             if d0 != d0 or d1 != d1 or d2 != d2:
                 return None
+            if -tol < d0 < tol and -tol < d1 < tol and -tol < d2 < tol:
+                return (v0, v1, v2), (*q, u, s)
             d0 = max(-clamp, min(clamp, d0))
             d1 = max(-clamp, min(clamp, d1))
             d2 = max(-clamp, min(clamp, d2))
             v0, v1, v2 = v0 - d0, v1 - d1, v2 - d2
-            if -tol < d0 < tol and -tol < d1 < tol and -tol < d2 < tol:
-                return v0, v1, v2
         return None
 
     def _newton_extended(self, v: np.ndarray, a: np.ndarray, M: np.ndarray) -> tuple | None:
@@ -422,10 +422,10 @@ class _Stepper:
                 return None
             if not np.all(np.isfinite(d)):
                 return None
+            if np.all(np.abs(d) < tol):
+                return tuple(v.tolist()), q
             d = np.clip(d, -clamp, clamp)
             v = v - d
-            if np.all(np.abs(d) < tol):
-                return tuple(v.tolist())
         return None
 
     def _newton(self, vbe, vce, a0, a1, m00, m01, m10, m11) -> tuple | None:
