@@ -796,7 +796,7 @@ async function runSpread() {
   );
   fill(p, a.shown);
   rows($("[data-role='spread-sens']", p), a.sensitivity_rows, ["part", "value", "tolerance", "S_f", "S_gain", "f_spread", "gain_spread"], a.shown);
-  rows($("[data-role='spread-worst']", p), a.worst_rows, ["sample", "T_C", "gain", "f_osc"], a.shown);
+  rows($("[data-role='spread-worst']", p), a.worst_rows, ["sample", "T_C", "V_tune", "gain", "f_osc"], a.shown);
   tools.spread.answer = a;
   toolDone("spread", a.query);
   const samplesCsv = $("a[data-spread-csv]");

@@ -249,6 +249,31 @@ def spread_view(
         put(f"spread.f_osc.{p}", v, display(v, "Hz"))
     for p, v in sp["gain"].items():
         put(f"spread.gain.{p}", v, display(v, ""))
+    tunes = sp["tuning_voltages"]
+    put(
+        "spread.tuning_voltages",
+        tunes,
+        ", ".join(display(v, "V") for v in tunes) if tunes else "no varactor (one per temperature)",
+    )
+    worst_x = sp["crystal_worst"]
+    put(
+        "spread.crystal_margin_min",
+        sp["crystal_margin_min"],
+        "no crystal" if worst_x is None else f"{display(sp['crystal_margin_min'], '')}×",
+    )
+    put(
+        "spread.crystal_margin_yield",
+        sp["crystal_margin_yield"],
+        "no crystal" if worst_x is None else _percent(sp["crystal_margin_yield"]),
+    )
+    put(
+        "spread.crystal_worst",
+        None if worst_x is None else worst_x["margin"],
+        "no crystal"
+        if worst_x is None
+        else f"sample {worst_x['sample']} at {display(worst_x['T_C'], '°C')}: R_neg "
+        f"{display(worst_x['R_neg'], 'Ω')}, {display(worst_x['margin'], '')}× R₁",
+    )
     window = sp["window"]
     window_text = f"{display(window[0], 'Hz')} to {display(window[1], 'Hz')}" if window else ""
     put("spread.window", window, window_text or "none given (every start counts)")
@@ -272,6 +297,8 @@ def spread_view(
         put(f"{base}.T_C", row["T_C"], display(row["T_C"], "°C"))
         put(f"{base}.gain", row["gain"], display(row["gain"], ""))
         put(f"{base}.f_osc", row["f_osc"], display(row["f_osc"], "Hz"))
+        V = row["V_tune"]
+        put(f"{base}.V_tune", V, "—" if V is None else display(V, "V"))
         worst_rows.append(base)
     sens = sp["sensitivities"][:SENSITIVITY_PLOT]
     f_hist = _centres(sp["f_histogram"])

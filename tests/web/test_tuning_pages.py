@@ -55,3 +55,23 @@ def test_a_crystal_design_on_the_sheet_needs_no_coil(client):
     coil = client.get("/sheet.json?design=clapp-clock-1M&Q_L=").json()
     assert not coil["ok"]
     assert any(p.get("field") == "tank.Q_L" for p in coil["problems"])
+
+
+def test_the_spread_panel_names_the_tuning_voltages_and_the_crystals_worst_corner(client):
+    from ringwise.web.samples import sample_texts
+
+    texts = sample_texts()
+    body = {"samples": "20", "seed": "4"}
+    tuned = client.post("/api/sheet/spread", json={"fields": texts[SAMPLE], **body}).json()
+    assert tuned["shown"]["spread.tuning_voltages"]["text"].count("V") == 4
+    assert tuned["shown"]["spread.crystal_worst"]["text"] == "no crystal"
+    worst = tuned["shown"]["spread.worst_cases.0.V_tune"]
+    assert worst["value"] in tuned["result"]["spread"]["tuning_voltages"]
+    xtal = client.post(
+        "/api/sheet/spread", json={"fields": texts["crystal-clock-10M"], **body}
+    ).json()
+    sp = xtal["result"]["spread"]
+    shown = xtal["shown"]["spread.crystal_worst"]
+    assert shown["value"] == sp["crystal_worst"]["margin"] == sp["crystal_margin_min"]
+    assert shown["text"].startswith(f"sample {sp['crystal_worst']['sample']} at ")
+    assert xtal["shown"]["spread.tuning_voltages"]["text"].startswith("no varactor")
