@@ -214,7 +214,7 @@ def _band(
 ) -> list[tuple[float, float, float, float]]:
     """f_osc percentiles (5, 50, 95) of the samples at each temperature: every
     temperature's samples in one batch of the pipeline."""
-    n = len(draws.values["L"])
+    n = len(draws.values["beta"])  # every design has a transistor (not always a coil)
     blocks = [
         (
             {

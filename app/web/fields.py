@@ -336,8 +336,8 @@ def choices(field: FormField) -> list[tuple[str, str]]:
         return list(FEED_LABELS.items())
     if field.name == "v_preset":
         return [("", "custom values"), *VARACTOR_PRESET_LABELS.items()]
-    if field.name == "place":
-        return list(PLACE_LABELS.items())
+    if field.name == "place":  # blank: the default (a design without a varactor has none)
+        return [("", "default: across the coil"), *PLACE_LABELS.items()]
     if field.doc_sub == "dielectric":
         default = DEFAULT_DIELECTRIC[field.key]
         return [("", f"default ({default})"), *DIELECTRICS.items()]

@@ -75,6 +75,37 @@ def test_the_load_panel_shows_the_power_and_follows_a_buffer_capacitance(
     assert sheet.errors == []
 
 
+def test_the_varactor_lo_shows_its_panel_and_plot_and_a_fixed_tank_hides_them(
+    context, live_server, client
+):
+    sheet = Sheet(context, f"{live_server}/?design=varactor-lo-5M")
+    page = sheet.page
+    panel = "[data-panel='tuning']"
+    ratio = "[data-field='tuning.K_ratio']"
+    want = expected(client, sheet.inputs())
+    assert sheet.attr(ratio) == want["shown"]["tuning.K_ratio"]["raw"]
+    # the plot of f_osc and K against the tuning voltage is drawn once on screen
+    page.locator("#plot-tuning").scroll_into_view_if_needed()
+    page.wait_for_selector("#plot-tuning .main-svg")
+    # the steady state at both ends and the middle comes with the second answer
+    steady = expected_steady(client, sheet.inputs())
+    behaviour = "[data-field='tuning.points.2.behaviour']"
+    wait_for(sheet, behaviour, steady["shown"]["tuning.points.2.behaviour"]["raw"])
+    # a wider range: the figures follow the edit
+    page.fill("[name='V_min']", "1")
+    settle(sheet, client)
+    want = expected(client, sheet.inputs())
+    wait_for(sheet, ratio, want["shown"]["tuning.K_ratio"]["raw"])
+    # clearing the varactor's fields gives the fixed tank back, and the panel goes
+    for name in ("V_tune", "C_v", "C_j0", "phi_j", "m_j", "R_v", "R_tune", "V_min", "V_max"):
+        page.fill(f"[name='{name}']", "")
+    page.select_option("[name='v_preset']", "")
+    page.select_option("[name='place']", "")
+    settle(sheet, client)
+    page.wait_for_selector(panel, state="hidden")
+    assert sheet.errors == []
+
+
 def test_the_crystal_clock_shows_its_panel_and_a_coil_design_hides_it(context, live_server, client):
     sheet = Sheet(context, f"{live_server}/?design=crystal-clock-10M")
     page = sheet.page
