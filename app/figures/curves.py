@@ -141,11 +141,6 @@ def what_if(
     }
 
 
-#: The budget's cost axis reaches this multiple of the largest cost, leaving room
-#: for the text printed beside the shorter bars.
-BUDGET_TEXT_ROOM: Final = 1.7
-
-
 def budget_bars(loop: dict[str, Any]) -> dict[str, Any]:
     """The loop-gain story as a horizontal bar chart: the hand formula with its
     numbers, then each loss the hand method ignores (the core's order, largest
@@ -158,15 +153,8 @@ def budget_bars(loop: dict[str, Any]) -> dict[str, Any]:
         if story
         else ""
     )
-    costs = [x["cost_dB"] for x in losses]
-    x_range = (
-        [min(0.0, *costs) * BUDGET_TEXT_ROOM, max(0.0, *costs) * BUDGET_TEXT_ROOM]
-        if costs
-        else None
-    )
     return {
         "caption": caption,
-        "x_range": x_range,
         "formula": story["formula"] if story else None,
         "numbers": story["numbers"] if story else None,
         "hand": story["hand"] if story else None,
