@@ -58,8 +58,9 @@ GUESS_CURRENT: Final = 1e-3
 MIN_DAMPING: Final = 1e-3
 #: Batches up to this size run each member's Newton in float arithmetic
 #: (the same iterates; a few dozen array operations per step cost more than
-#: a handful of float loops — measured with ``make bench``).
-SCALAR_BATCH: Final = 8
+#: a handful of float loops up to about this size, warm or cold — measured on the
+#: samples' analyses, the threshold scan of 24 points included).
+SCALAR_BATCH: Final = 24
 SQRT2: Final = 2.0**0.5
 
 
