@@ -44,12 +44,8 @@ from ringwise.analysis.steady import (
     uniform_grid,
     warped_period,
 )
-from ringwise.analysis.transient import (
-    Dynamics,
-    _Stepper,
-    circuit_dynamics,
-    transient_system,
-)
+from ringwise.analysis.stepper import Dynamics, _Stepper, circuit_dynamics
+from ringwise.analysis.transient import transient_system
 from ringwise.circuit.mna import G_MIN, LinearSystem, nonlinear_residual
 from ringwise.circuit.netlist import Capacitor, DCSupply, Inductor, Resistor
 from ringwise.circuit.topologies import T1

@@ -73,7 +73,8 @@ from ringwise.analysis.operating import Solved
 from ringwise.analysis.periodic import SteadyState
 from ringwise.analysis.ppv import PhaseSensitivity, phase_sensitivity
 from ringwise.analysis.steady import Orbit
-from ringwise.analysis.transient import circuit_dynamics, transient_system
+from ringwise.analysis.stepper import circuit_dynamics
+from ringwise.analysis.transient import transient_system
 
 #: Offsets at which each source's share is reported, Hz.
 SHARE_OFFSETS: Final = (1e3, 100e3)

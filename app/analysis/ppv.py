@@ -64,7 +64,7 @@ import numpy as np
 import scipy.linalg
 
 from ringwise.analysis.steady import Orbit
-from ringwise.analysis.transient import Dynamics
+from ringwise.analysis.stepper import Dynamics
 
 #: The trivial multiplier must lie within this of 1 for the orbit to be an
 #: oscillator's (a free-running orbit has it at 1 to the solver's tolerance).

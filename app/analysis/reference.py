@@ -14,7 +14,8 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from ringwise.analysis.operating import solve
-from ringwise.analysis.transient import dynamic_unknowns, transient_system, varactor_remainder
+from ringwise.analysis.stepper import dynamic_unknowns, varactor_remainder
+from ringwise.analysis.transient import transient_system
 from ringwise.circuit.mna import LinearSystem, nonlinear_residual
 from ringwise.circuit.topologies import T1
 from ringwise.design import Design

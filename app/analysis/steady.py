@@ -52,7 +52,7 @@ from typing import Final
 import numpy as np
 import scipy.linalg
 
-from ringwise.analysis.transient import Dynamics, _Stepper, dynamic_unknowns
+from ringwise.analysis.stepper import Dynamics, _Stepper, dynamic_unknowns
 
 #: Steps per period of the orbit, at first (the transient's nominal step).
 STEPS_PER_PERIOD: Final = 128

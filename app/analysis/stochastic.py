@@ -53,7 +53,7 @@ import numpy as np
 
 from ringwise.analysis.noise_sources import NoiseSource
 from ringwise.analysis.steady import Orbit
-from ringwise.analysis.transient import NEWTON_CLAMP, NEWTON_MAX, NEWTON_TOL, Dynamics, _Stepper
+from ringwise.analysis.stepper import NEWTON_CLAMP, NEWTON_MAX, NEWTON_TOL, Dynamics, _Stepper
 from ringwise.circuit.mna import LinearSystem
 from ringwise.circuit.npn import exp_and_slope_array, junction_currents
 

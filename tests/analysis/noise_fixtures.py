@@ -18,7 +18,7 @@ from scipy import constants
 from ringwise.analysis.noise_sources import THERMAL, NoiseSource
 from ringwise.analysis.phase_noise import resonator_power
 from ringwise.analysis.steady import Orbit, shoot, warped_period
-from ringwise.analysis.transient import Dynamics
+from ringwise.analysis.stepper import Dynamics
 
 T_ROOM = 300.0
 

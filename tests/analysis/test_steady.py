@@ -25,7 +25,8 @@ from ringwise.analysis.steady import (
     shoot,
     warped_period,
 )
-from ringwise.analysis.transient import Dynamics, _Stepper, transient_system
+from ringwise.analysis.stepper import Dynamics, _Stepper
+from ringwise.analysis.transient import transient_system
 from ringwise.circuit.topologies import GAIN_SETTER, T1
 from ringwise.design import Design, get_param, with_param
 

@@ -19,8 +19,9 @@ from ringwise.analysis.noise_sources import circuit_sources
 from ringwise.analysis.operating import solve
 from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.phase_noise import oscillator_noise, phase_noise
+from ringwise.analysis.stepper import circuit_dynamics
 from ringwise.analysis.stochastic import circuit_phi_batch, measure_diffusion
-from ringwise.analysis.transient import circuit_dynamics, transient_system
+from ringwise.analysis.transient import transient_system
 from ringwise.design import Design
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_designs"

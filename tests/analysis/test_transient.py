@@ -11,13 +11,7 @@ import pytest
 from ringwise.analysis.operating import solve
 from ringwise.analysis.poles import natural_frequencies
 from ringwise.analysis.reference import reference_run
-from ringwise.analysis.transient import (
-    SimulationError,
-    _crossings,
-    integrate,
-    run,
-    unwarp,
-)
+from ringwise.analysis.transient import SimulationError, _crossings, integrate, run, unwarp
 from ringwise.circuit.mna import assemble
 from ringwise.circuit.netlist import GROUND, NPN, Capacitor, Inductor, Netlist, NPNParams, Resistor
 from ringwise.design import with_param

@@ -28,7 +28,8 @@ from scipy import constants
 
 from ringwise.analysis.operating import solve
 from ringwise.analysis.pipeline import f_ideal_of, part_values
-from ringwise.analysis.transient import _Stepper, circuit_dynamics, transient_system
+from ringwise.analysis.stepper import _Stepper, circuit_dynamics
+from ringwise.analysis.transient import transient_system
 from ringwise.circuit.mna import G_MIN, assemble
 from ringwise.circuit.netlist import (
     NPN,
