@@ -19,7 +19,7 @@ from ringwise.analysis.analyze import analyze
 from ringwise.analysis.operating import solve
 from ringwise.analysis.stability import RATING_FRACTION
 from ringwise.circuit.topologies import gain_setter
-from ringwise.design import Design, Feed, Topology, get_param
+from ringwise.design import PART_PARAMETERS, Design, Feed, Topology, get_param
 from ringwise.display import (
     LOG_UNITS,
     NOISE_SHOWN,
@@ -39,6 +39,7 @@ from ringwise.errors import describe_validation_error, domain_message
 from ringwise.figures import curves, design_curves, design_specs
 from ringwise.figures.panels import envelope_spec, spectrum_spec, waveform_spec
 from ringwise.figures.sheet import sweep_spec
+from ringwise.web.errors import invalid
 from ringwise.web.fields import (
     BY_PATH,
     FIELDS,
@@ -361,13 +362,18 @@ def sweep_view(
     ``threshold_hint`` is the threshold the sheet already has (from the result),
     used only to choose a span that shows it.
     """
+    if param is not None and param not in PART_PARAMETERS:
+        raise invalid("param", f"{param!r} is not a part; parts: {', '.join(PART_PARAMETERS)}")
     try:
         design = Design.model_validate(document(texts))
     except ValidationError:
         return {"ok": False, "figure": None}
     options = curves.sweepable(design)
-    setter = gain_setter(design)
-    chosen = param if param in options else setter
+    if param is not None and param not in options:
+        raise invalid(
+            "param", f"{param!r} cannot be swept in this design; it can sweep {', '.join(options)}"
+        )
+    chosen = param or gain_setter(design)
     try:
         data = curves.what_if(design, chosen, threshold_hint, PARAM_UNITS.get(chosen, ""))
     except (ValueError, ArithmeticError):

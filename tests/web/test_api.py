@@ -172,6 +172,21 @@ def test_sheet_sweep(client, sample):
     assert bad == {"ok": False, "figure": None}
 
 
+@pytest.mark.parametrize(
+    ("param", "says"),
+    [("XYZ", "is not a part"), ("F_dB", "is not a part"), ("C3", "cannot be swept in this design")],
+)
+def test_sheet_sweep_unknown_parameter_is_422(client, sample, param, says):
+    # it used to fall back silently to the gain setter; the sample has no C3 (not a Clapp)
+    sample["tank"].pop("C3", None)
+    texts = client.post("/api/import", json=sample).json()["fields"]
+    r = client.post("/api/sheet/sweep", json={"fields": texts, "param": param})
+    assert r.status_code == 422
+    [problem] = r.json()["problems"]
+    assert problem["field"] == "param"
+    assert says in problem["message"]
+
+
 def test_import_and_export_round_trip(client, sample):
     imported = client.post("/api/import", json=sample).json()
     exported = client.get(f"/api/export?{imported['query']}")
