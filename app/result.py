@@ -484,7 +484,11 @@ class CrystalCornerOut(_Out):
 
 
 class SpreadOut(_Out):
-    samples: int
+    samples: int = Field(description="Samples computed (fewer than requested if stopped)")
+    requested: int = Field(description="Samples asked for")
+    stopped: bool = Field(
+        description="Stopped before the end: every figure is of the samples computed"
+    )
     seed: int
     temperatures_C: list[float]
     margin: Num = Field(description="Loop gain the margin yield asks for")

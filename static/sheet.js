@@ -2,6 +2,8 @@
 // It computes nothing of its own: every number, text and curve is the server's.
 // One map of selectors, one of events; no framework, no build step.
 
+import { jobRunners } from "./jobs.js";
+
 const SEL = {
   form: "#design-form",
   outcome: ".outcome",
@@ -759,6 +761,37 @@ async function ask(name, url, body) {
   }
 }
 
+// The long panels (spread, from targets, bench readings) run as jobs with real
+// progress and a Stop button (static/jobs.js); a stopped job's answer is what it
+// computed so far, rendered like a finished one.
+const jobs = jobRunners();
+
+async function askJob(name, url, body) {
+  const t = tools[name];
+  const seq = ++t.seq;
+  t.abort?.abort();
+  toolError(name, null);
+  toolState(name, "busy", "Working…");
+  try {
+    const job = await jobs[name].run(url, body);
+    if (!job || seq !== t.seq) return null;
+    if (job.state === "failed") throw Object.assign(new Error(job.error.message), { body: job.error });
+    if (!job.result) {
+      toolState(name, "cancelled", "Stopped");
+      document.dispatchEvent(new CustomEvent(EVENTS.tool, { detail: { tool: name, state: "cancelled" } }));
+      return null;
+    }
+    toolState(name, job.state === "done" ? "done" : "stopped", "");
+    return job.result;
+  } catch (err) {
+    if (seq !== t.seq) return null;
+    toolState(name, "failed", "Not computed");
+    toolError(name, err);
+    document.dispatchEvent(new CustomEvent(EVENTS.tool, { detail: { tool: name, state: "failed" } }));
+    return null;
+  }
+}
+
 function toolDone(name, query) {
   tools[name].query = query;
   const stale = $(".tool-stale", panel(name));
@@ -781,7 +814,7 @@ function markToolsStale(view) {
 async function runSpread() {
   const texts = formTexts();
   const body = { fields: texts, samples: val("#spread-samples"), seed: val("#spread-seed"), margin: val("#spread-margin"), window_low: val("#spread-low"), window_high: val("#spread-high") };
-  const a = await ask("spread", API.spread, body);
+  const a = await askJob("spread", API.spread, body);
   if (!a) return;
   const p = panel("spread");
   $("[data-role='spread-temps']", p).replaceChildren(
@@ -802,7 +835,8 @@ async function runSpread() {
   const samplesCsv = $("a[data-spread-csv]");
   samplesCsv.href = `/api/csv/spread?${a.query}&samples=${a.shown["spread.samples"].value}&seed=${a.shown["spread.seed"].value}`;
   samplesCsv.hidden = false;
-  toolState("spread", "done", `Done: ${a.shown["spread.samples"].text} samples`);
+  const stopped = a.result.spread.stopped;
+  toolState("spread", stopped ? "stopped" : "done", stopped ? `Stopped: ${a.shown["spread.samples"].text} of ${a.shown["spread.requested"].text} samples` : `Done: ${a.shown["spread.samples"].text} samples`);
   for (const [name, figure] of Object.entries(a.figures)) plotFigure(name, figure);
 }
 
@@ -849,7 +883,7 @@ async function runSynth() {
   const body = { fields: formTexts(), topology: val("#synth-topology") };
   for (const key of ["f", "Vcc", "IC", "gain", "L", "ratio"]) body[key] = val(`#synth-${key}`);
   for (const key of ["clapp", "choose_Q_L", "choose_load", "choose_device"]) body[key] = $(`#synth-${key}`).checked;
-  const a = await ask("synth", API.synth, body);
+  const a = await askJob("synth", API.synth, body);
   if (!a) return;
   const p = panel("synth");
   fill(p, a.shown);
@@ -862,7 +896,7 @@ async function runSynth() {
 
 async function runBench() {
   const body = { fields: formTexts(), f_measured: val("#bench-f"), threshold_param: val("#bench-param"), threshold_value: val("#bench-value"), amplitude: val("#bench-amp"), IC: val("#bench-ic") };
-  const a = await ask("bench", API.bench, body);
+  const a = await askJob("bench", API.bench, body);
   if (!a) return;
   const p = panel("bench");
   fill(p, a.shown);

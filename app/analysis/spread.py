@@ -58,6 +58,11 @@ PERCENTILES: Final = (1, 5, 50, 95, 99)
 TEMPERATURE_STEPS: Final = 7
 TEMPERATURE_BAND_SAMPLES: Final = 400
 HISTOGRAM_BINS: Final = 40
+#: Samples solved in one pipeline batch: bounds a run's memory (a batch keeps
+#: every member's matrices while it is solved) and is how often a long run
+#: reports progress and may be stopped (a 2 000-sample chunk is some 0.2 s per
+#: temperature corner on this machine).
+CHUNK_SAMPLES: Final = 2000
 WORST_CASES: Final = 5
 RESISTORS: Final = ("RB1", "RB2", "RC", "RE", "R_load")
 #: The choke's parts, drawn only when the collector is fed through it.
@@ -106,6 +111,16 @@ def draw(design: Design, samples: int, seed: int) -> Draws:
             drift[part] = rng.uniform(-X7R_DRIFT_PER_100C, X7R_DRIFT_PER_100C, samples) / 100.0
     corners = tuple(dict.fromkeys((tol.T_min, design.temperature_C, tol.T_max)))
     return Draws(values, drift, corners, seed)
+
+
+def _subset(draws: Draws, start: int, stop: int) -> Draws:
+    """Samples ``start`` … ``stop − 1`` of ``draws`` (views, no copies)."""
+    return Draws(
+        {k: v[start:stop] for k, v in draws.values.items()},
+        {k: v[start:stop] for k, v in draws.cap_drift.items()},
+        draws.temperatures,
+        draws.seed,
+    )
 
 
 def values_at(design: Design, draws: Draws, T_C: float) -> dict[str, np.ndarray]:
@@ -238,7 +253,38 @@ def _band(
 
 
 @dataclass(frozen=True)
+class Corner:
+    """Figures of every sample at one temperature corner, gathered over the chunks
+    of a run (arrays of shape (samples,)); the pipeline's full answers are dropped
+    chunk by chunk, so a run's memory does not grow with its full solutions."""
+
+    T_C: float
+    f_osc: np.ndarray
+    gain: np.ndarray
+    IC: np.ndarray
+    VCE: np.ndarray
+    converged: np.ndarray
+    active: np.ndarray
+    starts: np.ndarray
+    sigma: np.ndarray
+
+
+#: The figures a :class:`Corner` keeps of each :class:`Batch`.
+CORNER_FIGURES: Final = ("f_osc", "gain", "IC", "VCE", "converged", "active", "starts", "sigma")
+
+
+def _figures(batch: Batch) -> dict[str, np.ndarray]:
+    """What a :class:`Corner` keeps of a batch (copies: the batch's memory can go)."""
+    return {k: np.array(getattr(batch, k)) for k in CORNER_FIGURES}
+
+
+def _corner(T_C: float, chunks: list[dict[str, np.ndarray]]) -> Corner:
+    return Corner(T_C, **{k: np.concatenate([c[k] for c in chunks]) for k in CORNER_FIGURES})
+
+
+@dataclass(frozen=True)
 class Spread:
+    #: Samples computed (fewer than ``requested`` when the run was stopped)
     samples: int
     seed: int
     temperatures: tuple[float, ...]
@@ -254,7 +300,7 @@ class Spread:
     gain_histogram: tuple[list[float], list[int]]
     worst_cases: list[dict]
     f_vs_temperature: list[tuple[float, float, float, float]]  # (T_C, p5, p50, p95)
-    batches: list[Batch] = field(repr=False)
+    batches: list[Corner] = field(repr=False)
     draws: Draws = field(repr=False)
     #: (corners, samples): the sample starts there (gain > 1, active device)
     starts: np.ndarray = field(repr=False)
@@ -264,6 +310,11 @@ class Spread:
     crystal_margin_min: float | None = None
     crystal_margin_yield: float | None = None
     crystal_worst: dict | None = None
+    #: Samples asked for
+    requested: int = 0
+    #: The run was stopped (its progress callback returned False) before the end;
+    #: every figure is of the ``samples`` computed.
+    stopped: bool = False
 
 
 def _percentiles(a: np.ndarray) -> dict[int, float]:
@@ -291,28 +342,57 @@ def monte_carlo(
 ) -> Spread:
     """Startup yield and spread of f_osc and loop gain over tolerances and temperature.
 
-    ``progress``, if given, is called with the fraction done (0 … 1) after
-    each batch of samples (one per temperature).
+    The samples are computed in chunks of :data:`CHUNK_SAMPLES`, every
+    temperature corner of a chunk before the next chunk.  ``progress``, if
+    given, is called with the fraction of the work done (0 … 1) after each
+    batch (one chunk at one corner); when it returns ``False`` the run stops
+    once the chunk under way has all its corners, and every figure is of the
+    chunks done (``stopped`` set, ``samples`` their count).
     """
+    requested = samples
     if window is not None and not 0 < window[0] < window[1]:
         raise SpreadError(f"the frequency window must satisfy 0 < low < high, got {window}")
     draws = draw(design, samples, seed)
     prepared = _prepare(design)
     corners = _corners(design, draws)
-    steps = len(corners) + TEMPERATURE_STEPS
-    batches = []
-    crystal_margin = []
-    for T, V in corners:
-        vals = values_at(design, draws, T)
-        if V is not None:
-            vals = {**vals, "V_tune": V}
-        batches.append(analyse_batch(design, vals, T, prepared))
-        if design.crystal is not None:
-            crystal_margin.append(
-                crystal_margins(design, {**part_values(design), **vals}, batches[-1].solution)
-            )
-        if progress is not None:
-            progress(len(batches) / steps)
+    band_n = min(samples, TEMPERATURE_BAND_SAMPLES)
+    lo, hi = design.tolerances.T_min, design.tolerances.T_max
+    band_temperatures = np.linspace(lo, hi, TEMPERATURE_STEPS if hi > lo else 1)
+    work = samples * len(corners) + band_n * len(band_temperatures)
+    done_work = 0
+    chunks: list[list[dict[str, np.ndarray]]] = [[] for _ in corners]
+    margin_chunks: list[list[tuple[np.ndarray, np.ndarray]]] = [[] for _ in corners]
+    done = 0
+    stopped = False
+    for start in range(0, samples, CHUNK_SAMPLES):
+        part = _subset(draws, start, min(samples, start + CHUNK_SAMPLES))
+        n = len(part.values["L"])
+        for k, (T, V) in enumerate(corners):
+            vals = values_at(design, part, T)
+            if V is not None:
+                vals = {**vals, "V_tune": V}
+            batch = analyse_batch(design, vals, T, prepared)
+            chunks[k].append(_figures(batch))
+            if design.crystal is not None:
+                margin_chunks[k].append(
+                    crystal_margins(design, {**part_values(design), **vals}, batch.solution)
+                )
+            del batch
+            done_work += n
+            if progress is not None and progress(done_work / work) is False:
+                stopped = True  # the chunk's other corners are finished first
+        done += n
+        if stopped:
+            break
+    draws = _subset(draws, 0, done)
+    batches = [_corner(T, c) for (T, _V), c in zip(corners, chunks, strict=True)]
+    crystal_margin = [
+        (np.concatenate([a for a, _r in m]), np.concatenate([r for _a, r in m]))
+        for m in margin_chunks
+        if m
+    ]
+    del chunks, margin_chunks
+    samples = done
     gains = np.stack([b.gain for b in batches])  # (corners, samples)
     active = np.stack([b.active for b in batches])
     started = np.stack([b.starts for b in batches])
@@ -339,13 +419,12 @@ def monte_carlo(
                 "parts": {p: float(v[i]) for p, v in draws.values.items()},
             }
         )
-    band_draws = draw(design, min(samples, TEMPERATURE_BAND_SAMPLES), seed)
-    lo, hi = design.tolerances.T_min, design.tolerances.T_max
-    band = _band(
-        design, band_draws, np.linspace(lo, hi, TEMPERATURE_STEPS if hi > lo else 1), prepared
-    )
-    if progress is not None:
-        progress(1.0)
+    band: list[tuple[float, float, float, float]] = []
+    if not stopped:
+        band_draws = draw(design, band_n, seed)
+        band = _band(design, band_draws, band_temperatures, prepared)
+        if progress is not None:
+            progress(1.0)
     return Spread(
         samples=samples,
         seed=seed,
@@ -370,6 +449,8 @@ def monte_carlo(
         starts=started,
         tuning_voltages=_tuning_voltages(design),
         **_crystal_corners(crystal_margin, corners, draws),
+        requested=requested,
+        stopped=stopped,
     )
 
 

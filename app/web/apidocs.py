@@ -40,6 +40,7 @@ TAGS: Final = (
     ("/api/snap", "standard values", "Every part moved to an IEC 60063 series"),
     ("/api/synthesize", "synthesis", "A design from targets"),
     ("/api/reconcile", "bench readings", "The model fitted to bench readings"),
+    ("/api/jobs", "jobs", "Long work as jobs: progress, partial result, stop"),
     ("/api/csv", "downloads", "CSV of the sheet's plots and the Monte Carlo samples"),
     ("/", "pages", "The sheet and its printed summary, with JSON twins"),
 )

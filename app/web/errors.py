@@ -48,11 +48,22 @@ ERROR_NAMES = {
 class ApiError(Exception):
     """An error answer: status, summary message and field-named problems."""
 
-    def __init__(self, status: int, message: str, problems: list[dict] | None = None) -> None:
+    def __init__(
+        self,
+        status: int,
+        message: str,
+        problems: list[dict] | None = None,
+        headers: dict[str, str] | None = None,
+    ) -> None:
         super().__init__(message)
         self.status = status
         self.message = message
         self.problems = problems or []
+        self.headers = headers
+
+    def __reduce__(self) -> tuple[Any, ...]:
+        # raised in a worker process, it crosses back to the server pickled
+        return (type(self), (self.status, self.message, self.problems, self.headers))
 
 
 def invalid(field: str, message: str, kind: str = "value_error") -> ApiError:
@@ -139,7 +150,7 @@ def install(app: FastAPI) -> None:
 
     @app.exception_handler(ApiError)
     async def _api_error(request: Request, exc: ApiError) -> JSONResponse:
-        return _respond(exc)
+        return _respond(exc, exc.headers)
 
     @app.exception_handler(RequestValidationError)
     async def _request_invalid(request: Request, exc: RequestValidationError) -> JSONResponse:

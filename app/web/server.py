@@ -21,9 +21,10 @@ from ringwise.web.fields import texts_from_document
 from ringwise.web.hosts import HostGuard
 from ringwise.web.methods import HeadAsGet
 from ringwise.web.paths import STATIC_DIR
-from ringwise.web.routers import api, downloads, pages, simulate, spread, tools
+from ringwise.web.routers import api, downloads, jobs, pages, simulate, spread, tools
 from ringwise.web.samples import DEFAULT_SAMPLE, OPENED_DESIGN, samples
 from ringwise.web.schemas import ErrorOut
+from ringwise.web.workers import Work, lifespan
 
 #: Scripts, styles, fonts and connections only from this server.  Plotly sets
 #: inline styles on the SVG it draws, hence 'unsafe-inline' for styles only.
@@ -149,13 +150,18 @@ def create_app(
         docs_url=None,
         redoc_url=None,
         generate_unique_id_function=apidocs.operation_id,
+        # the heavy work's process pool lives as long as the app (app/web/workers.py)
+        lifespan=lifespan,
     )
     app.state.default_design = default_design
     app.state.opened_texts = opened
+    app.state.work = Work()
+    app.state.spreads = {}  # the last spread of each recent design, for the summary
     errors.install(app)
     app.include_router(api.router)
     app.include_router(tools.router)
     app.include_router(simulate.router)
+    app.include_router(jobs.router)
     app.include_router(spread.router)
     app.include_router(downloads.router)
     app.include_router(pages.router)

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import json
 import math
+import threading
 from collections.abc import Mapping
 from itertools import pairwise
 from typing import Any, Final
@@ -31,12 +32,13 @@ from ringwise.web.routers.spread import (
     SnapRequest,
     SpreadRequest,
     SynthesizeRequest,
-    post_reconcile,
     post_snap,
-    post_spread,
-    post_synthesize,
+    run_reconcile,
+    run_spread,
+    run_synthesize,
 )
 from ringwise.web.view import _figure, query_string
+from ringwise.web.workers import Progress
 
 #: Groups of the form that describe the spread, not the circuit: a design that
 #: comes back from the core (synthesis, as-built) leaves their texts as typed.
@@ -120,11 +122,16 @@ def _validated(model: type, problems: list, **values: Any) -> Any:
         ) from err
 
 
-def _core(call: Any, *args: Any) -> Any:
+def _core(call: Any, *args: Any, **kwargs: Any) -> Any:
     try:
-        return call(*args)
+        return call(*args, **kwargs)
     except (ValueError, ArithmeticError) as err:
         raise _fail([_problem("design", domain_message(err), "domain_error")]) from err
+
+
+def _stopped(stopped: bool, text: str) -> dict[str, Any]:
+    """The note a stopped job's answer shows (hidden when it ran to its end)."""
+    return {**_figure(stopped, text if stopped else ""), "hidden": not stopped}
 
 
 def _percent(value: float | None) -> str:
@@ -210,9 +217,17 @@ def _tolerance_text(design: Design, row: Mapping[str, Any]) -> str:
 
 
 def spread_view(
-    texts: Mapping[str, str], samples: str, seed: str, margin: str, low: str, high: str
+    texts: Mapping[str, str],
+    samples: str,
+    seed: str,
+    margin: str,
+    low: str,
+    high: str,
+    progress: Progress | None = None,
 ) -> dict[str, Any]:
-    """The spread panel: the API's answer, the figures' texts and the four plots."""
+    """The spread panel: the API's answer, the figures' texts and the four plots.
+
+    ``progress`` is the core's (a stopped run shows the samples it did)."""
     design = _design(texts)
     problems: list[dict[str, str]] = []
     n = _integer("samples", samples, problems)
@@ -231,7 +246,7 @@ def spread_view(
     if lo is not None and hi is not None:
         values["window"] = {"low": lo, "high": hi}
     req = _validated(SpreadRequest, problems, **values)
-    answer = _core(post_spread, req).model_dump(mode="json")
+    answer = _core(run_spread, req, progress).model_dump(mode="json")
     sp = answer["spread"]
     shown: dict[str, dict[str, Any]] = {}
 
@@ -241,6 +256,14 @@ def spread_view(
     for key in ("yield_start", "yield_margin", "in_window"):
         put(f"spread.{key}", sp[key], _percent(sp[key]))
     put("spread.samples", sp["samples"], str(sp["samples"]))
+    put("spread.requested", sp["requested"], str(sp["requested"]))
+    stopped = (
+        f"Stopped at {sp['samples']} of {sp['requested']} samples: "
+        f"every figure is of those {sp['samples']}"
+        if sp["stopped"]
+        else ""
+    )
+    shown["spread.stopped"] = _stopped(sp["stopped"], stopped)
     put("spread.seed", sp["seed"], str(sp["seed"]))
     put("spread.margin", sp["margin"], display(sp["margin"], ""))
     for t, y in sp["yield_by_temperature"].items():
@@ -399,7 +422,9 @@ def _kept_from_sheet(texts: Mapping[str, str], targets: Mapping[str, Any]) -> di
     return kept
 
 
-def synthesize_view(texts: Mapping[str, str], targets: Mapping[str, Any]) -> dict[str, Any]:
+def synthesize_view(
+    texts: Mapping[str, str], targets: Mapping[str, Any], progress: Progress | None = None
+) -> dict[str, Any]:
     """A design from targets: the API's answer and the form texts that load it.
 
     The sheet's coil Q, load and transistor are kept unless the panel's
@@ -420,13 +445,14 @@ def synthesize_view(texts: Mapping[str, str], targets: Mapping[str, Any]) -> dic
         if v is not None:
             values[name] = v
     req = _validated(SynthesizeRequest, problems, **values)
-    answer = _core(post_synthesize, req).model_dump(mode="json")
+    answer = _core(run_synthesize, req, progress).model_dump(mode="json")
     design = Design.model_validate(answer["design"])
     miss = answer["miss"]
     shown = {
         "f_osc": _figure(answer["f_osc"], display(answer["f_osc"], "Hz")),
         "gain": _figure(answer["gain"], display(answer["gain"], "")),
         "miss": _figure(miss, "—" if miss is None else f"{100 * miss:+.2f} %"),
+        "stopped": _stopped(answer["stopped"], "Stopped before the end: the best design so far"),
     }
     return {
         "result": answer,
@@ -438,7 +464,9 @@ def synthesize_view(texts: Mapping[str, str], targets: Mapping[str, Any]) -> dic
 # ---- bench readings ---------------------------------------------------------------
 
 
-def reconcile_view(texts: Mapping[str, str], bench: Mapping[str, str]) -> dict[str, Any]:
+def reconcile_view(
+    texts: Mapping[str, str], bench: Mapping[str, str], progress: Progress | None = None
+) -> dict[str, Any]:
     """The bench-readings panel: fitted unknowns, readings nominal vs as built, the
     explanation, and the form texts of the as-built design."""
     design = _design(texts)
@@ -456,7 +484,7 @@ def reconcile_view(texts: Mapping[str, str], bench: Mapping[str, str]) -> dict[s
     elif value_text_.strip():
         problems.append(_problem("threshold_param", "choose the part the value is for", "missing"))
     req = _validated(ReconcileRequest, problems, **values)
-    answer = _core(post_reconcile, req).model_dump(mode="json")
+    answer = _core(run_reconcile, req, progress).model_dump(mode="json")
     shown: dict[str, dict[str, Any]] = {}
     rows = []
     for i, p in enumerate(answer["fitted"]):
@@ -481,6 +509,10 @@ def reconcile_view(texts: Mapping[str, str], bench: Mapping[str, str]) -> dict[s
             shown[f"{base}.{col}"] = _figure(r[col], display(r[col], unit))
         reading_rows.append({"path": base, "label": key})
     shown["explanation"] = _figure(answer["explanation"], answer["explanation"])
+    shown["stopped"] = _stopped(
+        answer["stopped"],
+        f"Stopped after {answer['tried']} of {answer['of']} explanations: the best of those",
+    )
     d = answer["evidence_dAIC"]
     shown["evidence_dAIC"] = _figure(d, "—" if d is None else f"{d:.1f}")
     as_built = Design.model_validate(answer["as_built"])
@@ -513,18 +545,65 @@ def tool_context() -> dict[str, Any]:
     }
 
 
-#: The summary page's spread: a modest run, always the same seed (so a printed
-#: summary is reproducible), and how many ranked sensitivities it lists.
-SUMMARY_SAMPLES: Final = 500
+#: The summary page's spread when none was computed for the design: a small run,
+#: always the same seed (so a printed summary is reproducible), and how many
+#: ranked sensitivities it lists.
+SUMMARY_SAMPLES: Final = 300
 SUMMARY_SEED: Final = 1
 SUMMARY_TOP: Final = 3
 
 
-def summary_spread(texts: Mapping[str, str]) -> dict[str, Any] | None:
-    """The short spread section of the summary (``None`` when the design cannot be run)."""
+#: Designs whose last spread is remembered for the summary (the newest kept).
+REMEMBERED_SPREADS: Final = 16
+_REMEMBER_LOCK = threading.Lock()
+
+
+def _design_key(texts: Mapping[str, str]) -> str | None:
+    """The design of the texts as canonical JSON (tolerances included), if it is valid."""
     try:
-        v = spread_view(texts, str(SUMMARY_SAMPLES), str(SUMMARY_SEED), "", "", "")
+        return _design(texts).model_dump_json()
     except ApiError:
+        return None
+
+
+def remember_spread(app: Any, texts: Mapping[str, str], view: dict[str, Any]) -> None:
+    """Keep ``view`` as the last spread computed for the texts' design (for the summary)."""
+    key = _design_key(texts)
+    if key is None:
+        return
+    store: dict[str, dict[str, Any]] = app.state.spreads
+    with _REMEMBER_LOCK:
+        store.pop(key, None)
+        store[key] = view
+        while len(store) > REMEMBERED_SPREADS:
+            del store[next(iter(store))]
+
+
+def remembered(app: Any, texts: Mapping[str, str], view: dict[str, Any]) -> dict[str, Any]:
+    """A spread job's end: remember its view (a stopped one too), and keep it."""
+    remember_spread(app, texts, view)
+    return view
+
+
+def last_spread(app: Any, texts: Mapping[str, str]) -> dict[str, Any] | None:
+    """The last spread computed for the texts' design, if any."""
+    key = _design_key(texts)
+    with _REMEMBER_LOCK:
+        return app.state.spreads.get(key) if key is not None else None
+
+
+def summary_small_spread(texts: Mapping[str, str]) -> dict[str, Any]:
+    """The summary's own small spread, when no spread was computed for the design
+    (empty when the design cannot be run)."""
+    try:
+        return spread_view(texts, str(SUMMARY_SAMPLES), str(SUMMARY_SEED), "", "", "")
+    except ApiError:
+        return {}
+
+
+def summary_spread(texts: Mapping[str, str], v: dict[str, Any] | None) -> dict[str, Any] | None:
+    """The short spread section of the summary from the spread view ``v``."""
+    if not v:
         return None
     sp = v["result"]["spread"]
     temps = sp["temperatures_C"]

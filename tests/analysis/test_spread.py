@@ -125,3 +125,39 @@ def test_frequency_against_temperature_band() -> None:
     temps = [t for t, *_ in r.f_vs_temperature]
     assert temps[0] == design.tolerances.T_min and temps[-1] == design.tolerances.T_max
     assert all(a <= b <= c for _t, a, b, c in r.f_vs_temperature)
+
+
+def test_chunked_run_equals_one_batch(monkeypatch) -> None:
+    # chunking bounds memory and lets a run stop; it must not change a figure
+    # (every sample is its own Newton and loop search inside a batch)
+    design = load_sample(next(p for p in sample_paths() if "clapp" in p.name))
+    whole = monte_carlo(design, samples=60, seed=4)
+    monkeypatch.setattr("ringwise.analysis.spread.CHUNK_SAMPLES", 25)
+    chunked = monte_carlo(design, samples=60, seed=4)
+    assert chunked.yield_start == whole.yield_start
+    assert chunked.f_percentiles == pytest.approx(whole.f_percentiles, rel=1e-12)
+    for a, b in zip(chunked.batches, whole.batches, strict=True):
+        np.testing.assert_allclose(a.gain, b.gain, rtol=1e-12)
+    assert not chunked.stopped and chunked.requested == chunked.samples == 60
+
+
+def test_stopped_run_keeps_the_whole_chunks_done(monkeypatch) -> None:
+    design = load_sample(next(p for p in sample_paths() if "clapp" in p.name))
+    monkeypatch.setattr("ringwise.analysis.spread.CHUNK_SAMPLES", 20)
+    seen: list[float] = []
+
+    def progress(fraction: float) -> bool:
+        seen.append(fraction)
+        return len(seen) < 7  # stop at the third chunk's first corner (three corners a chunk)
+
+    r = monte_carlo(design, samples=100, seed=4, progress=progress)
+    # the chunk under way is finished (its samples need every corner), then no more
+    assert r.stopped and r.requested == 100 and r.samples == 60
+    assert seen == sorted(seen) and 0 < seen[-1] < 1
+    # the yield is the yield of the first 40 samples, as a run of 40 finds it
+    # (the draws of a seed depend on the count, so compare with those samples' own verdicts)
+    assert r.starts.shape == (len(r.temperatures), 60)
+    assert r.yield_start == float(np.mean(np.all(r.starts, axis=0)))
+    first = monte_carlo(design, samples=100, seed=4)
+    np.testing.assert_array_equal(r.starts, first.starts[:, :60])
+    assert r.f_vs_temperature == []  # the temperature band is not begun after a stop

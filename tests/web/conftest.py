@@ -47,6 +47,17 @@ def client() -> Iterator[TestClient]:
 
 
 @pytest.fixture
+def inline_client() -> Iterator[TestClient]:
+    """The app without its lifespan: heavy work runs in threads of this process
+    (app/web/workers.py), so a test may patch the core."""
+    c = TestClient(create_app(), base_url="http://127.0.0.1", raise_server_exceptions=False)
+    try:
+        yield c
+    finally:
+        c.app.state.work.shutdown()
+
+
+@pytest.fixture
 def sample() -> dict[str, Any]:
     """A fresh copy of the 1 MHz Clapp sample design file."""
     return json.loads((SAMPLES_DIR / "clapp-clock-1M.json").read_text(encoding="utf-8"))

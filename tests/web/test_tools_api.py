@@ -6,10 +6,12 @@ from __future__ import annotations
 import re
 
 import pytest
+from fastapi.testclient import TestClient
 
 from ringwise.design import Design
 from ringwise.web.fields import document
 from ringwise.web.samples import DEFAULT_SAMPLE, sample_texts
+from ringwise.web.server import create_app
 from ringwise.web.tools import texts_for_design, value_text
 
 TEXTS = sample_texts()[DEFAULT_SAMPLE]
@@ -238,25 +240,32 @@ def test_a_design_that_does_not_start_still_answers(client):
     assert r.json()["shown"]["spread.yield_start"]["raw"] == "0.0"
 
 
-def test_summary_has_the_spread_section(client):
+def _spread_shown(client, texts, samples, seed):
+    body = {"fields": texts, "samples": str(samples), "seed": str(seed)}
+    return client.post("/api/sheet/spread", json=body).json()["shown"]
+
+
+def test_summary_has_the_spread_section():
     from ringwise.web.tools import SUMMARY_SAMPLES, SUMMARY_SEED
 
-    page = client.get("/summary?design=clapp-clock-1M")
-    assert page.status_code == 200
-    want = client.post(
-        "/api/sheet/spread",
-        json={
-            "fields": sample_texts()["clapp-clock-1M"],
-            "samples": str(SUMMARY_SAMPLES),
-            "seed": str(SUMMARY_SEED),
-        },
-    ).json()["shown"]
-    for path in ("spread.yield_start", "spread.f_osc.p5", "spread.sensitivities.2.part"):
-        assert f'data-field="{path}" data-value="{want[path]["raw"]}"' in page.text
-    assert "spread.sensitivities.3.part" not in page.text  # the top three only
-    # a design that cannot be computed has no spread section, and no error
-    bad = client.get("/summary?design=clapp-clock-1M&L=47uF")
-    assert bad.status_code == 200 and "spread.yield_start" not in bad.text
+    texts = sample_texts()["clapp-clock-1M"]
+    # a fresh app, which has computed no spread of the design: a small one of its own
+    with TestClient(create_app(), base_url="http://127.0.0.1") as client:
+        page = client.get("/summary?design=clapp-clock-1M")
+        assert page.status_code == 200
+        want = _spread_shown(client, texts, SUMMARY_SAMPLES, SUMMARY_SEED)
+        for path in ("spread.yield_start", "spread.f_osc.p5", "spread.sensitivities.2.part"):
+            assert f'data-field="{path}" data-value="{want[path]["raw"]}"' in page.text
+        assert "spread.sensitivities.3.part" not in page.text  # the top three only
+        # once the sheet has run a spread of the design, the summary shows that one
+        mine = _spread_shown(client, texts, 150, 9)
+        page = client.get("/summary?design=clapp-clock-1M").text
+        assert "(150 samples, seed 9," in page
+        assert f'data-field="spread.f_osc.p5" data-value="{mine["spread.f_osc.p5"]["raw"]}"' in page
+        # a design that cannot be computed has no spread section, and no error
+        bad = client.get("/summary?design=clapp-clock-1M&L=47uF")
+        assert bad.status_code == 200 and "spread.yield_start" not in bad.text
+        assert "server was busy" not in bad.text
 
 
 @pytest.mark.parametrize(

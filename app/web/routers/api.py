@@ -36,8 +36,16 @@ from ringwise.web.schemas import (
     ThresholdRequest,
 )
 from ringwise.web.view import build_view, query_string, sweep_view
+from ringwise.web.workers import work_of
 
 router = APIRouter(prefix="/api", tags=["api"])
+
+#: The heavy routes' answers: also 429 when too many of the kind are outstanding.
+HEAVY_ERRORS: dict[int | str, dict[str, Any]] = {
+    **ERRORS,
+    429: {"description": "Too many of this kind running or waiting; see Retry-After"},
+    503: {"description": "The server is stopping"},
+}
 
 
 @router.post("/analyze", response_model=Result, responses=ERRORS)
@@ -56,16 +64,25 @@ def _bound(param: str, key: str, value: float | str) -> float:
     return state.value
 
 
-@router.post("/sweep", response_model=SweepOut, responses=ERRORS)
-def post_sweep(req: SweepRequest) -> SweepOut:
-    """f_osc and loop gain along one part's values, the others fixed, with its threshold."""
-    start = _bound(req.param, "start", req.start)
-    stop = _bound(req.param, "stop", req.stop)
+def run_sweep(req: SweepRequest, start: float, stop: float) -> SweepOut:
+    """The sweep of ``req`` from ``start`` to ``stop`` (in a worker)."""
     try:
         s = sweep(req.design, req.param, start, stop, req.points, req.scale)
     except ParameterError as err:
         raise invalid("param", str(err)) from err
     return from_attributes(SweepOut, s, threshold=from_attributes(ThresholdOut, s.threshold))
+
+
+@router.post("/sweep", response_model=SweepOut, responses=HEAVY_ERRORS)
+async def post_sweep(req: SweepRequest, request: Request) -> SweepOut:
+    """f_osc and loop gain along one part's values, the others fixed, with its threshold.
+
+    A sweep over a size (up to ``MAX_SWEEP_POINTS`` points) runs in a worker process."""
+    start = _bound(req.param, "start", req.start)
+    stop = _bound(req.param, "stop", req.stop)
+    return await work_of(request.app).run(
+        request, "sweep", run_sweep, req, start, stop, with_progress=False
+    )
 
 
 @router.post("/threshold", response_model=ThresholdOut, responses=ERRORS)

@@ -12,6 +12,7 @@ from typing import Annotated, Final, Literal
 from fastapi import APIRouter, Query, Request, Response
 
 from ringwise.analysis.spread import DEFAULT_SAMPLES, MAX_SAMPLES, SpreadError, monte_carlo
+from ringwise.design import Design
 from ringwise.exports import (
     columns_csv,
     loop_table,
@@ -24,6 +25,7 @@ from ringwise.web.dependencies import ERRORS, csv_response, texts_for
 from ringwise.web.errors import ApiError
 from ringwise.web.tools import _design
 from ringwise.web.view import build_view
+from ringwise.web.workers import work_of
 
 router = APIRouter(prefix="/api/csv")
 
@@ -57,7 +59,7 @@ def get_sheet_csv(
 
 
 @router.get("/spread", responses=ERRORS, response_class=Response)
-def get_spread_samples(
+async def get_spread_samples(
     request: Request,
     samples: Annotated[
         int, Query(ge=1, le=MAX_SAMPLES, description="Monte Carlo samples")
@@ -68,6 +70,14 @@ def get_spread_samples(
     same samples and seed), for the design in the query."""
     texts, _link_problems = texts_for(request)
     design = _design(texts)
+    text = await work_of(request.app).run(
+        request, "spread", samples_csv, design, samples, seed, with_progress=False
+    )
+    return csv_response(text, "ringwise-spread-samples.csv")
+
+
+def samples_csv(design: Design, samples: int, seed: int) -> str:
+    """The Monte Carlo samples' CSV text (in a worker)."""
     try:
         run = monte_carlo(design, samples, seed)
     except SpreadError as err:
@@ -75,4 +85,4 @@ def get_spread_samples(
             422, str(err), [{"field": "samples", "message": str(err), "type": "value_error"}]
         ) from err
     header, cols = samples_table(run)
-    return csv_response(columns_csv(header, cols), "ringwise-spread-samples.csv")
+    return columns_csv(header, cols)

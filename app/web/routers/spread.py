@@ -1,14 +1,16 @@
 """Spread and synthesis endpoints: thin routes over the core's spread analyses.
 
-Plain ``def`` routes, so FastAPI runs them in its thread pool: a Monte Carlo
-run does not hold up the event loop (and so other tabs' sheets).
+The heavy ones (spread, synthesis, bench fit) run their ``run_*`` function in
+a worker process (app/web/workers.py): admitted or refused at once (429),
+stopped when the client goes away.  Snapping is light: a plain ``def`` route
+in the thread pool.
 """
 
 from __future__ import annotations
 
 from typing import Any, Literal
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Request
 from pydantic import Field
 
 from ringwise.analysis.reconcile import reconcile
@@ -20,11 +22,18 @@ from ringwise.preferred import SERIES, snap_design
 from ringwise.quantities import SI
 from ringwise.result import SpreadResult, from_attributes
 from ringwise.web.schemas import RequestModel
+from ringwise.web.workers import Progress, work_of
 
 router = APIRouter(prefix="/api", tags=["spread"])
 
 ERRORS: dict[int | str, dict[str, Any]] = {
     422: {"description": "Invalid input: every problem names its field"},
+}
+#: The heavy routes' answers: also 429 when too many of the kind are outstanding.
+HEAVY_ERRORS: dict[int | str, dict[str, Any]] = {
+    **ERRORS,
+    429: {"description": "Too many of this kind running or waiting; see Retry-After"},
+    503: {"description": "The server is stopping"},
 }
 
 
@@ -48,11 +57,16 @@ class SpreadRequest(_In):
     window: Window | None = None
 
 
-@router.post("/spread", response_model=SpreadResult, responses=ERRORS)
-def post_spread(req: SpreadRequest) -> SpreadResult:
-    """Monte Carlo over tolerances and temperature: yield, percentiles, sensitivities."""
+def run_spread(req: SpreadRequest, progress: Progress | None = None) -> SpreadResult:
+    """The spread of ``req`` (in a worker); stopped by ``progress``, it has the samples done."""
     window = (req.window.low, req.window.high) if req.window else None
-    return spread_result(req.design, req.samples, req.seed, req.margin, window)
+    return spread_result(req.design, req.samples, req.seed, req.margin, window, progress)
+
+
+@router.post("/spread", response_model=SpreadResult, responses=HEAVY_ERRORS)
+async def post_spread(req: SpreadRequest, request: Request) -> SpreadResult:
+    """Monte Carlo over tolerances and temperature: yield, percentiles, sensitivities."""
+    return await work_of(request.app).run(request, "spread", run_spread, req)
 
 
 class SnapRequest(_In):
@@ -129,9 +143,8 @@ class SynthesisOut(_In):
     stopped: bool = Field(description="The search was stopped before its end")
 
 
-@router.post("/synthesize", response_model=SynthesisOut, responses=ERRORS)
-def post_synthesize(req: SynthesizeRequest) -> SynthesisOut:
-    """A buildable design from targets, in standard values, with a reason per choice."""
+def run_synthesize(req: SynthesizeRequest, progress: Progress | None = None) -> SynthesisOut:
+    """The synthesis of ``req`` (in a worker); stopped, it has the best design so far."""
     r = synthesize(
         req.topology.value,
         req.f,
@@ -144,8 +157,15 @@ def post_synthesize(req: SynthesizeRequest) -> SynthesisOut:
         R_load=req.R_load,
         device=req.device.model_dump() if req.device else None,
         clapp=req.clapp,
+        progress=progress,
     )
     return from_attributes(SynthesisOut, r)
+
+
+@router.post("/synthesize", response_model=SynthesisOut, responses=HEAVY_ERRORS)
+async def post_synthesize(req: SynthesizeRequest, request: Request) -> SynthesisOut:
+    """A buildable design from targets, in standard values, with a reason per choice."""
+    return await work_of(request.app).run(request, "synthesize", run_synthesize, req)
 
 
 class ThresholdReading(_In):
@@ -192,11 +212,16 @@ class ReconcileOut(_In):
     stopped: bool = Field(description="The fit was stopped before trying them all")
 
 
-@router.post("/reconcile", response_model=ReconcileOut, responses=ERRORS)
-def post_reconcile(req: ReconcileRequest) -> ReconcileOut:
+@router.post("/reconcile", response_model=ReconcileOut, responses=HEAVY_ERRORS)
+async def post_reconcile(req: ReconcileRequest, request: Request) -> ReconcileOut:
     """Fit capacitance, coil Q and β to bench readings; the as-built design."""
+    return await work_of(request.app).run(request, "reconcile", run_reconcile, req)
+
+
+def run_reconcile(req: ReconcileRequest, progress: Progress | None = None) -> ReconcileOut:
+    """The bench fit of ``req`` (in a worker); stopped, it has the best explanation so far."""
     th = (req.threshold.param, req.threshold.value) if req.threshold else None
-    r = reconcile(req.design, req.f_measured, th, req.amplitude, req.IC)
+    r = reconcile(req.design, req.f_measured, th, req.amplitude, req.IC, progress=progress)
     return ReconcileOut(
         fitted=[FittedOut(**vars(f)) for f in r.fitted],
         readings={

@@ -1,17 +1,27 @@
 """The sheet's on-demand panels: spread and yield, standard values, design from
 targets, bench readings.  Form texts in, the API's answer plus its display texts
-out (app/web/tools.py).  Plain ``def`` routes: they run in the thread pool."""
+out (app/web/tools.py).
+
+Standard values is light: a plain ``def`` route in the thread pool.  The long
+ones (spread, from targets, bench readings) run in a worker process
+(app/web/workers.py), either answering the request when done or, posted to
+``.../jobs``, as a job with progress that can be stopped
+(``GET``/``DELETE /api/jobs/{id}``, app/web/routers/jobs.py)."""
 
 from __future__ import annotations
 
+from functools import partial
 from typing import Any
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Request
+from fastapi.responses import JSONResponse
 from pydantic import Field
 
 from ringwise.web import tools
 from ringwise.web.dependencies import ERRORS, form_texts
+from ringwise.web.routers.jobs import JOB_STARTED, JobOut
 from ringwise.web.schemas import RequestModel
+from ringwise.web.workers import work_of
 
 router = APIRouter(prefix="/api/sheet", tags=["sheet tools"])
 
@@ -37,12 +47,29 @@ class SheetSpreadRequest(_In):
     )
 
 
-@router.post("/spread", responses=ERRORS)
-def post_sheet_spread(req: SheetSpreadRequest) -> dict[str, Any]:
-    """Monte Carlo for the sheet's texts: the spread answer, figure texts and plot data."""
-    return tools.spread_view(
+def _spread_args(req: SheetSpreadRequest) -> tuple[Any, ...]:
+    return (
         form_texts(req.fields), req.samples, req.seed, req.margin, req.window_low, req.window_high
-    )
+    )  # fmt: skip
+
+
+@router.post("/spread", responses=JOB_STARTED)
+async def post_sheet_spread(req: SheetSpreadRequest, request: Request) -> dict[str, Any]:
+    """Monte Carlo for the sheet's texts: the spread answer, figure texts and plot data."""
+    args = _spread_args(req)
+    view = await work_of(request.app).run(request, "spread", tools.spread_view, *args)
+    tools.remember_spread(request.app, args[0], view)
+    return view
+
+
+@router.post("/spread/jobs", status_code=202, response_model=JobOut, responses=JOB_STARTED)
+def post_sheet_spread_job(req: SheetSpreadRequest, request: Request) -> JSONResponse:
+    """The spread as a job: poll ``GET /api/jobs/{id}`` for progress; ``DELETE`` stops it
+    and keeps the samples done."""
+    args = _spread_args(req)
+    finish = partial(tools.remembered, request.app, args[0])
+    job = work_of(request.app).submit("spread", tools.spread_view, *args, keep=True, finish=finish)
+    return JSONResponse(job.out(), status_code=202)
 
 
 class SheetSnapRequest(_In):
@@ -76,11 +103,25 @@ class SheetSynthesizeRequest(_In):
     )
 
 
-@router.post("/synthesize", responses=ERRORS)
-def post_sheet_synthesize(req: SheetSynthesizeRequest) -> dict[str, Any]:
+@router.post("/synthesize", responses=JOB_STARTED)
+async def post_sheet_synthesize(req: SheetSynthesizeRequest, request: Request) -> dict[str, Any]:
     """A design from targets, as form texts for the sheet, with its reasons."""
     targets = req.model_dump(exclude={"fields"})
-    return tools.synthesize_view(form_texts(req.fields), targets)
+    texts = form_texts(req.fields)
+    return await work_of(request.app).run(
+        request, "synthesize", tools.synthesize_view, texts, targets
+    )
+
+
+@router.post("/synthesize/jobs", status_code=202, response_model=JobOut, responses=JOB_STARTED)
+def post_sheet_synthesize_job(req: SheetSynthesizeRequest, request: Request) -> JSONResponse:
+    """The design from targets as a job (``GET``/``DELETE /api/jobs/{id}``)."""
+    targets = req.model_dump(exclude={"fields"})
+    texts = form_texts(req.fields)
+    job = work_of(request.app).submit(
+        "synthesize", tools.synthesize_view, texts, targets, keep=True
+    )
+    return JSONResponse(job.out(), status_code=202)
 
 
 class SheetReconcileRequest(_In):
@@ -92,7 +133,17 @@ class SheetReconcileRequest(_In):
     IC: str = Field(default="", max_length=TEXT_MAX, description="Bench collector current")
 
 
-@router.post("/reconcile", responses=ERRORS)
-def post_sheet_reconcile(req: SheetReconcileRequest) -> dict[str, Any]:
+@router.post("/reconcile", responses=JOB_STARTED)
+async def post_sheet_reconcile(req: SheetReconcileRequest, request: Request) -> dict[str, Any]:
     """Bench readings against the sheet's design: fitted unknowns and the as-built texts."""
-    return tools.reconcile_view(form_texts(req.fields), req.model_dump(exclude={"fields"}))
+    texts, bench = form_texts(req.fields), req.model_dump(exclude={"fields"})
+    return await work_of(request.app).run(request, "reconcile", tools.reconcile_view, texts, bench)
+
+
+@router.post("/reconcile/jobs", status_code=202, response_model=JobOut, responses=JOB_STARTED)
+def post_sheet_reconcile_job(req: SheetReconcileRequest, request: Request) -> JSONResponse:
+    """The bench fit as a job (``GET``/``DELETE /api/jobs/{id}``); stopped, it keeps the
+    best explanation so far."""
+    texts, bench = form_texts(req.fields), req.model_dump(exclude={"fields"})
+    job = work_of(request.app).submit("reconcile", tools.reconcile_view, texts, bench, keep=True)
+    return JSONResponse(job.out(), status_code=202)

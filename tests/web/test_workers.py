@@ -1,0 +1,187 @@
+"""Heavy work off the server's interpreter (app/web/workers.py): admission, progress,
+stop, partial results, a client that goes away, and the jobs API."""
+
+from __future__ import annotations
+
+import json
+import time
+
+import httpx2 as httpx
+import pytest
+
+from ringwise.web import workers
+from ringwise.web.errors import ApiError
+from ringwise.web.paths import SAMPLES_DIR
+from ringwise.web.samples import sample_texts
+from ringwise.web.server import create_app
+from tests.web.conftest import serving
+
+TEXTS = sample_texts()["clapp-clock-1M"]
+
+
+def counting(steps: int, pause: float, progress=None) -> dict:
+    """A stand-in for a long core function: reports progress, stops when told,
+    and answers with how far it got (as a stopped spread does)."""
+    done = 0
+    for i in range(steps):
+        time.sleep(pause)
+        done = i + 1
+        if progress is not None and progress(done / steps) is False:
+            break
+    return {"done": done, "of": steps}
+
+
+def _until(predicate, timeout: float = 20.0) -> None:
+    deadline = time.monotonic() + timeout
+    while not predicate():
+        assert time.monotonic() < deadline, "timed out"
+        time.sleep(0.02)
+
+
+def test_admission_refuses_past_the_limit_at_once_with_retry_after():
+    work = workers.Work()
+    try:
+        limit = workers.LIMITS["reconcile"]
+        held = [work.submit("reconcile", counting, 500, 0.01, keep=True) for _ in range(limit)]
+        t0 = time.perf_counter()
+        with pytest.raises(ApiError) as refused:
+            work.submit("reconcile", counting, 1, 0.0)
+        assert time.perf_counter() - t0 < 0.1  # refused, never queued (not a timing test: no wait)
+        assert refused.value.status == 429
+        assert int(refused.value.headers["Retry-After"]) == workers.RETRY_AFTER_S
+        assert refused.value.problems[0]["type"] == "busy"
+        # another kind has its own queue
+        other = work.submit("synthesize", counting, 1, 0.0, keep=True)
+        _until(other.finished.is_set)
+        for job in held:
+            work.stop(job)
+        _until(lambda: all(j.finished.is_set() for j in held))
+        # the slots are free again
+        again = work.submit("reconcile", counting, 1, 0.0, keep=True)
+        _until(again.finished.is_set)
+        assert work.get(again.id).state == "done"
+    finally:
+        work.shutdown()
+
+
+def test_a_stopped_job_keeps_what_it_computed():
+    work = workers.Work()
+    try:
+        job = work.submit("spread", counting, 1000, 0.005, keep=True)
+        _until(lambda: work.refresh(job).progress > 0.05)
+        assert work.get(job.id).state == "running"
+        work.stop(job)
+        _until(job.finished.is_set)
+        out = work.get(job.id).out()
+        assert out["state"] == "cancelled"
+        assert 0 < out["result"]["done"] < 1000
+        assert out["progress"] == pytest.approx(out["result"]["done"] / 1000)
+    finally:
+        work.shutdown()
+
+
+def test_kept_jobs_are_bounded_and_forgotten():
+    work = workers.Work()
+    try:
+        ids = []
+        for _ in range(workers.MAX_KEPT + 5):
+            job = work.submit("sweep", counting, 1, 0.0, keep=True)
+            _until(job.finished.is_set)
+            ids.append(job.id)
+        assert len(work.jobs()) <= workers.MAX_KEPT
+        with pytest.raises(ApiError):
+            work.get(ids[0])
+        last = work.get(ids[-1])
+        last.ended = time.monotonic() - workers.KEEP_SECONDS - 1
+        with pytest.raises(ApiError) as gone:
+            work.get(last.id)
+        assert gone.value.status == 404
+    finally:
+        work.shutdown()
+
+
+def test_the_process_pool_runs_the_core_in_other_processes():
+    import os
+
+    work = workers.Work()
+    work.start("process")
+    try:
+        job = work.submit("sweep", os.getpid, with_progress=False, keep=True)
+        assert job.finished.wait(60)
+        assert work.get(job.id).state == "done"
+        assert job.result != os.getpid()
+    finally:
+        work.shutdown()
+
+
+def _spread_job(client, samples: int) -> dict:
+    body = {"fields": TEXTS, "samples": str(samples), "seed": "3"}
+    r = client.post("/api/sheet/spread/jobs", json=body)
+    assert r.status_code == 202, r.text
+    return r.json()
+
+
+def test_spread_job_shows_progress_and_stops_with_the_samples_done(client):
+    job = _spread_job(client, 40_000)
+    assert job["kind"] == "spread" and job["state"] in ("queued", "running")
+    seen = []
+    _until(
+        lambda: (
+            seen.append(client.get(f"/api/jobs/{job['id']}").json()["progress"]) or seen[-1] > 0.1
+        ),
+        60,
+    )
+    stopped = client.delete(f"/api/jobs/{job['id']}").json()
+    assert stopped["state"] == "cancelled"
+    sp = stopped["result"]["result"]["spread"]
+    assert sp["stopped"] is True and sp["requested"] == 40_000
+    assert 0 < sp["samples"] < 40_000 and sp["samples"] % 2000 == 0  # whole chunks
+    shown = stopped["result"]["shown"]
+    assert shown["spread.stopped"]["hidden"] is False
+    assert f"Stopped at {sp['samples']} of 40000 samples" in shown["spread.stopped"]["text"]
+    # the yield shown is a fraction of the samples done
+    assert 0.0 <= sp["yield_start"] <= 1.0
+    assert client.get(f"/api/jobs/{job['id']}").json()["state"] == "cancelled"
+
+
+def test_jobs_of_the_other_panels_end_with_their_answer(client):
+    body = {"fields": TEXTS, "f_measured": "990k"}
+    r = client.post("/api/sheet/reconcile/jobs", json=body)
+    assert r.status_code == 202
+    job_id = r.json()["id"]
+    _until(
+        lambda: client.get(f"/api/jobs/{job_id}").json()["state"] not in ("queued", "running"), 60
+    )
+    done = client.get(f"/api/jobs/{job_id}").json()
+    assert done["state"] == "done" and done["progress"] == 1.0
+    assert done["result"]["shown"]["stopped"]["hidden"] is True
+    # a bad request is refused before it becomes a job
+    bad = client.post("/api/sheet/reconcile/jobs", json={"fields": {"Lx": "1"}})
+    assert bad.status_code == 422
+    # and a job whose input the core refuses ends failed, naming the field
+    r = client.post("/api/sheet/spread/jobs", json={"fields": TEXTS, "samples": "0"})
+    job_id = r.json()["id"]
+    _until(lambda: client.get(f"/api/jobs/{job_id}").json()["state"] == "failed", 60)
+    error = client.get(f"/api/jobs/{job_id}").json()["error"]
+    assert error["status"] == 422 and error["problems"][0]["field"] == "samples"
+
+
+@pytest.mark.parametrize("job_id", ["nope", "x" * 65])
+def test_unknown_job_is_404_or_422(client, job_id):
+    for method in ("get", "delete"):
+        r = getattr(client, method)(f"/api/jobs/{job_id}")
+        assert r.status_code == (422 if len(job_id) > 64 else 404)
+
+
+def test_a_client_that_goes_away_stops_its_work():
+    design = json.loads((SAMPLES_DIR / "clapp-clock-1M.json").read_text(encoding="utf-8"))
+    # 100 000 samples: some 15 s of work on this machine
+    body = {"design": design, "samples": 100_000, "seed": 1}
+    app = create_app()
+    with serving(app) as url:
+        work = app.state.work
+        with httpx.Client(base_url=url, timeout=1.0) as c, pytest.raises(httpx.TimeoutException):
+            c.post("/api/spread", json=body)
+        assert work._outstanding["spread"] == 1  # still at it when the client left
+        # stopped at its next chunk, long before its 100 000 samples are done
+        _until(lambda: work._outstanding["spread"] == 0, 8)
