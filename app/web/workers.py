@@ -44,6 +44,7 @@ import time
 from collections.abc import AsyncIterator, Callable
 from concurrent.futures import Executor, Future, ProcessPoolExecutor, ThreadPoolExecutor
 from dataclasses import dataclass, field
+from functools import partial
 from typing import Any, Final, Literal
 
 from fastapi import FastAPI, Request
@@ -58,7 +59,7 @@ log = logging.getLogger("ringwise.web")
 WORKERS: Final = max(1, min(4, os.cpu_count() or 1))
 #: Niceness added to the worker processes (POSIX ``nice``): heavy work takes
 #: the CPU the light answers leave (common practice for background work, no source).
-WORKER_NICE: Final = 10
+WORKER_NICE: Final = 5
 #: How worker processes start: ``forkserver`` forks them from a clean
 #: single-threaded server process that has the package imported already
 #: (``fork`` from the threaded server could copy a held lock; ``spawn``
@@ -161,6 +162,16 @@ def _call(
 # ---- in the server ----------------------------------------------------------------
 
 
+def _fork_server() -> None:
+    """Start the fork server with the package imported (once per server process)."""
+    ctx = multiprocessing.get_context("forkserver")
+    ctx.set_forkserver_preload(list(PRELOAD))
+    from multiprocessing import forkserver
+
+    with contextlib.suppress(OSError, RuntimeError):
+        forkserver.ensure_running()
+
+
 def failure(err: BaseException, what: str = "the computation") -> dict[str, Any]:
     """The error body an ended piece of work reports (domain errors are the user's to fix)."""
     if isinstance(err, ApiError):
@@ -238,6 +249,10 @@ class Work:
             old, self._executor = self._executor, None
         if old is not None:  # work already running in threads finishes there
             old.shutdown(wait=False)
+        if mode == "process" and START_METHOD == "forkserver":
+            # the fork server imports the package once, in the background, so that
+            # the first heavy request does not wait for it
+            threading.Thread(target=_fork_server, daemon=True, name="ringwise-forkserver").start()
 
     def _make(self) -> None:
         if self.mode == "process":
@@ -411,7 +426,10 @@ class Work:
     ) -> Any:
         """``fn(*args, **kwargs)`` in a worker for a request that waits for the answer;
         stopped if the client goes away.  Raises the work's error as an ``ApiError``."""
-        job = self.submit(kind, fn, *args, with_progress=with_progress, **kwargs)
+        # off the event loop: the first pieces of work start the worker processes
+        job = await asyncio.to_thread(
+            partial(self.submit, kind, fn, *args, with_progress=with_progress, **kwargs)
+        )
         waiter = asyncio.wrap_future(job.future)  # type: ignore[arg-type]
         waiter.add_done_callback(_consume)
         watcher = asyncio.ensure_future(_gone(request))

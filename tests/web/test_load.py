@@ -3,13 +3,13 @@
 from __future__ import annotations
 
 import json
-import threading
 import time
 
 import httpx2 as httpx
 
 from ringwise.web import load
 from ringwise.web.paths import SAMPLES_DIR
+from ringwise.web.samples import sample_texts
 
 
 def test_load_smoke_run_stops_by_itself_without_errors():
@@ -23,23 +23,22 @@ def test_load_smoke_run_stops_by_itself_without_errors():
     assert "p99" in load.report(figures, 5)
 
 
-def test_a_long_sweep_does_not_stall_an_analyze(live_server):
+def test_a_long_spread_does_not_stall_an_analyze(live_server):
     design = json.loads((SAMPLES_DIR / "clapp-clock-1M.json").read_text(encoding="utf-8"))
-    # The batched sweep is now quicker than an analyze; a large Monte Carlo is the
-    # long request (several seconds of work on its own).
-    sweep = {"design": design, "samples": 100_000, "seed": 1}
-    done: dict[str, float] = {}
-
-    def post(kind: str, path: str, body: dict) -> None:
-        with httpx.Client(base_url=live_server, timeout=60) as c:
-            assert c.post(path, json=body).status_code == 200
-        done[kind] = time.monotonic()
-
-    slow = threading.Thread(target=post, args=("sweep", "/api/spread", sweep))
-    slow.start()
-    time.sleep(0.2)  # the long request is under way
-    started = time.monotonic()
-    post("analyze", "/api/analyze", design)
-    slow.join(timeout=60)
-    assert done["analyze"] < done["sweep"], "the analyze waited for the sweep"
-    assert done["analyze"] - started < 1.0
+    texts = {"fields": sample_texts()["clapp-clock-1M"], "samples": "100000", "seed": "1"}
+    with httpx.Client(base_url=live_server, timeout=60) as c:
+        # a large Monte Carlo (several seconds of work on its own), in a worker process
+        job = c.post("/api/sheet/spread/jobs", json=texts).json()
+        try:
+            deadline = time.monotonic() + 30
+            while c.get(f"/api/jobs/{job['id']}").json()["progress"] == 0.0:
+                assert time.monotonic() < deadline
+                time.sleep(0.05)
+            started = time.monotonic()
+            assert c.post("/api/analyze", json=design).status_code == 200
+            answered = time.monotonic() - started
+            running = c.get(f"/api/jobs/{job['id']}").json()
+        finally:
+            c.delete(f"/api/jobs/{job['id']}")
+    assert running["state"] == "running", "the analyze waited for the spread"
+    assert answered < 1.0
