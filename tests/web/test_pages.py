@@ -93,7 +93,7 @@ def test_summary_lists_the_spread_assumptions_and_a_finished_run(client):
     job = client.post("/api/simulate/jobs", json={"design": design, "cycles": 40}).json()
     for _ in range(600):
         state = client.get(f"/api/simulate/jobs/{job['id']}").json()
-        if state["state"] != "running":
+        if state["state"] not in ("queued", "running"):
             break
         time.sleep(0.05)
     assert state["state"] == "done"
