@@ -614,7 +614,7 @@ async function poll(seq) {
   }
   if (seq !== run.seq) return;
   $(SEL.run.progress).value = job.progress;
-  if (job.state === "running") {
+  if (job.state === "running" || job.state === "queued") {
     run.timer = setTimeout(() => poll(seq), config.run.poll_ms);
     return;
   }

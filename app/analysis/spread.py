@@ -365,8 +365,9 @@ def monte_carlo(
     done = 0
     stopped = False
     for start in range(0, samples, CHUNK_SAMPLES):
-        part = _subset(draws, start, min(samples, start + CHUNK_SAMPLES))
-        n = len(part.values["L"])
+        stop = min(samples, start + CHUNK_SAMPLES)
+        part = _subset(draws, start, stop)
+        n = stop - start
         for k, (T, V) in enumerate(corners):
             vals = values_at(design, part, T)
             if V is not None:
