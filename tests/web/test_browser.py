@@ -134,6 +134,50 @@ def test_dragging_rc_below_threshold_stops_it(context, live_server):
     assert sheet.errors == []
 
 
+_WATCH_SHEET_REQUESTS = """() => {
+  window.__sheet = { open: 0, most: 0, sent: 0, aborted: 0 };
+  const send = window.fetch;
+  window.fetch = async (url, options) => {
+    if (url !== "/api/sheet") return send(url, options);
+    const w = window.__sheet;
+    w.sent += 1; w.open += 1; w.most = Math.max(w.most, w.open);
+    try {
+      return await send(url, options);
+    } catch (err) {
+      if (err.name === "AbortError") w.aborted += 1;
+      throw err;
+    } finally { w.open -= 1; }
+  };
+}"""
+
+_DRAG_STEPS = """async ([steps, every]) => {
+  const slider = document.querySelector("[data-ladder='RC']");
+  const start = Number(slider.value);
+  for (let i = 1; i <= steps; i++) {
+    slider.value = String(start - 1 - (i % 10));
+    slider.dispatchEvent(new Event("input", { bubbles: true }));
+    await new Promise((r) => setTimeout(r, every));
+  }
+}"""
+
+
+def test_a_drag_keeps_one_request_open_and_ends_on_its_last_step(context, live_server, client):
+    # the server finishes every request it gets, so a drag sends one at a time (the
+    # newest texts when the last answers), never a pile of aborted ones; and the sheet
+    # follows the slider during the drag, not only once it stops
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.evaluate(_WATCH_SHEET_REQUESTS)
+    steps = 30
+    sheet.page.evaluate(_DRAG_STEPS, [steps, 15])
+    settle(sheet, client)
+    watched = sheet.page.evaluate("() => window.__sheet")
+    assert watched["most"] == 1 and watched["aborted"] == 0
+    assert 2 <= watched["sent"] < steps
+    want = expected(client, sheet.inputs())
+    assert sheet.attr("[data-field='loop.gain']") == want["shown"]["loop.gain"]["raw"]
+    assert sheet.errors == []
+
+
 def settle_steady(sheet: Sheet, client) -> None:
     """Wait until the page shows the steady-state answer for what its form now holds."""
     settle(sheet, client)
@@ -280,6 +324,8 @@ def test_summary_prints_on_one_page(context, live_server, pdfinfo, tmp_path, art
     # the loop-gain figure is drawn as a static plot (no mode bar, no hover)
     assert page.locator("[data-figure='loop'] .main-svg").count() > 0
     assert page.locator("[data-figure='loop'] .modebar").count() == 0
+    # the printed link is the page's own origin and the design's query
+    assert page.text_content(".sum-link a").startswith(f"{live_server}/?")
     for paper in ("A4", "Letter"):
         pdf = page.pdf(format=paper, print_background=True)
         assert _pages(pdfinfo, pdf, tmp_path, f"summary-{paper}.pdf") == 1, paper
