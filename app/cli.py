@@ -94,7 +94,9 @@ def parser() -> argparse.ArgumentParser:
 
     a = sub.add_parser("analyze", help="the full analysis of a design")
     _design_argument(a)
-    _format_argument(a, ("figures", "phase-noise", "phase-noise-computed", "noise-sources"))
+    _format_argument(
+        a, ("figures", "phase-noise", "phase-noise-computed", "noise-sources", "tuning")
+    )
 
     t = sub.add_parser("threshold", help="value of one part at which the loop gain is 1")
     _design_argument(t)

@@ -38,6 +38,16 @@ RESULT_SERIES: Final[dict[str, tuple[str, tuple[tuple[str, str], ...]]]] = {
             ("diffusion", "diffusion [s]"),
         ),
     ),
+    "tuning": (
+        "tuning",
+        (
+            ("V", "V_tune [V]"),
+            ("f_osc", "f_osc [Hz]"),
+            ("K", "K [Hz/V]"),
+            ("gain", "loop gain"),
+            ("C_branch", "varactor branch [F]"),
+        ),
+    ),
     "waveform": (
         "transient.waveform",
         (("t", "t [s]"), ("v_out", "v_out [V]"), ("v_be", "v_be [V]")),
@@ -144,6 +154,15 @@ def what_if_table(sweep: Mapping[str, Any]) -> Table:
     return (
         [f"{sweep['param']} [{unit}]", "f_osc [Hz]", "loop gain"],
         [list(sweep["values"]), list(sweep["f_osc"]), list(sweep["gain"])],
+    )
+
+
+def tuning_table(tuning: Mapping[str, Any]) -> Table:
+    """The tuning plot (``curves.tuning_curve``): f_osc, K and the loop gain against
+    the tuning voltage."""
+    return (
+        ["V_tune [V]", "f_osc [Hz]", "K [Hz/V]", "loop gain"],
+        [list(tuning["V"]), list(tuning["f_osc"]), list(tuning["K"]), list(tuning["gain"])],
     )
 
 

@@ -19,6 +19,7 @@ from ringwise.exports import (
     noise_table,
     reactance_table,
     samples_table,
+    tuning_table,
     what_if_table,
 )
 from ringwise.web.dependencies import ERRORS, csv_response, texts_for
@@ -35,12 +36,13 @@ SHEET_TABLES: Final = {
     "sweep": what_if_table,
     "reactance": reactance_table,
     "noise": noise_table,
+    "tuning": tuning_table,
 }
 
 
 @router.get("/sheet/{plot}", responses=ERRORS, response_class=Response)
 def get_sheet_csv(
-    plot: Literal["loop", "sweep", "reactance", "noise"],
+    plot: Literal["loop", "sweep", "reactance", "noise", "tuning"],
     request: Request,
     sweep_param: Annotated[
         str | None, Query(max_length=16, description="Part of the what-if sweep")
