@@ -120,3 +120,16 @@ def test_spread_asks_for_a_start_at_every_tuning_voltage() -> None:
     assert float(np.mean(np.all(r.starts[own], axis=0))) > 0.9
     assert r.yield_start < 0.5
     assert r.worst_cases[0]["V_tune"] == v.V_min
+
+
+def test_the_time_domain_run_reaches_the_steady_state_with_the_varactor() -> None:
+    """The transient (the same stepper, the varactor's charge law as a further
+    nonlinearity) against the periodic steady state: frequency and amplitude."""
+    from ringwise.analysis.periodic import steady_state
+    from ringwise.analysis.transient import run
+
+    d = lo()
+    ss = steady_state(solve(d))
+    r = run(d, cycles=300)
+    assert r.f_meas == pytest.approx(ss.f, rel=1e-3)
+    assert r.amp_out_fund == pytest.approx(ss.amp_out, rel=1e-2)
