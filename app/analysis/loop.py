@@ -316,12 +316,25 @@ def _grid_search(ss: SmallSignal, f_ref: np.ndarray) -> LoopFigures:
     has = np.take_along_axis(falling, k[..., None], -1)[..., 0]
     lo = np.take_along_axis(f_grid, k[..., None], -1)[..., 0]
     hi = np.take_along_axis(f_grid, k[..., None] + 1, -1)[..., 0]
-    second = refine_crossing(ss, np.sqrt(lo * hi), lo, hi)
-    second = _bisect_leftovers(ss, second, lo, hi, has)
-    nothing = np.asarray(~has)
-    if np.any(nothing):
-        second = LoopFigures(*(np.where(nothing, np.nan, a) for a in _astuple(second)))
-    return second
+    out = _no_crossing(has.shape)
+    if not np.any(has):
+        return out
+    # Only the members whose grid holds a falling crossing are refined (each
+    # member's refinement is its own: the others' figures would be NaN anyway).
+    sub = ss if np.all(has) else _members(ss, has)
+    lo, hi = lo[has], hi[has]
+    second = refine_crossing(sub, np.sqrt(lo * hi), lo, hi)
+    second = _bisect_leftovers(sub, second, lo, hi, np.ones(lo.shape, dtype=bool))
+    for full, part in zip(_astuple(out), _astuple(second), strict=True):
+        full[has] = part
+    return out
+
+
+def _no_crossing(shape: tuple[int, ...]) -> LoopFigures:
+    """Figures of members without a zero-phase crossing: NaN throughout."""
+    f_osc, gain, slope, Q, Z = (np.full(shape, np.nan) for _ in range(5))
+    T, dT = np.full(shape, np.nan + 0j), np.full(shape, np.nan + 0j)
+    return LoopFigures(f_osc, T, gain, slope, Q, Z, dT)
 
 
 def _bisect_leftovers(

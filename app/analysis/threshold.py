@@ -57,6 +57,9 @@ SEARCH_RANGE: Final = 1e4
 LOG_GAIN_TOL: Final = 1e-6
 #: Points per decade of the bracketing grid (one pipeline batch).
 SCAN_PER_DECADE: Final = 6
+#: A side of the range is scanned this many grid points at a time from the
+#: current value outward (two decades): a crossing found there needs no more.
+SCAN_FIRST: Final = 12
 #: The first grid covers value / NEAR_RANGE … value · NEAR_RANGE (warm
 #: starts hold there, so it is cheap); the rest of the range only if needed.
 NEAR_RANGE: Final = 10.0
@@ -288,22 +291,61 @@ def _search(trials: _Trials, value: float, start: Solved | None) -> Threshold:
 def _scan_side(
     trials: _Trials, x0: float, g0: float, step: float, down: bool
 ) -> tuple[int | None, np.ndarray, np.ndarray]:
-    """One side of the search range as one batch: the grid interval nearest
-    the current value where ln(gain) changes sign (``None`` if none), with
-    the grid (current value included) and its ln(gain)."""
+    """One side of the search range: the grid interval nearest the current
+    value where ln(gain) changes sign (``None`` if none), with the grid
+    (current value included) and its ln(gain).
+
+    The grid is solved from the current value outward, first its
+    :data:`SCAN_FIRST` nearest points (one batch), the rest (a second
+    batch) only when those hold no sign change whose polish can do without
+    them (:func:`_inside`).  What is returned is the side's grid as far as it
+    was solved; each member's figures are what a single batch would give, so
+    the threshold is the same.
+    """
     n = math.ceil(math.log(SEARCH_RANGE) / step)
     ks = np.arange(-n, 1) if down else np.arange(0, n + 1)
     xs = x0 + step * ks
-    gs = np.empty(xs.size)
+    gs = np.full(xs.size, np.nan)
     here = int(np.flatnonzero(ks == 0)[0])
-    others = ks != 0
-    gs[others] = trials.log_gain(xs[others])
     gs[here] = g0
+    # The grid's indices ordered from the current value outward.
+    order = np.arange(xs.size)[::-1] if down else np.arange(xs.size)
+    first = np.sort(order[1 : SCAN_FIRST + 1])
+    gs[first] = trials.log_gain(xs[first])
+    k = _nearest_change(gs, down)
+    if k is not None and _inside(k, gs, order[: SCAN_FIRST + 1], down):
+        kept = np.sort(order[: SCAN_FIRST + 1])
+        return k - int(kept[0]), xs[kept], gs[kept]
+    rest = np.sort(order[SCAN_FIRST + 1 :])
+    if rest.size:
+        gs[rest] = trials.log_gain(xs[rest])
+    return _nearest_change(gs, down), xs, gs
+
+
+def _nearest_change(gs: np.ndarray, down: bool) -> int | None:
+    """The interval nearest the current value (the grid's top when ``down``,
+    else its bottom) where ln(gain) changes sign between finite points."""
     finite = np.isfinite(gs)
     change = np.flatnonzero(finite[:-1] & finite[1:] & ((gs[:-1] > 0) != (gs[1:] > 0)))
     if not change.size:
-        return None, xs, gs
-    return int(change[-1] if down else change[0]), xs, gs
+        return None
+    return int(change[-1] if down else change[0])
+
+
+def _inside(k: int, gs: np.ndarray, solved: np.ndarray, down: bool) -> bool:
+    """Whether the polish of interval k reads nothing of the grid beyond the
+    solved indices: the neighbour beyond the interval's far end is solved
+    (its first parabola may use it), and a grid point the interpolation may
+    use lies nearer than any unsolved one (the next point toward the current
+    value, never a round's trial, or both ends of the interval, at most one
+    of which a trial can coincide with)."""
+    lo, hi = int(solved.min()), int(solved.max())
+    if (k - 1 < lo) if down else (k + 2 > hi):
+        return False
+    inner = k + 2 if down else k - 1
+    if 0 <= inner < gs.size and _usable(float(gs[inner])):
+        return True
+    return _usable(float(gs[k])) and _usable(float(gs[k + 1]))
 
 
 def _ln(gain: float) -> float:

@@ -5,13 +5,23 @@ from __future__ import annotations
 import itertools
 import math
 
+import numpy as np
 import pytest
 from scipy.optimize import brentq
 
 from ringwise.analysis.operating import solve
-from ringwise.analysis.threshold import MAX_SWEEP_POINTS, ParameterError, find_threshold, sweep
+from ringwise.analysis.threshold import (
+    MAX_SWEEP_POINTS,
+    SCAN_PER_DECADE,
+    SEARCH_RANGE,
+    ParameterError,
+    _scan_side,
+    _Trials,
+    find_threshold,
+    sweep,
+)
 from ringwise.circuit.topologies import gain_setter
-from ringwise.design import Design, with_param
+from ringwise.design import Design, get_param, with_param
 from ringwise.resources import sample_files
 from tests.conftest import BASE_CE, design_from
 
@@ -120,3 +130,38 @@ def test_batched_threshold_equals_the_sequential_answer(path) -> None:
     assert th.value == pytest.approx(ref, rel=1e-6)
     # Without a start the search gives the same value.
     assert find_threshold(design, param).value == pytest.approx(th.value, rel=1e-6)
+
+
+@pytest.mark.parametrize(
+    ("stem", "param"),
+    [("follower-test-source-4M", "RE"), ("follower-test-source-4M", "L"), ("clapp-clock-1M", "C2")],
+)
+@pytest.mark.parametrize("down", [True, False])
+def test_side_scan_in_parts_equals_the_side_in_one_batch(stem: str, param: str, down: bool) -> None:
+    # The scan solves the nearest grid points first and the rest only when
+    # needed: the interval it picks and the grid it hands the polish must be
+    # those of the whole side solved as one batch (common practice, no source:
+    # a shortcut must not change the answer).
+    path = next(p for p in sample_files() if p.stem == stem)
+    design = Design.model_validate_json(path.read_text(encoding="utf-8"))
+    s = solve(design)
+    value = get_param(design, param)
+    trials = _Trials(design, param, s.op.x, s.f_osc)
+    x0, step = math.log(value), math.log(10.0) / SCAN_PER_DECADE
+    k, xs, gs = _scan_side(trials, x0, math.log(s.gain), step, down)
+    n = math.ceil(math.log(SEARCH_RANGE) / step)
+    ks = np.arange(-n, 1) if down else np.arange(0, n + 1)
+    full_xs = x0 + step * ks
+    full_gs = trials.log_gain(full_xs)
+    full_gs[ks == 0] = math.log(s.gain)
+    finite = np.isfinite(full_gs)
+    change = np.flatnonzero(finite[:-1] & finite[1:] & ((full_gs[:-1] > 0) != (full_gs[1:] > 0)))
+    if not change.size:
+        assert k is None
+        return
+    full_k = int(change[-1] if down else change[0])
+    assert k is not None
+    offset = int(np.flatnonzero(np.isclose(full_xs, xs[0], rtol=0, atol=1e-12))[0])
+    assert k + offset == full_k
+    np.testing.assert_allclose(xs, full_xs[offset : offset + xs.size], rtol=0, atol=1e-12)
+    np.testing.assert_allclose(gs, full_gs[offset : offset + xs.size], rtol=1e-9, atol=1e-12)
