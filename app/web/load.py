@@ -1,17 +1,27 @@
 """Load benchmark of the sheet's server (``make load``); a benchmark, never a test.
 
 Starts the app under uvicorn, in a process of its own, on a free port of
-127.0.0.1 (loopback only; stopped at the end),
-then runs ``clients`` concurrent clients, each sending ``POST /api/analyze``
-one after another for ``seconds``, while one heavy client alternates a
-sweep of :data:`HEAVY_SWEEP_POINTS` points and a transient of
-:data:`HEAVY_CYCLES` cycles.  It stops by itself: at the deadline, or
-after ``max_requests`` requests, and every request has a timeout.  Prints
-requests per second, p50/p99 latency of analyze, and the error count.
+127.0.0.1 (loopback only; stopped at the end), and runs two scenarios, each
+stopping by itself (a deadline and a request cap; every request has a
+timeout):
 
-Each client waits for its answer before it sends the next request (a closed
-loop), so with many more clients than cores the latency is mostly queueing:
-by Little's law, latency ≈ clients / throughput.
+* **goal** — :data:`GOAL_LIGHT` light clients, each sending ``POST
+  /api/analyze`` then pausing :data:`THINK_S` (a person editing the sheet:
+  an edit, a look at the answer), while :data:`GOAL_HEAVY` heavy clients
+  keep one heavy request each running all the time (a Monte Carlo spread and
+  a time-domain run, alternately).  The target: analyze p99 below
+  :data:`P99_TARGET`.
+* **flood** — :data:`DEFAULT_CLIENTS` light clients sending analyze one after
+  another without a pause (a closed loop: with many more clients than cores
+  the latency is mostly queueing; by Little's law latency ≈ clients /
+  throughput), while :data:`FLOOD_HEAVY` heavy clients send spreads, runs
+  and sweeps.  The target: no errors (a timeout, a reset connection, any
+  5xx), the heavy requests past their kind's limit refused with 429 at
+  once (their latency reported), the refused clients waiting as
+  ``Retry-After`` says.
+
+Prints, per scenario, requests per second, p50/p99 of analyze, each heavy
+kind's answers, the refusals and their p99 latency, and the errors.
 """
 
 from __future__ import annotations
@@ -37,13 +47,23 @@ DEFAULT_SECONDS: Final = 30.0
 DEFAULT_MAX_REQUESTS: Final = 200_000
 #: No request may take longer than this, s.
 REQUEST_TIMEOUT: Final = 60.0
-#: The heavy requests mixed in: a long sweep and a transient (the sheet's own defaults).
+#: The goal scenario: light clients, their pause between edits (s), heavy jobs running.
+GOAL_LIGHT: Final = 20
+THINK_S: Final = 1.0
+GOAL_HEAVY: Final = 2
+GOAL_SECONDS: Final = 20.0
+#: The flood scenario's heavy clients (more than the limits admit).
+FLOOD_HEAVY: Final = 8
+#: The heavy requests: a long sweep, a transient (the sheet's defaults), a spread.
 HEAVY_SWEEP_POINTS: Final = 200
 HEAVY_CYCLES: Final = 300
 HEAVY_POINTS: Final = 2000
-#: The target of issue 7 for analyze while heavy requests run, s.
-P99_TARGET: Final = 0.200
+HEAVY_SAMPLES: Final = 20_000
+#: The targets of issue 15 for analyze while heavy work runs, s.
+P99_TARGET: Final = 0.150
 SAMPLE: Final = "clapp-clock-1M"
+#: Statuses that are answers, not errors: 200, and 429/503 (refused, with Retry-After).
+REFUSED: Final = (429, 503)
 
 
 @dataclass
@@ -53,6 +73,7 @@ class Stats:
     seconds: float = 0.0
     latencies: dict[str, list[float]] = field(default_factory=dict)
     errors: dict[str, int] = field(default_factory=dict)
+    refusals: list[float] = field(default_factory=list)
 
     def add(self, kind: str, latency: float) -> None:
         self.latencies.setdefault(kind, []).append(latency)
@@ -62,17 +83,15 @@ class Stats:
 
     @property
     def requests(self) -> int:
-        return sum(len(v) for v in self.latencies.values()) + self.error_count
+        answered = sum(len(v) for v in self.latencies.values())
+        return answered + len(self.refusals) + self.error_count
 
     @property
     def error_count(self) -> int:
         return sum(self.errors.values())
 
     def percentile(self, kind: str, q: float) -> float | None:
-        values = sorted(self.latencies.get(kind, []))
-        if not values:
-            return None
-        return values[min(len(values) - 1, round(q / 100 * (len(values) - 1)))]
+        return _percentile(self.latencies.get(kind, []), q)
 
     def summary(self) -> dict[str, Any]:
         out: dict[str, Any] = {
@@ -81,6 +100,8 @@ class Stats:
             "requests_per_s": round(self.requests / self.seconds, 1) if self.seconds else 0.0,
             "errors": self.error_count,
             "error_kinds": dict(self.errors),
+            "refused": len(self.refusals),
+            "refused_p99_ms": _ms(_percentile(self.refusals, 99)),
         }
         for kind, values in sorted(self.latencies.items()):
             out[kind] = {
@@ -90,6 +111,13 @@ class Stats:
                 "mean_ms": _ms(statistics.fmean(values)),
             }
         return out
+
+
+def _percentile(values: list[float], q: float) -> float | None:
+    if not values:
+        return None
+    ordered = sorted(values)
+    return ordered[min(len(ordered) - 1, round(q / 100 * (len(ordered) - 1)))]
 
 
 def _ms(seconds: float | None) -> float | None:
@@ -154,30 +182,51 @@ class _Server:
                 self.process.wait(timeout=5)
 
 
-async def _one(client: Any, stats: Stats, kind: str, path: str, body: dict) -> None:
+async def _one(client: Any, stats: Stats, kind: str, path: str, body: dict) -> float:
+    """One request; the seconds a refused one asks the client to wait (else 0)."""
     t0 = time.perf_counter()
     try:
         r = await client.post(path, json=body)
     except Exception as err:  # a timeout, a refused or reset connection: all errors
         stats.error(f"{kind}: {type(err).__name__}")
-        return
+        return 0.0
+    latency = time.perf_counter() - t0
     if r.status_code == 200:
-        stats.add(kind, time.perf_counter() - t0)
+        stats.add(kind, latency)
+    elif r.status_code in REFUSED and "retry-after" in r.headers:
+        stats.refusals.append(latency)
+        return float(r.headers["retry-after"])
     else:
         stats.error(f"{kind}: HTTP {r.status_code}")
+    return 0.0
 
 
-async def _run(url: str, clients: int, seconds: float, max_requests: int, heavy: bool) -> Stats:
+async def _run(
+    url: str,
+    clients: int,
+    seconds: float,
+    max_requests: int,
+    heavy: int,
+    think: float,
+) -> Stats:
     import httpx2 as httpx
 
     design = json.loads((SAMPLES_DIR / f"{SAMPLE}.json").read_text(encoding="utf-8"))
     base_RC = parse_quantity(design["bias"]["RC"], "Ω")
+    spread = {"design": design, "samples": HEAVY_SAMPLES, "seed": 1}
+    simulate = {"design": design, "cycles": HEAVY_CYCLES, "points": HEAVY_POINTS}
     sweep = {"design": design, "param": "RC", "start": 10, "stop": 1e4}
     sweep["points"] = HEAVY_SWEEP_POINTS
-    simulate = {"design": design, "cycles": HEAVY_CYCLES, "points": HEAVY_POINTS}
+    heavy_requests = [
+        ("spread", "/api/spread", spread),
+        ("simulate", "/api/simulate", simulate),
+        ("sweep", "/api/sweep", sweep),
+    ]
     stats = Stats()
     sent = 0
-    limits = httpx.Limits(max_connections=clients + 2, max_keepalive_connections=clients + 2)
+    limits = httpx.Limits(
+        max_connections=clients + heavy + 2, max_keepalive_connections=clients + heavy + 2
+    )
     start = time.perf_counter()
     deadline = start + seconds
 
@@ -188,24 +237,32 @@ async def _run(url: str, clients: int, seconds: float, max_requests: int, heavy:
         sent += 1
         return True
 
+    async def pause(s: float) -> None:
+        await asyncio.sleep(max(0.0, min(s, deadline - time.perf_counter())))
+
     async with httpx.AsyncClient(base_url=url, limits=limits, timeout=REQUEST_TIMEOUT) as client:
 
-        async def light() -> None:
+        async def light(i: int) -> None:
+            if think:
+                await pause(think * i / clients)  # the edits spread over the pause
             while more():
                 # Every request a design not seen before (RC moved a little), as
                 # many users editing would send: the server's memory of recent
                 # analyses must not flatter the figures.
                 edited = json.loads(json.dumps(design))
                 edited["bias"]["RC"] = base_RC * (1.0 + 1e-4 * sent)
-                await _one(client, stats, "analyze", "/api/analyze", edited)
+                wait = await _one(client, stats, "analyze", "/api/analyze", edited)
+                await pause(max(wait, think))
 
-        async def heavy_client() -> None:
+        async def heavy_client(i: int) -> None:
+            # the goal's two clients take different kinds, so both run at once
+            k = i
             while more():
-                await _one(client, stats, "sweep", "/api/sweep", sweep)
-                if more():
-                    await _one(client, stats, "simulate", "/api/simulate", simulate)
+                kind, path, body = heavy_requests[k % (2 if heavy <= 2 else 3)]
+                await pause(await _one(client, stats, kind, path, body))
+                k += 1
 
-        tasks = [light() for _ in range(clients)] + ([heavy_client()] if heavy else [])
+        tasks = [light(i) for i in range(clients)] + [heavy_client(i) for i in range(heavy)]
         await asyncio.gather(*tasks)
     stats.seconds = time.perf_counter() - start
     return stats
@@ -215,7 +272,8 @@ def run(
     clients: int = DEFAULT_CLIENTS,
     seconds: float = DEFAULT_SECONDS,
     max_requests: int = DEFAULT_MAX_REQUESTS,
-    heavy: bool = True,
+    heavy: int = FLOOD_HEAVY,
+    think: float = 0.0,
 ) -> dict[str, Any]:
     """Serve the app on a free loopback port, load it, stop it; the figures as a dict."""
     out: list[Stats] = []
@@ -223,7 +281,7 @@ def run(
         # a thread of its own, so it also runs where an event loop is already running
         worker = threading.Thread(
             target=lambda: out.append(
-                asyncio.run(_run(server.url, clients, seconds, max_requests, heavy))
+                asyncio.run(_run(server.url, clients, seconds, max_requests, heavy, think))
             ),
             name="load-clients",
         )
@@ -234,20 +292,28 @@ def run(
     return out[0].summary()
 
 
-def report(figures: dict[str, Any], clients: int) -> str:
+def report(
+    figures: dict[str, Any], clients: int, heavy: int = FLOOD_HEAVY, think: float = 0.0
+) -> str:
     analyze = figures.get("analyze", {})
+    pace = f"a {think:g} s pause after each answer" if think else "no pause (closed loop)"
     lines = [
-        f"ringwise load: {clients} analyze clients + 1 heavy client (sweep "
-        f"{HEAVY_SWEEP_POINTS} points / simulate {HEAVY_CYCLES} cycles), {figures['seconds']} s, "
-        "127.0.0.1",
+        f"ringwise load: {clients} analyze clients ({pace}) + {heavy} heavy clients "
+        f"(spread {HEAVY_SAMPLES} samples / simulate {HEAVY_CYCLES} cycles"
+        + (f" / sweep {HEAVY_SWEEP_POINTS} points" if heavy > 2 else "")
+        + f"), {figures['seconds']} s, 127.0.0.1",
         f"  requests      {figures['requests']}  ({figures['requests_per_s']} /s)",
         f"  analyze       {analyze.get('count', 0)} answered, p50 {analyze.get('p50_ms')} ms, "
         f"p99 {analyze.get('p99_ms')} ms  (target p99 < {P99_TARGET * 1000:.0f} ms)",
     ]
-    for kind in ("sweep", "simulate"):
+    for kind in ("spread", "simulate", "sweep"):
         if kind in figures:
             f = figures[kind]
             lines.append(f"  {kind:<13} {f['count']} answered, p50 {f['p50_ms']} ms")
+    lines.append(
+        f"  refused       {figures['refused']} (429/503 with Retry-After), "
+        f"p99 {figures['refused_p99_ms']} ms"
+    )
     lines.append(f"  errors        {figures['errors']}  {figures['error_kinds'] or ''}".rstrip())
     return "\n".join(lines)
 
@@ -256,14 +322,34 @@ def main(argv: list[str] | None = None) -> int:
     p = argparse.ArgumentParser(
         prog="python -m ringwise.web.load", description=__doc__.splitlines()[0]
     )
-    p.add_argument("--clients", type=int, default=DEFAULT_CLIENTS)
-    p.add_argument("--seconds", type=float, default=DEFAULT_SECONDS)
+    p.add_argument(
+        "--scenario",
+        choices=("both", "goal", "flood"),
+        default="both",
+        help="goal: 20 light clients pausing between edits, 2 heavy jobs always running; "
+        "flood: 200 closed-loop clients and more heavy requests than admitted",
+    )
+    p.add_argument("--clients", type=int, default=None, help="light clients (overrides)")
+    p.add_argument("--seconds", type=float, default=None)
     p.add_argument("--max-requests", type=int, default=DEFAULT_MAX_REQUESTS)
-    p.add_argument("--no-heavy", action="store_true", help="analyze requests only")
     p.add_argument("--json", action="store_true", help="print the figures as JSON")
     args = p.parse_args(argv)
-    figures = run(args.clients, args.seconds, args.max_requests, heavy=not args.no_heavy)
-    print(json.dumps(figures, indent=2) if args.json else report(figures, args.clients))
+    plans = {
+        "goal": (GOAL_LIGHT, GOAL_SECONDS, GOAL_HEAVY, THINK_S),
+        "flood": (DEFAULT_CLIENTS, DEFAULT_SECONDS, FLOOD_HEAVY, 0.0),
+    }
+    chosen = ("goal", "flood") if args.scenario == "both" else (args.scenario,)
+    results = {}
+    for name in chosen:
+        clients, seconds, heavy, think = plans[name]
+        clients = args.clients or clients
+        seconds = args.seconds or seconds
+        figures = run(clients, seconds, args.max_requests, heavy, think)
+        results[name] = figures
+        if not args.json:
+            print(f"[{name}] " + report(figures, clients, heavy, think), flush=True)
+    if args.json:
+        print(json.dumps(results, indent=2))
     return 0
 
 

@@ -14,7 +14,7 @@ from ringwise.web.samples import sample_texts
 
 def test_load_smoke_run_stops_by_itself_without_errors():
     t0 = time.monotonic()
-    figures = load.run(clients=5, seconds=2.0, max_requests=400)
+    figures = load.run(clients=5, seconds=2.0, max_requests=400, heavy=1)
     elapsed = time.monotonic() - t0
     assert figures["errors"] == 0, figures["error_kinds"]
     assert figures["analyze"]["count"] > 0
