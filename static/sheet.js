@@ -90,7 +90,7 @@ const TYPING_PAUSE_MS = 450;
 const SLIDER_MS = 30;
 // While a slider moves, the figures follow it but the plots wait until it rests this
 // long: a plot's redraw is the page's longest task, and a drag must not queue them.
-const SLIDER_REST_MS = 100;
+const SLIDER_REST_MS = 200;
 const PRESET_FIELDS = ["beta", "IS", "VA", "fT", "C_mu"];
 
 const $ = (sel, root = document) => root.querySelector(sel);
