@@ -19,6 +19,7 @@ from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
 from ringwise.web.bodies import BODY_SECONDS, MAX_BODY_BYTES, TOO_LARGE, BodyGuard
 from ringwise.web.fields import texts_from_document
 from ringwise.web.hosts import HostGuard
+from ringwise.web.light import LightLimit
 from ringwise.web.methods import HeadAsGet
 from ringwise.web.paths import STATIC_DIR
 from ringwise.web.routers import api, downloads, jobs, pages, simulate, spread, tools
@@ -83,6 +84,9 @@ def _document_errors(app: FastAPI) -> None:
         for operations in schema["paths"].values():
             for operation in operations.values():
                 responses = operation.setdefault("responses", {})
+                responses.setdefault(
+                    "503", {"description": "Busy: too many at once; try again after Retry-After"}
+                )
                 if "requestBody" in operation:
                     responses["400"] = {"description": "The body could not be read"}
                     responses["413"] = {"description": TOO_LARGE[0].upper() + TOO_LARGE[1:]}
@@ -175,6 +179,8 @@ def create_app(
 
     # added before the headers middleware, so it runs inside it: refused bodies get the headers
     app.add_middleware(BodyGuard, limit=MAX_BODY_BYTES, seconds=body_seconds)
+    # outside the body guard: a light computation past its limit is refused unread (light.py)
+    app.add_middleware(LightLimit)
     app.add_middleware(HeadAsGet)
     # outside the body guard: a foreign Host or Origin is refused before any body is read
     app.add_middleware(HostGuard, hosts=tuple(allow_hosts))
