@@ -26,7 +26,12 @@ from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.stability import RATING_FRACTION
 from ringwise.circuit.netlist import Capacitor, Inductor, Resistor
-from ringwise.circuit.topologies import CHOKE
+from ringwise.circuit.topologies import (
+    CHOKE,
+    VARACTOR_COUPLING,
+    VARACTOR_FEED,
+    VARACTOR_RETURN,
+)
 from ringwise.design import CAPACITOR_PARTS, PARAMETERS, Design, get_param
 from ringwise.preferred import (
     CAPACITORS,
@@ -51,6 +56,13 @@ COILS: Final = (*INDUCTORS, "L_ch")
 #: Design parameter -> element name in the netlist, where they differ.
 ELEMENT: Final = {"L_ch": CHOKE}
 KINDS: Final = {"R": "resistor", "C": "capacitor", "L": "inductor"}
+#: The varactor's passive parts: reference -> (design parameter, letter).  The anode's
+#: DC return is a resistor of R_tune's value (``topologies.VARACTOR_RETURN``).
+VARACTOR_PARTS: Final = {
+    VARACTOR_FEED: (VARACTOR_FEED, "R"),
+    VARACTOR_RETURN: (VARACTOR_FEED, "R"),
+    VARACTOR_COUPLING: (VARACTOR_COUPLING, "C"),
+}
 LETTERS: Final = {kind: letter for letter, kind in KINDS.items()}
 
 
@@ -137,11 +149,16 @@ def bill_of_materials(design: Design, document: Any = None) -> list[BomLine]:
     unused = design.unused_parts()
     tol = design.tolerances
     lines = []
-    for part in (*RESISTORS, *CAPACITORS, *COILS):
-        value = get_param(design, part)
+    parts = [
+        (part, part, "L" if part in COILS else "C" if part in CAPACITORS else "R")
+        for part in (*RESISTORS, *CAPACITORS, *COILS)
+    ]
+    if design.varactor is not None:
+        parts += [(ref, param, letter) for ref, (param, letter) in VARACTOR_PARTS.items()]
+    for part, param, letter in parts:
+        value = get_param(design, param)
         if value is None or part in unused:
             continue
-        letter = "L" if part in COILS else "C" if part in CAPACITORS else "R"
         series = series_of(value)
         if letter == "L" and series not in (None, "E6", "E12"):
             series = None  # coils are stocked in E12 at most
@@ -163,13 +180,15 @@ def bill_of_materials(design: Design, document: Any = None) -> list[BomLine]:
             BomLine(
                 reference=part,
                 kind=KINDS[letter],
-                written=_written(document, part, value, UNITS[letter]),
+                written=_written(document, param, value, UNITS[letter]),
                 value=value,
                 standard_value=standard,
                 series=series,
-                tolerance=tol.of(part),
+                tolerance=tol.C if part == VARACTOR_COUPLING else tol.of(part),
                 dielectric=DIELECTRIC_CLASS[tol.dielectric_of(part)]
                 if part in CAPACITOR_PARTS
+                else DIELECTRIC_CLASS["C0G"]  # in the tank, beside the diode
+                if part == VARACTOR_COUPLING
                 else None,
                 V_peak=V_peak,
                 P=P,

@@ -10,7 +10,7 @@ import pytest
 
 from ringwise.analysis.operating import solve
 from ringwise.analysis.periodic import forget, steady_state
-from ringwise.bom import RESISTOR_POWER_RATING, bill_of_materials
+from ringwise.bom import RESISTOR_POWER_RATING, VARACTOR_PARTS, bill_of_materials
 from ringwise.cli import main
 from ringwise.design import get_param
 from ringwise.preferred import CAPACITORS, INDUCTORS, RESISTORS
@@ -26,6 +26,8 @@ def test_every_part_with_its_standard_series(path, capsys) -> None:
         for p in (*RESISTORS, *CAPACITORS, *INDUCTORS)
         if get_param(design, p) is not None and p not in design.unused_parts()
     }
+    if design.varactor is not None:
+        used |= set(VARACTOR_PARTS)  # its feed, its return and its coupling capacitor
     assert {line.reference for line in lines} == used
     for line in lines:
         # the samples are built from standard values (IEC 60063)
@@ -94,3 +96,16 @@ def test_a_choke_fed_collector_lists_the_choke_not_rc() -> None:
     assert "RC" not in lines
     assert lines["L_ch"].kind == "inductor" and lines["L_ch"].series == "E6"  # 1.0 (IEC 60063)
     assert lines["L_ch"].V_peak is not None and lines["L_ch"].V_peak > 0
+
+
+def test_a_varactor_design_lists_its_feed_return_and_coupling_capacitor() -> None:
+    path = next(p for p in sample_paths() if p.stem == "varactor-lo-5M")
+    design = load_sample(path)
+    lines = {line.reference: line for line in bill_of_materials(design)}
+    steady = {p.part: p for p in steady_state(solve(design)).parts}
+    v = design.varactor
+    assert lines["R_tune"].value == lines["R_ret"].value == v.R_tune
+    assert lines["C_v"].value == v.C_v and lines["C_v"].kind == "capacitor"
+    assert lines["C_v"].tolerance == design.tolerances.C
+    for ref in VARACTOR_PARTS:
+        assert lines[ref].V_peak == pytest.approx(steady[ref].V_peak, rel=1e-6)
