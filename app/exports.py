@@ -114,17 +114,25 @@ def sweep_table(sweep: Any) -> Table:
 
 
 def samples_table(spread: Any) -> Table:
-    """Every Monte Carlo sample at every temperature of a
-    :class:`~ringwise.analysis.spread.Spread`: the drawn part values (at 25 °C),
-    f_osc, loop gain and whether it starts there."""
+    """Every Monte Carlo sample at every corner of a
+    :class:`~ringwise.analysis.spread.Spread` (each temperature, and with a varactor each
+    tuning voltage at it): the drawn part values (at 25 °C), f_osc, loop gain and whether
+    it starts there."""
     parts = list(spread.draws.values)
-    header = ["sample", "T [°C]", *parts, "f_osc [Hz]", "loop gain", "starts"]
+    tunes = list(spread.tuning_voltages or [None])
+    corners = [(T, V) for T in spread.temperatures for V in tunes]
+    tuned = spread.tuning_voltages is not None
+    header = ["sample", "T [°C]", *(["V_tune [V]"] if tuned else []), *parts]
+    header += ["f_osc [Hz]", "loop gain", "starts"]
     n = spread.samples
     cols: list[list[Any]] = [[] for _ in header]
-    for T, batch, starts in zip(spread.temperatures, spread.batches, spread.starts, strict=True):
+    first = 3 if tuned else 2
+    for (T, V), batch, starts in zip(corners, spread.batches, spread.starts, strict=True):
         cols[0] += range(n)
         cols[1] += [T] * n
-        for j, part in enumerate(parts, start=2):
+        if tuned:
+            cols[2] += [V] * n
+        for j, part in enumerate(parts, start=first):
             cols[j] += [float(v) for v in spread.draws.values[part]]
         cols[-3] += [float(v) if math.isfinite(v) else None for v in batch.f_osc]
         cols[-2] += [float(v) if math.isfinite(v) else None for v in batch.gain]

@@ -97,3 +97,15 @@ def test_the_sheets_csv_links_follow_the_design(context, live_server, client) ->
         header = path.read_text(encoding="utf-8").splitlines()[0]
         assert client.get(href).text.splitlines()[0] == header
     assert sheet.errors == []
+
+
+def test_a_varactor_spread_has_a_row_per_sample_temperature_and_tuning_voltage(client) -> None:
+    answer = client.get("/api/csv/spread?design=varactor-lo-5M&samples=10&seed=3")
+    assert answer.status_code == 200, answer.text
+    rows = list(csv.DictReader(io.StringIO(answer.text)))
+    run = monte_carlo(
+        load_sample(next(p for p in sample_paths() if p.stem == "varactor-lo-5M")), 10, 3
+    )
+    assert len(rows) == 10 * len(run.temperatures) * len(run.tuning_voltages)
+    assert sorted({float(r["V_tune [V]"]) for r in rows}) == run.tuning_voltages
+    assert [r["starts"] == "true" for r in rows] == run.starts.reshape(-1).tolist()
