@@ -53,6 +53,15 @@ Hertz = SI("Hz", ge=1e3, le=1e12, description="hertz")
 Feed = Literal["resistor", "choke"]
 
 
+def _preset(presets: dict[str, dict[str, Any]], name: Any, kind: str) -> dict[str, Any]:
+    """The values of a named class (a transistor or varactor preset), or a message
+    naming the known ones."""
+    if not isinstance(name, str) or name not in presets:
+        known = ", ".join(sorted(presets))
+        raise ValueError(f"unknown {kind} preset {name!r}; known: {known}")
+    return presets[name]
+
+
 class _Part(BaseModel):
     model_config = ConfigDict(extra="forbid", validate_assignment=True)
 
@@ -177,12 +186,8 @@ class Varactor(_Part):
     @classmethod
     def _fill_from_preset(cls, data: Any) -> Any:
         if isinstance(data, dict) and data.get("preset") is not None:
-            name = data["preset"]
-            if not isinstance(name, str) or name not in VARACTOR_PRESETS:
-                known = ", ".join(sorted(VARACTOR_PRESETS))
-                raise ValueError(f"unknown varactor preset {name!r}; known: {known}")
             given = {k: v for k, v in data.items() if v is not None}
-            return {**VARACTOR_PRESETS[name], **given}
+            return {**_preset(VARACTOR_PRESETS, data["preset"], "varactor"), **given}
         return data
 
     @model_validator(mode="after")
@@ -240,11 +245,7 @@ class Device(_Part):
     @classmethod
     def _fill_from_preset(cls, data: Any) -> Any:
         if isinstance(data, dict) and data.get("preset") is not None:
-            name = data["preset"]
-            if not isinstance(name, str) or name not in DEVICE_PRESETS:
-                known = ", ".join(sorted(DEVICE_PRESETS))
-                raise ValueError(f"unknown transistor preset {name!r}; known: {known}")
-            return {**DEVICE_PRESETS[name], **data}
+            return {**_preset(DEVICE_PRESETS, data["preset"], "transistor"), **data}
         return data
 
 
