@@ -338,12 +338,10 @@ def _figures(
     # one period of each waveform from the output's rising zero crossing (its
     # fundamental's), wherever the solver's phase condition left the orbit
     shift = _start_phase(spec_out[1])
-    waveforms = {"t": orbit.t.tolist()}
-    for name, idx in lay.node.items():
-        waveforms[name] = _shifted(X[:, idx], shift).tolist()
-    waveforms["i_L"] = _shifted(X[:, lay.branch["L"]], shift).tolist()
-    waveforms["v_be"] = _shifted(v_be, shift).tolist()
-    waveforms["v_ce"] = _shifted(v_ce, shift).tolist()
+    names = [*lay.node, "i_L", "v_be", "v_ce"]
+    columns = [*lay.node.values(), lay.branch["L"]]
+    waves = _shifted(np.vstack((X[:, columns].T, v_be, v_ce)), shift).tolist()
+    waveforms = {"t": orbit.t.tolist(), **dict(zip(names, waves, strict=True))}
     return SteadyState(
         behaviour=fl.behaviour,
         reason=None,
@@ -464,16 +462,17 @@ def _start_phase(c1: complex) -> float:
 
 
 def _shifted(values: np.ndarray, shift: float) -> np.ndarray:
-    """One period of samples (N+1, uniform grid) advanced by ``shift`` periods, by the
-    trigonometric interpolant (exact for whole steps)."""
-    v = np.asarray(values[:-1], dtype=float)
-    N = v.size
-    c = np.fft.rfft(v)
-    c *= np.exp(2j * math.pi * np.arange(c.size) * shift)
+    """One period of samples (N+1, uniform grid, along the last axis; one row per
+    signal) advanced by ``shift`` periods, by the trigonometric interpolant
+    (exact for whole steps)."""
+    v = np.asarray(values, dtype=float)[..., :-1]
+    N = v.shape[-1]
+    c = np.fft.rfft(v, axis=-1)
+    c *= np.exp(2j * math.pi * np.arange(c.shape[-1]) * shift)
     if N % 2 == 0:
-        c[-1] = c[-1].real  # the Nyquist term stays real (a cosine at the grid's rate)
-    out = np.fft.irfft(c, N)
-    return np.concatenate((out, out[:1]))
+        c[..., -1] = c[..., -1].real  # the Nyquist term stays real (a cosine at the grid's rate)
+    out = np.fft.irfft(c, N, axis=-1)
+    return np.concatenate((out, out[..., :1]), axis=-1)
 
 
 def _rms(orbit: Orbit, v: np.ndarray) -> float:

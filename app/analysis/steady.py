@@ -45,6 +45,7 @@ Analysis*, ch. 7 (phase conditions), all from memory.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from typing import Final
@@ -141,10 +142,20 @@ class Orbit:
         """Times of the states, s."""
         return np.concatenate(([0.0], np.cumsum(self.h)))
 
+    @functools.cached_property
+    def _mean_weights(self) -> np.ndarray:
+        """The trapezoidal rule's weights of the N+1 samples (they sum to 1)."""
+        w = np.zeros(len(self.dtau) + 1)
+        w[:-1] += 0.5 * self.dtau
+        w[1:] += 0.5 * self.dtau
+        return w
+
     def mean(self, values: np.ndarray) -> np.ndarray:
         """Period average of samples on the orbit's grid (trapezoidal rule), along axis 0."""
-        mid = 0.5 * (values[1:] + values[:-1])
-        return np.tensordot(self.dtau, mid, axes=(0, 0))
+        values = np.asarray(values)
+        if values.ndim <= 2:
+            return np.dot(self._mean_weights, values)
+        return np.tensordot(self._mean_weights, values, axes=(0, 0))
 
     def fourier(self, values: np.ndarray, harmonics: int) -> np.ndarray:
         """Complex peak amplitudes c_0 … c_harmonics of samples on the grid.
@@ -239,42 +250,20 @@ def _trajectory(stepper: _Stepper, x0: np.ndarray, hs, N: int | None = None, sub
     With ``substeps`` > 0 a step whose Newton iteration fails is retried as
     2, 4, … 2**substeps shorter steps (the way in to an orbit, never the
     period map itself, which must be the same map at every evaluation).
+    Equal steps (the orbit's grid) run through :meth:`_Stepper.run`.
     """
-    steps = [hs] * N if N is not None else np.asarray(hs).tolist()
-    x = x0
-    v = stepper.controls(x)
-    ph = stepper.phi(*v)
-    X = np.empty((len(steps) + 1, len(x0)))
-    X[0] = x0
-    flat = list(ph)  # the device tuples end to end: one array at the end
-    v_prev = v
-    for k, h in enumerate(steps, 1):
-        stepped = stepper.step(h, x, v, v_prev, ph)
-        if stepped is None:
-            stepped = _split_step(stepper, h, x, v, ph, substeps)
-            if stepped is None:
-                return None
-        x, v_new, ph = stepped
-        v_prev, v = v, v_new
-        X[k] = x
-        flat.extend(ph)
-    return X, *stepper.unpack(np.array(flat).reshape(len(steps) + 1, -1))
-
-
-def _split_step(stepper: _Stepper, h: float, x: np.ndarray, v: tuple, ph: tuple, levels: int):
-    """One step of h taken as 2**k equal steps, the smallest k ≤ ``levels`` that works."""
-    for k in range(1, levels + 1):
-        parts = 2**k
-        xs, vs, phs, v_prev = x, v, ph, v
-        for _ in range(parts):
-            stepped = stepper.step(h / parts, xs, vs, v_prev, phs)
-            if stepped is None:
-                break
-            v_prev = vs
-            xs, vs, phs = stepped
-        else:
-            return xs, vs, phs
-    return None
+    if N is None:
+        sizes = np.asarray(hs, dtype=float)
+        if sizes.size and np.all(sizes == sizes[0]):
+            hs, N = float(sizes[0]), len(sizes)
+    if N is not None:
+        ran = stepper.run(x0, hs, N, substeps)
+    else:
+        ran = stepper.run_steps(x0, sizes.tolist(), substeps)
+    if ran is None:
+        return None
+    X, flat = ran
+    return X, *stepper.unpack(np.array(flat).reshape(len(X), -1))
 
 
 def _linearisation(stepper: _Stepper, hs: np.ndarray, X: np.ndarray, J: np.ndarray):
@@ -289,20 +278,21 @@ def _linearisation(stepper: _Stepper, hs: np.ndarray, X: np.ndarray, J: np.ndarr
 
 def _linearisation_steps(stepper: _Stepper, hs: np.ndarray, X: np.ndarray, J: np.ndarray):
     """As :func:`_linearisation`, with the per-step g_k·h_k (N, n) second."""
-    d = stepper.dyn
     Wt = stepper.Wt
     n = X.shape[1]
     sizes, which = np.unique(hs, return_inverse=True)
-    mats = [stepper.step_matrices(float(h)) for h in sizes]
-    B = np.stack([sm.B for sm in mats])[which]
-    K = np.stack([sm.K for sm in mats])[which]
-    M = np.stack([sm.M for sm in mats])[which]
-    D = np.stack([sm.Ainv @ (2.0 * d.C / h**2) for sm, h in zip(mats, sizes, strict=True)])[which]
+    mats = [stepper.linear_step(float(h)) for h in sizes]
+    if len(sizes) == 1:  # the orbit's equal steps: one set of matrices, broadcast
+        B, K, M, D = mats[0]
+    else:
+        B, K, M, D = (np.stack(parts)[which] for parts in zip(*mats, strict=True))
     E = B - K @ (J[:-1] @ Wt)  # B − K J_k Wᵀ
     Q = np.linalg.solve(np.eye(J.shape[-1])[None] + J[1:] @ M, J[1:])  # (I + J M)⁻¹ J
     S = E - K @ (Q @ (Wt @ E))
-    v = np.einsum("kij,kj->ki", D, X[1:] - X[:-1]) * hs[:, None]
-    g = v - np.einsum("kij,kj->ki", K, np.einsum("kij,kj->ki", Q, v @ Wt.T))
+    dX = X[1:] - X[:-1]
+    v = (dX @ D.T if D.ndim == 2 else np.einsum("kij,kj->ki", D, dX)) * hs[:, None]
+    Qv = np.einsum("kij,kj->ki", Q, v @ Wt.T)
+    g = v - (Qv @ K.T if K.ndim == 2 else np.einsum("kij,kj->ki", K, Qv))
     N = len(hs)
     aug = np.zeros((N, n + 1, n + 1))
     aug[:, :n, :n] = S
@@ -405,7 +395,8 @@ def shoot(
             X_new = _corrected(traj[0], S, g, dx, dT / T)
             # the device and the linearisation at the corrected states, so that
             # the monodromy (its trivial multiplier 1) belongs to this orbit
-            flat = [c for x_k in X_new for c in stepper.phi(*stepper.controls(x_k))]
+            phi = stepper.phi
+            flat = [c for v in (X_new @ dyn.W).tolist() for c in phi(*v)]
             phi_new, J_new = stepper.unpack(np.array(flat).reshape(len(X_new), -1))
             S, _g, Phi, dxdT_T = _linearisation_steps(stepper, T_new * dtau, X_new, J_new)
             done = (T_new, dtau, S, Phi, dxdT_T / T_new, dyn_idx, it, w, level, floating)

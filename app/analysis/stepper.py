@@ -223,6 +223,130 @@ class _Stepper:
         y -= np.dot(K, np.array((ic_n + q[0], ib_n + q[1])))
         return y, (vbe, vce), q
 
+    def linear_step(self, h: float) -> tuple:
+        """(B, K, M, A⁻¹·2C/h²) at step h, kept: what the step linearisations need."""
+        key = ("linear", h)
+        if key not in self._cache:
+            sm = self._run_matrices(h)[1]
+            self._cache[key] = (sm.B, sm.K, sm.M, sm.Ainv @ (2.0 * self.dyn.C / h**2))
+        return self._cache[key]
+
+    def _run_matrices(self, h: float) -> tuple:
+        """The step of :meth:`run` as one matrix, and the pieces it is made of.
+
+        The state enters through z_j = B x_j + c − K φ_j (the known part of the
+        next step), which obeys z_{j+1} = B z_j + c − (B + I)K φ_{j+1}; one
+        matrix-vector product with [B | 0 | c | −(B + I)K] stacked over Wᵀ
+        times it carries the row [z_j, a_j, 1, φ_{j+1}] to [z_{j+1}, a_{j+1}],
+        a = Wᵀz being the right-hand side of the next Newton solve.
+        """
+        key = ("run", h)
+        if key not in self._cache:
+            sm = self.step_matrices(h)
+            n, k = sm.K.shape
+            top = np.hstack((sm.B, np.zeros((n, k)), sm.c[:, None], -(sm.B @ sm.K + sm.K)))
+            ext = np.ascontiguousarray(np.vstack((top, self.Wt @ top)))
+            self._cache[key] = (ext, sm, tuple(sm.M.ravel().tolist()))
+        return self._cache[key]
+
+    def run(self, x0: np.ndarray, h: float, count: int, substeps: int = 0):
+        """``count`` steps of h from x0, the same steps as :meth:`step` with one
+        matrix-vector product each (see :meth:`_run_matrices`).
+
+        Returns (states (count + 1, n), the device tuples end to end as one
+        flat list), or ``None`` if a step fails.  With ``substeps`` > 0 a step
+        whose Newton iteration fails is retried as 2, 4, … 2**substeps
+        shorter steps (:func:`split_step`).
+        """
+        k = 2 + len(self.extra)
+        if k > 3:
+            return self.run_steps(x0, [h] * count, substeps)
+        ext, sm, m = self._run_matrices(h)
+        n = sm.K.shape[0]
+        cur = slice(n + k + 1, n + 2 * k + 1)
+        Z = np.empty((count + 1, n + 2 * k + 1))
+        Z[:, n + k] = 1.0
+        v = self.controls(x0)
+        ph = self.phi(*v)
+        z0 = sm.B @ x0 + sm.c - sm.K @ self._currents(ph)
+        Z[0, :n] = z0
+        Z[0, n : n + k] = self.Wt @ z0
+        a = Z[0, n : n + k].tolist()
+        flat = list(ph)
+        # the last four controls, newest first: Newton starts from their cubic
+        # extrapolation (three or four times closer than the linear one on
+        # the orbits of the samples, one evaluation of φ fewer a step), then
+        # from the last controls
+        v1 = v2 = v3 = v
+        fixes: dict[int, np.ndarray] = {}
+        newton, newton3, dot = self._newton, self._newton3, np.dot
+        for j in range(count):
+            guess = tuple(
+                4.0 * (p0 + p2) - 6.0 * p1 - p3
+                for p0, p1, p2, p3 in zip(v, v1, v2, v3, strict=True)
+            )
+            if k == 2:
+                found = newton(guess[0], guess[1], *a, *m)
+                if found is None:
+                    found = newton(v[0], v[1], *a, *m)
+                if found is not None:
+                    v_new, q = (found[0], found[1]), found[2]
+                    Z[j, cur] = q[0], q[1]
+            else:
+                found = newton3(*guess, *a, *m)
+                if found is None:
+                    found = newton3(*v, *a, *m)
+                if found is not None:
+                    v_new, q = found[:3], found[3]
+                    Z[j, cur] = q[0], q[1], q[8]
+            if found is not None:
+                dot(ext, Z[j], out=Z[j + 1, : n + k])
+            else:
+                if j in fixes:
+                    x_j = fixes[j]
+                elif j == 0:
+                    x_j = x0
+                else:
+                    x_j = Z[j - 1, :n] - sm.K @ Z[j - 1, cur]
+                stepped = split_step(self, h, x_j, v, ph, substeps)
+                if stepped is None:
+                    return None
+                x_new, v_new, q = stepped
+                fixes[j + 1] = x_new
+                Z[j, cur] = self._currents(q)
+                z = sm.B @ x_new + sm.c - sm.K @ self._currents(q)
+                Z[j + 1, :n] = z
+                Z[j + 1, n : n + k] = self.Wt @ z
+            a = Z[j + 1, n : n + k].tolist()
+            flat.extend(q)
+            v3, v2, v1, v, ph = v2, v1, v, v_new, q
+        X = np.empty((count + 1, n))
+        X[0] = x0
+        X[1:] = Z[:-1, :n] - Z[:-1, cur] @ sm.K.T
+        for j, x in fixes.items():
+            X[j] = x
+        return X, flat
+
+    def run_steps(self, x0: np.ndarray, hs: list[float], substeps: int = 0):
+        """:meth:`run` with any steps ``hs``, by :meth:`step` one at a time."""
+        x = x0
+        v = v_prev = self.controls(x)
+        ph = self.phi(*v)
+        X = np.empty((len(hs) + 1, len(x0)))
+        X[0] = x0
+        flat = list(ph)
+        for j, h in enumerate(hs, 1):
+            stepped = self.step(h, x, v, v_prev, ph)
+            if stepped is None:
+                stepped = split_step(self, h, x, v, ph, substeps)
+                if stepped is None:
+                    return None
+            x, v_new, ph = stepped
+            v_prev, v = v, v_new
+            X[j] = x
+            flat.extend(ph)
+        return X, flat
+
     def _extended_matrices(self, h: float) -> StepMatrices:
         key = ("extended", h)
         if key not in self._cache:
@@ -230,6 +354,8 @@ class _Stepper:
         return self._cache[key]
 
     def _currents(self, ph: tuple) -> np.ndarray:
+        """The nonlinear currents of a device tuple: the transistor's two, then each
+        further nonlinearity's value."""
         return np.array((ph[0], ph[1], *ph[8::2]))
 
     def _step_extended(self, h: float, x: np.ndarray, v: tuple, v_prev: tuple, ph: tuple):
@@ -252,9 +378,14 @@ class _Stepper:
 
     def _newton_three(self, v: np.ndarray, a: np.ndarray, M: np.ndarray) -> tuple | None:
         """:meth:`_newton_extended` for three controls (one varactor), in plain floats."""
-        v0, v1, v2 = v.tolist()
-        a0, a1, a2 = a.tolist()
-        (m00, m01, m02), (m10, m11, m12), (m20, m21, m22) = M.tolist()
+        found = self._newton3(*v.tolist(), *a.tolist(), *M.ravel().tolist())
+        return None if found is None else ((found[0], found[1], found[2]), found[3])
+
+    def _newton3(self, v0, v1, v2, a0, a1, a2, m00, m01, m02, m10, m11, m12, m20, m21, m22):
+        """Solve v + M·φ(v) = a on three controls (the transistor's two and one
+        varactor's charge); ``None`` if it does not converge.  Returns
+        (v0, v1, v2, tuple), the tuple being the transistor's and then the
+        varactor's (value, slope), at the last iterate (see :meth:`_newton`)."""
         phi, f = self.dyn.phi, self.extra[0]
         clamp, tol = NEWTON_CLAMP, NEWTON_TOL
         for _ in range(NEWTON_MAX):
@@ -265,14 +396,15 @@ class _Stepper:
             g1 = v1 + m10 * c0 + m11 * c1 + m12 * u - a1
             g2 = v2 + m20 * c0 + m21 * c1 + m22 * u - a2
             # I + M·Jφ, Jφ = [[q4, q5, 0], [q6, q7, 0], [0, 0, s]]
-            j00 = 1.0 + m00 * q[4] + m01 * q[6]
-            j01 = m00 * q[5] + m01 * q[7]
+            q4, q5, q6, q7 = q[4], q[5], q[6], q[7]
+            j00 = 1.0 + m00 * q4 + m01 * q6
+            j01 = m00 * q5 + m01 * q7
             j02 = m02 * s
-            j10 = m10 * q[4] + m11 * q[6]
-            j11 = 1.0 + m10 * q[5] + m11 * q[7]
+            j10 = m10 * q4 + m11 * q6
+            j11 = 1.0 + m10 * q5 + m11 * q7
             j12 = m12 * s
-            j20 = m20 * q[4] + m21 * q[6]
-            j21 = m20 * q[5] + m21 * q[7]
+            j20 = m20 * q4 + m21 * q6
+            j21 = m20 * q5 + m21 * q7
             j22 = 1.0 + m22 * s
             k0 = j11 * j22 - j12 * j21
             k1 = j12 * j20 - j10 * j22
@@ -286,10 +418,11 @@ class _Stepper:
             if d0 != d0 or d1 != d1 or d2 != d2:
                 return None
             if -tol < d0 < tol and -tol < d1 < tol and -tol < d2 < tol:
-                return (v0, v1, v2), (*q, u, s)
-            d0 = max(-clamp, min(clamp, d0))
-            d1 = max(-clamp, min(clamp, d1))
-            d2 = max(-clamp, min(clamp, d2))
+                return v0, v1, v2, (*q, u, s)
+            if d0 > clamp or d0 < -clamp or d1 > clamp or d1 < -clamp or d2 > clamp or d2 < -clamp:
+                d0 = max(-clamp, min(clamp, d0))
+                d1 = max(-clamp, min(clamp, d1))
+                d2 = max(-clamp, min(clamp, d2))
             v0, v1, v2 = v0 - d0, v1 - d1, v2 - d2
         return None
 
@@ -352,3 +485,19 @@ class _Stepper:
             vbe -= d0
             vce -= d1
         return None
+
+
+def split_step(stepper: _Stepper, h: float, x: np.ndarray, v: tuple, ph: tuple, levels: int):
+    """One step of h taken as 2**k equal steps, the smallest k ≤ ``levels`` that works."""
+    for k in range(1, levels + 1):
+        parts = 2**k
+        xs, vs, phs, v_prev = x, v, ph, v
+        for _ in range(parts):
+            stepped = stepper.step(h / parts, xs, vs, v_prev, phs)
+            if stepped is None:
+                break
+            v_prev = vs
+            xs, vs, phs = stepped
+        else:
+            return xs, vs, phs
+    return None
