@@ -79,10 +79,11 @@ def varactor_remainder(el: Varactor) -> Callable[[float], tuple[float, float]]:
     args = (el.C_j0, el.phi, el.m)
     C_b, V_b = el.C_bias, el.V_bias
     u_b = float(junction_law.charge(V_b, *args)) / C_b
+    law = junction_law.inverse_law(*args)
 
     def f(u: float) -> tuple[float, float]:
-        V = junction_law.voltage(C_b * u, *args)
-        return V - V_b - (u - u_b), C_b / junction_law.capacitance_at(V, *args) - 1.0
+        V, C = law(C_b * u)
+        return V - V_b - (u - u_b), C_b / C - 1.0
 
     return f
 

@@ -28,6 +28,8 @@ capacitance (Nagel, *SPICE2*, 1975, from memory).
 
 from __future__ import annotations
 
+import math
+from collections.abc import Callable
 from typing import Final
 
 import numpy as np
@@ -37,6 +39,8 @@ import numpy as np
 FC: Final = 0.5
 #: |1 − m| below this uses the logarithmic (m = 1) form of the charge.
 M_ONE: Final = 1e-9
+#: Largest argument of e^x taken as a float (beyond it, infinity as numpy's exp).
+EXP_LIMIT: Final = 700.0
 
 
 def capacitance(V, C_j0, phi, m):
@@ -82,22 +86,38 @@ def charge(V, C_j0, phi, m):
 def voltage(q: float, C_j0: float, phi: float, m: float) -> float:
     """V(q), V: the inverse of :func:`charge` (one float; ``nan`` beyond a
     hyperabrupt law's largest charge C_j0·φ/(m − 1))."""
-    q_fc = _charge_law(1.0 - FC, C_j0, phi, m)
-    if q >= q_fc:
-        if abs(1.0 - m) < M_ONE:
-            x = np.exp(q / (C_j0 * phi))
-        else:
-            u = 1.0 + q * (1.0 - m) / (C_j0 * phi)
-            if u <= 0.0:
-                return float("nan")
-            x = u ** (1.0 / (1.0 - m))
-        return float(phi * (x - 1.0))
-    # linear C below v_fc: q − q_fc = a·d − (m/2φ)(d² + 2·v_fc·d), d = V − v_fc
+    return inverse_law(C_j0, phi, m)(q)[0]
+
+
+def inverse_law(C_j0: float, phi: float, m: float) -> Callable[[float], tuple[float, float]]:
+    """q ↦ (V(q), C(V(q))) for one float, the law's constants worked out once
+    (the steppers' inner loop); both ``nan`` beyond a hyperabrupt law's
+    largest charge."""
+    q_fc = float(_charge_law(1.0 - FC, C_j0, phi, m))
     v_fc = -FC * phi
     C_fc = C_j0 * (1.0 - FC) ** (-1.0 - m)
+    log_form = abs(1.0 - m) < M_ONE
+    q_unit = C_j0 * phi
+    per_q = (1.0 - m) / q_unit
+    power = 1.0 / (1.0 - m) if not log_form else 0.0
+    # linear C below v_fc: q − q_fc = a·d − (m/2φ)(d² + 2·v_fc·d), d = V − v_fc
     a = C_fc * (1.0 - FC * (1.0 + m) - m * v_fc / phi)  # C at v_fc
     b = C_fc * m / (2.0 * phi)
-    # b·d² − a·d + (q − q_fc) = 0, the root with d ≤ 0 on the increasing branch
-    disc = a * a - 4.0 * b * (q - q_fc)
-    d = (a - np.sqrt(disc)) / (2.0 * b) if b > 0 else (q - q_fc) / a
-    return float(v_fc + d)
+    slope = C_fc * m / phi
+    nan = float("nan")
+
+    def law(q: float) -> tuple[float, float]:
+        if q >= q_fc:
+            if log_form:
+                x = math.exp(q / q_unit) if q < EXP_LIMIT * q_unit else math.inf
+            else:
+                u = 1.0 + q * per_q
+                if u <= 0.0:
+                    return nan, nan
+                x = u**power
+            return phi * (x - 1.0), C_j0 * x**-m
+        # b·d² − a·d + (q − q_fc) = 0, the root with d ≤ 0 on the increasing branch
+        d = (a - math.sqrt(a * a - 4.0 * b * (q - q_fc))) / (2.0 * b) if b > 0 else (q - q_fc) / a
+        return v_fc + d, a - slope * d
+
+    return law

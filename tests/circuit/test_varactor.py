@@ -50,7 +50,14 @@ from ringwise.circuit.topologies import (
     tank_capacitance,
     varactor_branch,
 )
-from ringwise.circuit.varactor import FC, capacitance, capacitance_at, charge, voltage
+from ringwise.circuit.varactor import (
+    FC,
+    capacitance,
+    capacitance_at,
+    charge,
+    inverse_law,
+    voltage,
+)
 from tests.conftest import BASE_CE, design_from
 
 ABRUPT = {"preset": "abrupt", "C_v": "1n", "V_tune": "4"}
@@ -99,6 +106,10 @@ def test_charge_is_the_integral_of_capacitance_and_voltage_its_inverse(m: float)
     assert charge(0.0, C_j0, phi, m) == 0.0
     back = np.array([voltage(float(x), C_j0, phi, m) for x in q])
     np.testing.assert_allclose(back, V, atol=1e-9)
+    # the steppers' form gives the capacitance there too
+    law = inverse_law(C_j0, phi, m)
+    C_back = np.array([law(float(x))[1] for x in q])
+    np.testing.assert_allclose(C_back, capacitance(V, C_j0, phi, m), rtol=1e-8)
     # the capacitance is continuous where the linear continuation starts
     v_fc = -FC * phi
     assert capacitance_at(v_fc - 1e-12, C_j0, phi, m) == pytest.approx(
