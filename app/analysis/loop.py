@@ -34,7 +34,8 @@ from typing import Final
 
 import numpy as np
 
-from ringwise.circuit.mna import SmallSignal
+from ringwise.circuit.batchlu import solve_batch
+from ringwise.circuit.mna import SmallSignal, dot_last
 
 #: The zero-phase crossing is sought between f_ref / SPAN and f_ref * SPAN.
 SEARCH_SPAN: Final = 3.0
@@ -55,6 +56,10 @@ NEWTON_STEPS: Final = 30
 #: before the search (:func:`without_pinned`): fewer to factorise per step,
 #: worth the reindexing once the factorisations dominate.
 CONDENSE_BATCH: Final = 64
+#: From this many systems (members × frequencies) on, the loop is solved by
+#: elimination across the batch (:mod:`ringwise.circuit.batchlu`) instead of
+#: LAPACK once per matrix, whose per-call overhead then dominates.
+BATCH_ELIMINATION: Final = 64
 TWO_PI: Final = 2.0 * math.pi
 
 
@@ -70,6 +75,8 @@ def loop_solve(
     """
     s_arr = np.asarray(s, dtype=complex)
     extra = s_arr.ndim - np.ndim(ss.gm)
+    if _eliminates(ss, s_arr):
+        return _loop_solve_batched(ss, s_arr, extra, slope)
     G, C = ss.G, ss.C
     for _ in range(extra):
         G, C = G[..., None, :, :], C[..., None, :, :]
@@ -81,6 +88,36 @@ def loop_solve(
     x = Yinv @ ss.u
     dx = -(Yinv @ (C @ x[..., None]))[..., 0]
     return x, dx
+
+
+def _eliminates(ss: SmallSignal, s: np.ndarray) -> bool:
+    """Whether :func:`loop_solve` takes the elimination across the batch: enough
+    systems, and no zero on the diagonal of the pattern (a supply's row, kept
+    when the batch was not condensed by :func:`without_pinned`)."""
+    n = ss.G.shape[-1]
+    if max(s.size, np.size(ss.gm)) < BATCH_ELIMINATION:  # s: the batch shape, then frequencies
+        return False
+    G0 = ss.G.reshape(-1, n, n)[0]
+    C0 = ss.C.reshape(-1, n, n)[0]
+    return bool(np.all((np.diagonal(G0) != 0) | (np.diagonal(C0) != 0)))
+
+
+def _loop_solve_batched(
+    ss: SmallSignal, s: np.ndarray, extra: int, slope: bool
+) -> tuple[np.ndarray, np.ndarray | None]:
+    """:func:`loop_solve` by elimination across the batch (matrices laid out (n, n, …))."""
+    n = ss.G.shape[-1]
+    G = np.moveaxis(ss.G, (-2, -1), (0, 1))
+    C = np.moveaxis(ss.C, (-2, -1), (0, 1))
+    tail = (slice(None), slice(None), ...) + (None,) * extra
+    G, C = G[tail], C[tail]
+    shape = np.broadcast_shapes(G.shape[2:], s.shape)
+    Y = np.empty((n, n, *shape), dtype=complex)
+    np.multiply(C, s, out=Y)
+    Y += G
+    more = (lambda x: np.einsum("ij...,j...->i...", C, x)) if slope else None
+    x, y = solve_batch(Y, ss.u.astype(complex), more)
+    return np.moveaxis(x, 0, -1), None if y is None else np.moveaxis(-y, 0, -1)
 
 
 def _gm(ss: SmallSignal, s: np.ndarray) -> np.ndarray:
@@ -96,7 +133,7 @@ def return_ratio(ss: SmallSignal, s: np.ndarray | complex) -> np.ndarray:
     circuit and ``s`` of shape (K,), the result has shape (K,).
     """
     x, _dx = loop_solve(ss, s)
-    return -_gm(ss, np.asarray(s)) * (x @ ss.w)
+    return -_gm(ss, np.asarray(s)) * dot_last(x, ss.w)
 
 
 def return_ratio_slope(ss: SmallSignal, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -104,7 +141,7 @@ def return_ratio_slope(ss: SmallSignal, s: np.ndarray) -> tuple[np.ndarray, np.n
     x, dx = loop_solve(ss, s, slope=True)
     assert dx is not None
     gm = ss.gm
-    return -gm * (x @ ss.w), -gm * (dx @ ss.w), x
+    return -gm * dot_last(x, ss.w), -gm * dot_last(dx, ss.w), x
 
 
 @dataclass(frozen=True)
@@ -223,7 +260,7 @@ def _figures_from(
         gain=mask(np.abs(T)),
         phase_slope=mask(slope),
         Q_loaded=mask(0.5 * w * np.abs(slope)),
-        Z_out=mask(np.abs(x @ ss.u)),
+        Z_out=mask(np.abs(dot_last(x, ss.u))),
         dT_ds=np.where(nan, np.nan + 0j, dT_ds),
     )
 

@@ -49,6 +49,11 @@ from ringwise.circuit.npn import (
 
 #: Conductance from every node to ground, S (SPICE's default GMIN).
 G_MIN = 1e-12
+#: From this many rows on, products with a batch of states go through
+#: ``numpy.einsum`` instead of BLAS: a threaded BLAS splits a product this
+#: size over its threads, which then spin idle between calls and cost more
+#: CPU time than the product itself.
+EINSUM_ROWS = 64
 #: Batches of at least this many circuits get the device's stamps entry by
 #: entry (a few strided additions); smaller ones as whole matrices (fewer calls).
 SPARSE_STAMP_BATCH = 64
@@ -74,6 +79,13 @@ class Layout:
         if node != GROUND:
             vec[self.node[node]] = 1.0
         return vec
+
+
+def dot_last(x: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """x·v over the last axis of ``x`` (one state (n,) or a batch (…, n)); ``v`` (n,)."""
+    if np.ndim(x) < 2 or np.size(x) < EINSUM_ROWS * np.shape(x)[-1]:
+        return x @ v
+    return np.einsum("...i,i->...", x, v)
 
 
 def layout_of(netlist: Netlist) -> Layout:
@@ -365,8 +377,8 @@ def device_currents(inc: Incidence, x: np.ndarray, params: NPNParams) -> DeviceC
     P, W and transport model in reduced form).  ``x`` is one state (n,) or a
     batch (B, n); ``params`` fields are floats or arrays of shape (B,).
     """
-    vbe = x @ inc.W_BE
-    vce = x @ inc.W_CE
+    vbe = dot_last(x, inc.W_BE)
+    vce = dot_last(x, inc.W_CE)
     with np.errstate(over="ignore", invalid="ignore"):  # a runaway trial is inf, not an error
         q = junction_currents(
             vbe, vce, params.IS, params.beta, params.beta_R, params.VA, params.VT,
@@ -578,8 +590,25 @@ def assemble_batch(
             out[target] = base[None]
             continue
         coeffs = _coefficients([values[k] for k in keys])  # (B, terms)
-        out[target] = base + (coeffs @ mats).reshape(-1, *base.shape)
+        if len(coeffs) < EINSUM_ROWS:
+            out[target] = base + (coeffs @ mats).reshape(-1, *base.shape)
+            continue
+        # A large batch: each unit stamp's few entries added in place (no BLAS threads).
+        flat = np.empty((len(coeffs), base.size))
+        flat[...] = base.reshape(-1)
+        for t, (where, unit) in enumerate(_entries(patterns, target)):
+            flat[:, where] += coeffs[:, t, None] * unit
+        out[target] = flat.reshape(-1, *base.shape)
     return LinearSystem(patterns.layout, out["G"], out["C"], out["b"], patterns.devices)
+
+
+def _entries(patterns: Patterns, target: str) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Each unit stamp of one target as (flat positions, values) of its nonzero entries."""
+    cache = patterns.__dict__.setdefault("_entries", {})
+    if target not in cache:
+        _keys, mats = _stacked(patterns, target)
+        cache[target] = [(np.flatnonzero(m), m[np.flatnonzero(m)]) for m in mats]
+    return cache[target]
 
 
 def _coefficients(column: list) -> np.ndarray:

@@ -12,6 +12,7 @@ from ringwise.analysis import spread as spread_module
 from ringwise.analysis.budget import _solve_variants, _variants, budget_items, loop_budget
 from ringwise.analysis.criteria import START_GAIN, Region
 from ringwise.analysis.dc import SCALAR_BATCH
+from ringwise.analysis.loop import BATCH_ELIMINATION, CONDENSE_BATCH
 from ringwise.analysis.operating import solve
 from ringwise.analysis.pipeline import solve_designs
 from ringwise.analysis.sensitivity import STEP, sensitivities
@@ -19,6 +20,7 @@ from ringwise.analysis.spread import analyse_batch, draw, monte_carlo, sample_de
 from ringwise.analysis.stability import PUSH_STEP, load_changed, neighbours, push_pull
 from ringwise.analysis.startup import verdict
 from ringwise.analysis.threshold import _Trials, sweep
+from ringwise.circuit.mna import EINSUM_ROWS, SPARSE_STAMP_BATCH
 from ringwise.design import with_param
 from tests.conftest import BASE_CE, at_gain, design_from
 
@@ -74,6 +76,28 @@ def test_array_newton_batch_equals_single_solves() -> None:
         else:
             assert batch.loop.f_osc[i] == pytest.approx(one.f_osc, rel=RTOL)
             assert batch.loop.gain[i] == pytest.approx(one.gain, rel=RTOL)
+
+
+def test_large_batch_equals_single_solves() -> None:
+    # A batch as large as a Monte Carlo chunk's takes the large-batch paths: stamps
+    # added entry by entry, the supply's unknowns dropped, the loop eliminated
+    # across the batch.  Every member is still its own single solve.
+    size = max(CONDENSE_BATCH, BATCH_ELIMINATION, EINSUM_ROWS, SPARSE_STAMP_BATCH)
+    designs = (_designs() * (size // len(VARIANTS) + 1))[: size + 1]
+    batch = solve_designs(designs)
+    for i, d in enumerate(designs[: len(VARIANTS)]):
+        one = solve(d)
+        np.testing.assert_allclose(batch.x[i], one.op.x, rtol=RTOL, atol=1e-12)
+        if one.f_osc is None:
+            assert np.isnan(batch.loop.f_osc[i])
+            continue
+        assert batch.loop.f_osc[i] == pytest.approx(one.f_osc, rel=RTOL)
+        assert batch.loop.gain[i] == pytest.approx(one.gain, rel=RTOL)
+        assert batch.loop.Q_loaded[i] == pytest.approx(float(one.loop.Q_loaded), rel=1e-7)
+        assert batch.loop.Z_out[i] == pytest.approx(float(one.loop.Z_out), rel=RTOL)
+        assert batch.loop.dT_ds[i] == pytest.approx(complex(one.loop.dT_ds), rel=1e-7)
+    same = slice(len(VARIANTS), None, len(VARIANTS))  # repeats of the first design
+    np.testing.assert_array_equal(batch.loop.f_osc[same], batch.loop.f_osc[0])
 
 
 def test_budget_batch_equals_each_variant_alone() -> None:
