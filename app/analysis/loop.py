@@ -34,7 +34,7 @@ from typing import Final
 
 import numpy as np
 
-from ringwise.circuit.batchlu import solve_batch
+from ringwise.circuit.batchlu import BatchLU, matvec, pivoted, unreliable
 from ringwise.circuit.mna import SmallSignal, dot_last
 
 #: The zero-phase crossing is sought between f_ref / SPAN and f_ref * SPAN.
@@ -102,22 +102,57 @@ def _eliminates(ss: SmallSignal, s: np.ndarray) -> bool:
     return bool(np.all((np.diagonal(G0) != 0) | (np.diagonal(C0) != 0)))
 
 
+@dataclass(frozen=True)
+class _BatchLast(SmallSignal):
+    """A large batch held for elimination across it: ``Gt`` and ``Ct`` are its G
+    and C laid out (n, n, B), contiguous; ``G`` and ``C`` are views of them."""
+
+    Gt: np.ndarray | None = None
+    Ct: np.ndarray | None = None
+
+
+def _batch_last(ss: SmallSignal, Gt: np.ndarray, Ct: np.ndarray, **fields) -> _BatchLast:
+    """``ss`` with the batch-last matrices ``Gt``, ``Ct`` (n, n, B) and other ``fields``."""
+    G, C = np.moveaxis(Gt, -1, 0), np.moveaxis(Ct, -1, 0)
+    kept = {f.name: getattr(ss, f.name) for f in dataclasses.fields(SmallSignal)}
+    return _BatchLast(**{**kept, "G": G, "C": C, **fields, "Gt": Gt, "Ct": Ct})
+
+
 def _loop_solve_batched(
     ss: SmallSignal, s: np.ndarray, extra: int, slope: bool
 ) -> tuple[np.ndarray, np.ndarray | None]:
-    """:func:`loop_solve` by elimination across the batch (matrices laid out (n, n, …))."""
+    """:func:`loop_solve` by elimination across the batch (matrices laid out (n, n, …)).
+
+    The backward error of every member's x is checked with G and C (the
+    residual's C·x is the slope's right-hand side), against the bound
+    max|G| + |s|·max|C| of max|G + sC|; members above the limit are solved
+    again by LAPACK with pivoting.
+    """
     n = ss.G.shape[-1]
-    G = np.moveaxis(ss.G, (-2, -1), (0, 1))
-    C = np.moveaxis(ss.C, (-2, -1), (0, 1))
+    if isinstance(ss, _BatchLast) and ss.Gt is not None and ss.Ct is not None:
+        G, C = ss.Gt, ss.Ct
+    else:
+        G, C = np.moveaxis(ss.G, (-2, -1), (0, 1)), np.moveaxis(ss.C, (-2, -1), (0, 1))
     tail = (slice(None), slice(None), ...) + (None,) * extra
     G, C = G[tail], C[tail]
     shape = np.broadcast_shapes(G.shape[2:], s.shape)
     Y = np.empty((n, n, *shape), dtype=complex)
     np.multiply(C, s, out=Y)
     Y += G
-    more = (lambda x: np.einsum("ij...,j...->i...", C, x)) if slope else None
-    x, y = solve_batch(Y, ss.u.astype(complex), more)
-    return np.moveaxis(x, 0, -1), None if y is None else np.moveaxis(-y, 0, -1)
+    u = ss.u.astype(complex).reshape((n,) + (1,) * len(shape))
+    lu = BatchLU(Y, overwrite=True)
+    x = lu.solve(u)
+    Cx = matvec(C, x)
+    residual = matvec(G, x) + s * Cx - u
+    size = np.abs(G).max(axis=(0, 1)) + np.abs(s) * np.abs(C).max(axis=(0, 1))
+    bad = unreliable(residual, size, x, u)
+    dx = -lu.solve(Cx) if slope else None
+    if bad.any():
+        Yb = G[..., bad] + s[bad] * C[..., bad]
+        x[:, bad] = pivoted(Yb, np.broadcast_to(u, x.shape)[:, bad])
+        if dx is not None:
+            dx[:, bad] = -pivoted(Yb, matvec(C[..., bad], x[:, bad]))
+    return np.moveaxis(x, 0, -1), None if dx is None else np.moveaxis(dx, 0, -1)
 
 
 def _gm(ss: SmallSignal, s: np.ndarray) -> np.ndarray:
@@ -234,7 +269,10 @@ def refine_crossing(
 
 def _members(ss: SmallSignal, keep: np.ndarray) -> SmallSignal:
     """The batch members ``keep`` (a boolean mask over the batch axis) of ``ss``."""
-    return dataclasses.replace(ss, G=ss.G[keep], C=ss.C[keep], gm=np.asarray(ss.gm)[keep])
+    gm = np.asarray(ss.gm)[keep]
+    if isinstance(ss, _BatchLast) and ss.Gt is not None and ss.Ct is not None:
+        return _batch_last(ss, ss.Gt[..., keep], ss.Ct[..., keep], gm=gm)
+    return dataclasses.replace(ss, G=ss.G[keep], C=ss.C[keep], gm=gm)
 
 
 def _figures(ss: SmallSignal, f_osc: np.ndarray) -> LoopFigures:
@@ -283,7 +321,7 @@ def find_oscillation(
         return LoopFigures(*(a[0] for a in _astuple(figs)))
     batch = np.shape(ss.gm)
     if np.size(ss.gm) >= CONDENSE_BATCH:
-        ss = without_pinned(ss)
+        ss = without_pinned(ss, batch_last=len(batch) == 1)
     f_ref_a = np.broadcast_to(np.asarray(f_ref, dtype=float), batch)
     start = f_ref_a if f_guess is None else np.broadcast_to(np.asarray(f_guess, float), batch)
     first = refine_crossing(ss, start, start / SEARCH_SPAN, start * SEARCH_SPAN)
@@ -298,7 +336,7 @@ def find_oscillation(
     return LoopFigures(*merged)
 
 
-def without_pinned(ss: SmallSignal) -> SmallSignal:
+def without_pinned(ss: SmallSignal, batch_last: bool = False) -> SmallSignal:
     """``ss`` without the unknowns an ideal supply pins, for every member at once.
 
     A supply's row reads v_p = 0 (it is an AC ground) and its branch current
@@ -306,7 +344,9 @@ def without_pinned(ss: SmallSignal) -> SmallSignal:
     pair and node p's leaves the other unknowns, T(s), dT/ds and the load the
     controlled source drives (u·x, x_p = 0) exactly as they were, with
     smaller matrices to factorise.  The result's layout is that of ``ss``
-    (its indices no longer address the matrices: loop figures only).
+    (its indices no longer address the matrices: loop figures only).  With
+    ``batch_last`` (one batch axis) the matrices are also held laid out
+    (n, n, B) for the elimination across the batch.
     """
     G, C = ss.G, ss.C
     n = G.shape[-1]
@@ -329,9 +369,13 @@ def without_pinned(ss: SmallSignal) -> SmallSignal:
             and not np.any(C[..., :, k])
         ):
             drop += [k, p]
+    keep = np.setdiff1d(np.arange(n), drop)
+    if batch_last:
+        Gt = np.moveaxis(G, 0, -1)[keep[:, None], keep]
+        Ct = np.moveaxis(C, 0, -1)[keep[:, None], keep]
+        return _batch_last(ss, Gt, Ct, u=ss.u[keep], w=ss.w[keep])
     if not drop:
         return ss
-    keep = np.setdiff1d(np.arange(n), drop)
     return dataclasses.replace(
         ss,
         G=G[..., keep[:, None], keep],

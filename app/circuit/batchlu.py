@@ -22,6 +22,7 @@ again by LAPACK with partial pivoting.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Final
 
 import numpy as np
@@ -36,13 +37,13 @@ BACKWARD_LIMIT: Final = 1e-12
 class BatchLU:
     """The LU factors (unit lower L, upper U, unpivoted) of matrices ``A`` (n, n, …).
 
-    ``A`` is copied; the trailing axes are the batch.  :meth:`solve` solves for
-    right-hand sides of shape (n, …) (or (n,), shared by every member).
+    The trailing axes are the batch; ``A`` is copied unless ``overwrite``.
+    :meth:`solve` solves for right-hand sides of shape (n, …) (or (n,), shared
+    by every member).
     """
 
-    def __init__(self, A: np.ndarray) -> None:
-        self.A = A
-        LU = np.array(A, dtype=np.result_type(A, float), order="C")
+    def __init__(self, A: np.ndarray, overwrite: bool = False) -> None:
+        LU = A if overwrite else np.array(A, dtype=np.result_type(A, float), order="C")
         n = LU.shape[0]
         with np.errstate(divide="ignore", invalid="ignore"):
             for k in range(n - 1):
@@ -56,7 +57,7 @@ class BatchLU:
         LU = self.LU
         n = LU.shape[0]
         x = np.empty(LU.shape[:1] + LU.shape[2:], dtype=np.result_type(LU, b))
-        x[...] = b.reshape(b.shape + (1,) * (x.ndim - b.ndim))
+        x[...] = _trailing(b, x.ndim)
         with np.errstate(divide="ignore", invalid="ignore"):
             for i in range(1, n):
                 x[i] -= (LU[i, :i] * x[:i]).sum(axis=0)
@@ -66,37 +67,50 @@ class BatchLU:
                 x[i] /= LU[i, i]
         return x
 
-    def unreliable(self, x: np.ndarray, b: np.ndarray) -> np.ndarray:
-        """Members (a mask of the batch shape) whose solution ``x`` of A x = b has a
-        backward error above :data:`BACKWARD_LIMIT` (or is not finite)."""
-        A = self.A
-        b = b.reshape(b.shape + (1,) * (x.ndim - b.ndim))
-        r = np.einsum("ij...,j...->i...", A, x) - b
-        size_A = np.abs(A).max(axis=(0, 1))
-        err = np.abs(r).max(axis=0)
-        scale = size_A * np.abs(x).max(axis=0) + np.abs(b).max(axis=0)
-        with np.errstate(invalid="ignore"):
-            return ~(err <= BACKWARD_LIMIT * scale)
+
+def _trailing(b: np.ndarray, ndim: int) -> np.ndarray:
+    """``b`` (n,) or (n, …) with unit batch axes appended up to ``ndim`` axes."""
+    return b.reshape(b.shape + (1,) * (ndim - b.ndim))
 
 
-def solve_batch(A: np.ndarray, b: np.ndarray, more=None) -> tuple[np.ndarray, np.ndarray | None]:
+def matvec(A: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """A·x for every member: ``A`` (n, n, …), ``x`` (n, …)."""
+    return np.einsum("ij...,j...->i...", A, x)
+
+
+def unreliable(r: np.ndarray, size_A: np.ndarray, x: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Members (a mask of the batch shape) whose residual ``r`` = A x − b (n, …) is a
+    backward error above :data:`BACKWARD_LIMIT`, or not finite; ``size_A`` is
+    max |A_ij| of every member (or a bound of it)."""
+    b = _trailing(b, x.ndim)
+    scale = size_A * np.abs(x).max(axis=0) + np.abs(b).max(axis=0)
+    with np.errstate(invalid="ignore"):
+        return ~(np.abs(r).max(axis=0) <= BACKWARD_LIMIT * scale)
+
+
+def pivoted(A: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """x = A⁻¹b by LAPACK with partial pivoting: ``A`` (n, n, m), ``b`` (n, m)."""
+    return np.linalg.solve(np.moveaxis(A, -1, 0), b.T[..., None])[..., 0].T
+
+
+def solve_batch(
+    A: np.ndarray, b: np.ndarray, more: Callable[[np.ndarray], np.ndarray] | None = None
+) -> tuple[np.ndarray, np.ndarray | None]:
     """x = A⁻¹b for matrices ``A`` (n, n, …), ``b`` (n,) or (n, …); and, if given,
     ``more(x)`` → c (n, …), also y = A⁻¹c with the same factors.
 
     Members the unpivoted elimination cannot solve to :data:`BACKWARD_LIMIT`
-    are solved by ``numpy.linalg.solve`` (LAPACK, partial pivoting) instead.
+    are solved by LAPACK with partial pivoting instead (:func:`pivoted`).
     """
     lu = BatchLU(A)
     x = lu.solve(b)
-    bad = lu.unreliable(x, b)
+    bad = unreliable(matvec(A, x) - _trailing(b, x.ndim), np.abs(A).max(axis=(0, 1)), x, b)
     if bad.any():
-        Ab = np.moveaxis(A[..., bad], -1, 0)  # (m, n, n)
-        bb = np.broadcast_to(b.reshape(b.shape + (1,) * (x.ndim - b.ndim)), x.shape)
-        x[:, bad] = np.linalg.solve(Ab, bb[:, bad].T[..., None])[..., 0].T
+        x[:, bad] = pivoted(A[..., bad], np.broadcast_to(_trailing(b, x.ndim), x.shape)[:, bad])
     if more is None:
         return x, None
     c = more(x)
     y = lu.solve(c)
     if bad.any():
-        y[:, bad] = np.linalg.solve(Ab, c[:, bad].T[..., None])[..., 0].T
+        y[:, bad] = pivoted(A[..., bad], c[:, bad])
     return x, y
