@@ -323,7 +323,8 @@ def _figures(
     fl = floquet.classify(monodromy, w * orbit.flow, floating.shape[1])
     v_be, v_ce = X @ dyn.W[:, 0], X @ dyn.W[:, 1]
     out = X[:, lay.node[T1]]
-    spec_out = orbit.fourier(out, HARMONICS)
+    spectra = orbit.fourier(np.column_stack((out, v_be, v_ce)), HARMONICS)
+    spec_out = spectra[:, 0]
     fund = abs(spec_out[1])
     levels = np.abs(spec_out[2:])
     harmonics = [20.0 * math.log10(h / fund) if h > 0 else None for h in levels]
@@ -331,7 +332,7 @@ def _figures(
     dev = system.devices[0]
     IC_avg = float(orbit.mean(orbit.phi[:, 0]))
     VE_avg = float(orbit.mean(X[:, lay.node[dev.e]]))
-    parts = _parts(solved, system, orbit)
+    parts, VCE_min = _parts(solved, system, orbit)
     P_tank = next(p.P for p in parts if p.part == "L")
     P_load = next((p.P for p in parts if p.part == "R_load"), 0.0)
     P_in = _input_power(solved, system, dyn, orbit)
@@ -348,14 +349,14 @@ def _figures(
         orbit=orbit,
         f=orbit.f,
         amp_out=float(fund),
-        amp_be=float(abs(orbit.fourier(v_be, 1)[1])),
-        amp_ce=float(abs(orbit.fourier(v_ce, 1)[1])),
+        amp_be=float(abs(spectra[1, 1])),
+        amp_ce=float(abs(spectra[1, 2])),
         thd=thd,
         harmonics_dBc=harmonics,
         IC_avg=IC_avg,
         VE_avg=VE_avg,
         VE_shift=VE_avg - solved.op.VE,
-        VCE_min=-float(band_limited_max(-v_ce)),
+        VCE_min=VCE_min,
         P_tank=P_tank,
         P_load=P_load,
         P_in=P_in,
@@ -372,8 +373,9 @@ def _across(lay, X: np.ndarray, a: str, b: str) -> np.ndarray:
     return lay.v(X, a) - lay.v(X, b)
 
 
-def _parts(solved: Solved, system: LinearSystem, orbit: Orbit) -> list[PartPower]:
-    """Every R, C and L, and the transistor: RMS signal current, peak voltage, dissipation."""
+def _parts(solved: Solved, system: LinearSystem, orbit: Orbit) -> tuple[list[PartPower], float]:
+    """Every R, C and L, and the transistor: RMS signal current, peak voltage,
+    dissipation; and the lowest V_CE (from the same band-limited extremes)."""
     lay = system.layout
     X = orbit.x
     rows: list[tuple[str, float, float]] = []  # (part, I_rms, P)
@@ -411,10 +413,11 @@ def _parts(solved: Solved, system: LinearSystem, orbit: Orbit) -> list[PartPower
     # largest |v| of every part at once: the band-limited maxima of v and −v
     both = band_limited_max(np.concatenate((V, -V)))
     peaks = np.maximum(both[: len(V)], both[len(V) :])
-    return [
+    parts = [
         PartPower(name, I_rms, float(pk), P)
         for (name, I_rms, P), pk in zip(rows, peaks, strict=True)
     ]
+    return parts, -float(both[-1])  # the last row: −v_CE
 
 
 #: The band-limited interpolant is evaluated on a grid this many times finer

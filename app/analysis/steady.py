@@ -161,13 +161,13 @@ class Orbit:
         """Complex peak amplitudes c_0 … c_harmonics of samples on the grid.
 
         c_k = (2/T)∫v(t)e^{−jkωt}dt (c_0 the mean), by the trapezoidal rule
-        on the grid: second-order accurate, like the orbit itself.
+        on the grid: second-order accurate, like the orbit itself.  ``values``
+        (N+1,) gives (harmonics+1,); (N+1, m), m signals at once, (harmonics+1, m).
         """
         tau = np.concatenate(([0.0], np.cumsum(self.dtau)))
         k = np.arange(harmonics + 1)
         kernel = np.exp(-2j * np.pi * np.outer(tau, k))  # (N+1, H+1)
-        prod = values[:, None] * kernel
-        c = self.mean(prod)
+        c = (self._mean_weights[:, None] * kernel).T @ values
         c[1:] *= 2.0
         return c
 
@@ -197,11 +197,13 @@ def steps_needed(signals: np.ndarray, N: int) -> int:
     the time-h map of one autonomous (modified) flow, so the trivial
     multiplier stays 1 to round-off.
     """
-    worst = 0.0
-    for u in signals[:-1].T:
-        span = float(u.max() - u.min()) or 1.0
-        d3 = np.abs(np.roll(u, -2) - 3.0 * np.roll(u, -1) + 3.0 * u - np.roll(u, 1)) / 12.0
-        worst = max(worst, float(d3.max()) / span)
+    u = signals[:-1]
+    span = u.max(axis=0) - u.min(axis=0)
+    span[span == 0.0] = 1.0
+    d3 = np.abs(
+        np.roll(u, -2, axis=0) - 3.0 * np.roll(u, -1, axis=0) + 3.0 * u - np.roll(u, 1, axis=0)
+    )
+    worst = float(np.max(d3.max(axis=0) / 12.0 / span))
     if worst <= GRID_TOL:
         return N
     k = min(MAX_LEVEL, math.ceil(math.log(worst / GRID_TOL) / math.log(8.0)))
@@ -434,8 +436,10 @@ def _corrected(X: np.ndarray, S: np.ndarray, g: np.ndarray, dx: np.ndarray, rel_
     """The states moved by the linearised response to (δx_0, δT/T)."""
     dX = np.empty_like(X)
     dX[0] = dx
+    dX[1:] = g * rel_dT
+    dot = np.dot
     for k in range(len(S)):
-        dX[k + 1] = S[k] @ dX[k] + g[k] * rel_dT
+        dX[k + 1] += dot(S[k], dX[k])
     return X + dX
 
 
