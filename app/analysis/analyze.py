@@ -122,7 +122,7 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     output = load_output(s, ss, near)
     crystal = crystal_figures(s, ss, poles)
     findings += crystal_checks(crystal)
-    tuned = tuning(design, large_signal)
+    tuned = tuning(design, large_signal, start=s)
     findings += tuning_checks(tuned)
     story = gain_story(hand, s, budget, setter) if gain is not None else None
     return Result(

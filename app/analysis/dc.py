@@ -186,28 +186,30 @@ def _fraction_one(v_old: float, step: float, VT: float, v_crit: float) -> float:
     return max((v_lim - v_old) / step, MIN_DAMPING)
 
 
-def _newton_one(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, i: int = 0) -> bool:
-    """:func:`_newton` for member ``i`` alone, in float arithmetic: the same iterates
-    without array overhead (the pipeline's one scalar fast path, for small batches)."""
-    IS, beta, beta_R, VA, VT = (
-        float(p) if np.ndim(p) == 0 else float(p[i])
-        for p in (params.IS, params.beta, params.beta_R, params.VA, params.VT)
-    )
+def _newton_floats(
+    device: tuple[float, ...], M: list[list[float]], a: tuple[float, float], v: list[float]
+) -> tuple[bool, tuple[float, float]] | None:
+    """:func:`_newton` for one member in float arithmetic, from ``v`` = [v_BE, v_CE]:
+    the same iterates without array overhead (the pipeline's one scalar fast path, for
+    small batches).  Returns whether it converged and the last finite iterate
+    (``None`` when the first step already fails)."""
+    IS, beta, beta_R, VA, VT = device
     v_crit = VT * math.log(VT / (SQRT2 * IS))
-    (m00, m01), (m10, m11) = red.M[i].tolist()
-    a0, a1 = (scale * red.a[i]).tolist()
-    vbe, vce = v[i].tolist()
+    (m00, m01), (m10, m11) = M
+    a0, a1 = a
+    vbe, vce = v
+    last = None
     for _ in range(MAX_NEWTON):
         try:
             q = junction_currents(vbe, vce, IS, beta, beta_R, VA, VT)
         except OverflowError:
-            return False
+            return None if last is None else (False, last)
         try:
             d_be, d_ce, det = _newton_step(vbe, vce, q, m00, m01, m10, m11, a0, a1)
         except ZeroDivisionError:
-            return False
+            return None if last is None else (False, last)
         if not math.isfinite(det):
-            return False
+            return None if last is None else (False, last)
         alpha = min(
             _fraction_one(vbe, d_be, VT, v_crit),
             _fraction_one(vbe - vce, d_be - d_ce, VT, v_crit),
@@ -215,26 +217,38 @@ def _newton_one(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, i:
         vbe += alpha * d_be
         vce += alpha * d_ce
         if not (math.isfinite(vbe) and math.isfinite(vce)):
-            return False
-        v[i, 0], v[i, 1] = vbe, vce
+            return None if last is None else (False, last)
+        last = (vbe, vce)
         if (
             alpha == 1.0
             and abs(d_be) <= STEP_TOL + REL_TOL * abs(vbe)
             and abs(d_ce) <= STEP_TOL + REL_TOL * abs(vce)
         ):
-            return True
-    return False
+            return True, last
+    return False, last
 
 
 def _solve_controls(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, todo):
     """Newton for the members in ``todo``: float arithmetic, member by member, for a
     batch of at most :data:`SCALAR_BATCH`."""
-    if len(v) <= SCALAR_BATCH:
-        return np.array(
-            [bool(todo[i]) and _newton_one(red, params, v, scale, i) for i in range(len(v))],
-            dtype=bool,
-        )
-    return _newton(red, params, v, scale, todo)
+    B = len(v)
+    if B > SCALAR_BATCH:
+        return _newton(red, params, v, scale, todo)
+    # every member's numbers as Python floats at once (not element by element)
+    fields = (params.IS, params.beta, params.beta_R, params.VA, params.VT)
+    columns = [[float(p)] * B if np.ndim(p) == 0 else np.asarray(p, float).tolist() for p in fields]
+    Ms = red.M.tolist()
+    As = (scale * red.a).tolist()
+    starts = v.tolist()
+    ok = np.zeros(B, dtype=bool)
+    for i in range(B):
+        if not todo[i]:
+            continue
+        device = tuple(c[i] for c in columns)
+        found = _newton_floats(device, Ms[i], (As[i][0], As[i][1]), starts[i])
+        if found is not None:
+            ok[i], (v[i, 0], v[i, 1]) = found
+    return ok
 
 
 def initial_controls(red: Reduced, params: NPNParams) -> np.ndarray:

@@ -225,7 +225,7 @@ def refine_crossing(
     members still moving.
     """
     shape = np.shape(f0)
-    f = np.array(f0, dtype=float, copy=True).reshape(-1)
+    f = np.array(f0, dtype=float).reshape(-1)
     f_lo = np.broadcast_to(np.asarray(f_lo, dtype=float), shape).reshape(-1)
     f_hi = np.broadcast_to(np.asarray(f_hi, dtype=float), shape).reshape(-1)
     B, n = f.size, ss.u.size
@@ -233,37 +233,42 @@ def refine_crossing(
     out_T = np.full(B, np.nan + 0j)
     out_dT = np.full(B, np.nan + 0j)
     out_x = np.full((B, n), np.nan + 0j)
-    idx = np.arange(B)
+    idx = None  # the members still moving (None: all of them)
     sub = ss
-    prev_step = np.full(B, np.inf)
+    prev_step = np.inf
     with np.errstate(divide="ignore", invalid="ignore"):
         for _ in range(NEWTON_STEPS):
-            T, dT_ds, x = return_ratio_slope(sub, TWO_PI * 1j * f)
+            T, dT_ds, x = return_ratio_slope(sub, (TWO_PI * 1j) * f)
             ratio = dT_ds / T
-            slope = ratio.real  # dφ/dω = Im(j T′/T) = Re(T′/T), T′ = dT/ds
-            # d(Im 1/T)/dω = Im(−j T′/T²) = −Re(T′/T²)
-            step = (1.0 / T).imag / (ratio / T).real / TWO_PI
+            inv_T = 1.0 / T
+            # dφ/dω = Im(j T′/T) = Re(T′/T), T′ = dT/ds; d(Im 1/T)/dω = −Re(T′/T²)
+            step = inv_T.imag / (ratio * inv_T).real / TWO_PI
             f_new = f + step
             size = np.abs(step)
-            fail = (slope >= 0) | (T.real <= 0) | ~((f_new >= f_lo) & (f_new <= f_hi))
+            ok = (ratio.real < 0) & (T.real > 0) & (f_new >= f_lo) & (f_new <= f_hi)
             # Converged, or stuck at the round-off floor of Im T (steps no longer shrink).
-            conv = ~fail & (
+            conv = ok & (
                 (size <= ACCEPT_RTOL * f) | ((size <= NOISE_RTOL * f) & (size >= 0.5 * prev_step))
             )
+            go = ok & ~conv
             if conv.any():
-                k = idx[conv]
+                k = conv if idx is None else idx[conv]
                 out_f[k] = f_new[conv]
-                out_T[k] = T[conv] + dT_ds[conv] * (TWO_PI * 1j * step[conv])
+                out_T[k] = T[conv] + dT_ds[conv] * ((TWO_PI * 1j) * step[conv])
                 out_dT[k] = dT_ds[conv]
                 out_x[k] = x[conv]
-            go = ~fail & ~conv
-            if not go.any():
+                if not go.any():
+                    break
+            elif not go.any():
                 break
             if not go.all():
-                idx, f_new, f_lo, f_hi, size = idx[go], f_new[go], f_lo[go], f_hi[go], size[go]
+                idx = np.flatnonzero(go) if idx is None else idx[go]
+                f_new, f_lo, f_hi, size = f_new[go], f_lo[go], f_hi[go], size[go]
                 sub = _members(sub, go)
             f, prev_step = f_new, size
     out = _figures_from(ss, out_f, out_T, out_dT, out_x)
+    if len(shape) == 1:
+        return out
     return LoopFigures(*(a.reshape(shape) for a in _astuple(out)))
 
 
@@ -284,22 +289,23 @@ def _figures(ss: SmallSignal, f_osc: np.ndarray) -> LoopFigures:
 def _figures_from(
     ss: SmallSignal, f_osc: np.ndarray, T: np.ndarray, dT_ds: np.ndarray, x: np.ndarray
 ) -> LoopFigures:
-    w = TWO_PI * np.nan_to_num(f_osc, nan=1.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         slope = (dT_ds / T).real  # dφ/dω = Im((dT/dω)/T), dT/dω = j dT/ds
-    nan = ~np.isfinite(f_osc) | ~np.isfinite(slope) | (np.abs(T) == 0)
-
-    def mask(a: np.ndarray) -> np.ndarray:
-        return np.where(nan, np.nan, a)
-
+    gain = np.abs(T)
+    Z_out = np.abs(dot_last(x, ss.u))
+    # NaN where there is no crossing (f_osc or the slope not finite, or T = 0)
+    nan = ~np.isfinite(f_osc + slope) | (gain == 0)
+    if nan.any():
+        slope, gain, Z_out = (np.where(nan, np.nan, a) for a in (slope, gain, Z_out))
+        T, dT_ds = (np.where(nan, np.nan + 0j, a) for a in (T, dT_ds))
     return LoopFigures(
         f_osc=f_osc,
-        T=np.where(nan, np.nan + 0j, T),
-        gain=mask(np.abs(T)),
-        phase_slope=mask(slope),
-        Q_loaded=mask(0.5 * w * np.abs(slope)),
-        Z_out=mask(np.abs(dot_last(x, ss.u))),
-        dT_ds=np.where(nan, np.nan + 0j, dT_ds),
+        T=T,
+        gain=gain,
+        phase_slope=slope,
+        Q_loaded=(0.5 * TWO_PI) * f_osc * np.abs(slope),  # (ω/2)·|dφ/dω|
+        Z_out=Z_out,
+        dT_ds=dT_ds,
     )
 
 

@@ -138,9 +138,11 @@ def stamp_values(
     """
     C_s = _tank_capacitance(values, batch, _value)
     out: dict[tuple[str, str], np.ndarray | float] = {}
+    varactor = None
     for name, fld, _target, _M in patterns.terms:
         if name == VARACTOR:
-            out[(name, fld)] = _varactor_stamp(values, fld, batch)
+            varactor = varactor or _varactor_stamps(values, batch)
+            out[(name, fld)] = varactor[fld]
         elif name == TUNE_SUPPLY:
             out[(name, fld)] = _value(values["V_tune"], batch)
         elif name == VARACTOR_RETURN:
@@ -183,22 +185,31 @@ def _tank_capacitance(values: PartValues, batch: int, as_value) -> np.ndarray | 
     return tank_capacitance(*C, C_b, values.get("varactor_place") or "across-L")
 
 
-def _varactor_stamp(values: PartValues, fld: str, batch: int):
-    """The varactor's stamp values: C(V_tune), R_v·C(V_tune), the row's offset."""
-    args = [values[k] for k in ("C_j0", "phi_j", "m_j", "V_tune")]
-    if all(np.ndim(a) == 0 for a in args):
-        els = [Varactor("", "", "", *(float(a) for a in args))]  # type: ignore[arg-type]
+def _varactor_stamps(values: PartValues, batch: int) -> dict[str, np.ndarray | float]:
+    """The varactor's stamp values by field: C(V_tune) ("C_b"), R_v·C(V_tune) ("RC"),
+    the row's offset ("V0"); floats when every member shares them, else arrays (B,).
+
+    One element holds every member's tuning voltage when the junction law is
+    shared (the junction law takes an array of voltages), else one element
+    per member.
+    """
+    law = [values[k] for k in ("C_j0", "phi_j", "m_j")]
+    V = values["V_tune"]
+    if all(np.ndim(a) == 0 for a in law):
+        el = Varactor("", "", "", *(float(a) for a in law), np.asarray(V, float))  # type: ignore[arg-type]
+        C_b, offset = el.C_bias, el.offset
     else:
-        rows = zip(*np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in args)), strict=True)
+        rows = zip(
+            *np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (*law, V))), strict=True
+        )
         els = [Varactor("", "", "", *(float(a) for a in row)) for row in rows]
-    C_b = np.array([el.C_bias for el in els])
-    if fld == "C_b":
-        got = C_b
-    elif fld == "RC":
-        got = C_b * values["R_v"]
-    else:
-        got = np.array([el.offset for el in els])
-    return _value(got if got.size > 1 else float(got[0]), batch)
+        C_b = np.array([el.C_bias for el in els])
+        offset = np.array([el.offset for el in els])
+    return {
+        "C_b": _value(C_b, batch),
+        "RC": _value(C_b * values["R_v"], batch),
+        "V0": _value(offset, batch),
+    }
 
 
 def _present(values: PartValues, name: str) -> bool:

@@ -30,7 +30,7 @@ import numpy as np
 from ringwise.analysis.checks import Finding
 from ringwise.analysis.criteria import Region
 from ringwise.analysis.criteria import starts as starts_rule
-from ringwise.analysis.operating import solve
+from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import steady_state
 from ringwise.analysis.pipeline import part_values, patterns_of_structure, solve_values
 from ringwise.circuit import varactor as junction_law
@@ -99,21 +99,27 @@ def _num(x) -> float | None:
     return x if np.isfinite(x) else None
 
 
-def tuning_sweep(design: Design):
-    """The small-signal batch over the tuning range: (V, solution); ``None`` without a varactor."""
+def tuning_sweep(design: Design, start: Solved | None = None):
+    """The small-signal batch over the tuning range: (V, solution); ``None`` without a varactor.
+
+    ``start`` (the design solved) warm-starts every member's DC Newton: the
+    tuning voltage hardly moves the transistor's bias.
+    """
     v = design.varactor
     if v is None:
         return None
     V = np.linspace(v.V_min, v.V_max, TUNING_POINTS)
     values = {**part_values(design), "V_tune": V}
-    sol = solve_values(patterns_of_structure(design), values, len(V))
+    x0 = None if start is None else start.op.x
+    sol = solve_values(patterns_of_structure(design), values, len(V), x0)
     return V, sol
 
 
-def tuning(design: Design, large_signal: bool = True) -> Tuning | None:
+def tuning(design: Design, large_signal: bool = True, start: Solved | None = None) -> Tuning | None:
     """The varactor's tuning figures (``None`` without a varactor); ``large_signal``
-    adds the steady state at both ends and the middle."""
-    swept = tuning_sweep(design)
+    adds the steady state at both ends and the middle; ``start`` (the design
+    solved) warm-starts the sweep's DC solves."""
+    swept = tuning_sweep(design, start)
     if swept is None:
         return None
     v = design.varactor

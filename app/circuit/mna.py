@@ -312,11 +312,11 @@ class Incidence:
     def W_CE(self) -> np.ndarray:
         return self.P_C
 
-    @property
+    @functools.cached_property
     def P(self) -> np.ndarray:
         return np.column_stack((self.P_C, self.P_B))
 
-    @property
+    @functools.cached_property
     def W(self) -> np.ndarray:
         return np.column_stack((self.W_BE, self.W_CE))
 
@@ -353,14 +353,29 @@ class DeviceCurrents:
     ``current`` (…, n): i_dev = P_C·I_C + P_B·I_B, A; ``jacobian`` (…, n, n):
     ∂i_dev/∂x, S; ``junction``: the transport model's currents and
     derivatives (arrays with the batch shape); ``vbe``, ``vce``: the
-    controlling voltages, V.
+    controlling voltages, V.  ``current`` and ``jacobian`` are formed when
+    first read (the small-signal pipeline needs only the junction's figures).
     """
 
-    current: np.ndarray
-    jacobian: np.ndarray
+    inc: Incidence
     junction: JunctionState
     vbe: np.ndarray
     vce: np.ndarray
+
+    @functools.cached_property
+    def current(self) -> np.ndarray:
+        q, inc = self.junction, self.inc
+        return q.IC[..., None] * inc.P_C + q.IB[..., None] * inc.P_B
+
+    @functools.cached_property
+    def jacobian(self) -> np.ndarray:
+        q, inc = self.junction, self.inc
+        return (
+            _scaled(q.dIC_dvbe, inc.C_BE)
+            + _scaled(q.dIC_dvce, inc.C_CE)
+            + _scaled(q.dIB_dvbe, inc.B_BE)
+            + _scaled(q.dIB_dvce, inc.B_CE)
+        )
 
 
 def device_currents(inc: Incidence, x: np.ndarray, params: NPNParams) -> DeviceCurrents:
@@ -384,14 +399,7 @@ def device_currents(inc: Incidence, x: np.ndarray, params: NPNParams) -> DeviceC
             vbe, vce, params.IS, params.beta, params.beta_R, params.VA, params.VT,
             exp_and_slope_array,
         )  # fmt: skip
-    current = q.IC[..., None] * inc.P_C + q.IB[..., None] * inc.P_B
-    jacobian = (
-        _scaled(q.dIC_dvbe, inc.C_BE)
-        + _scaled(q.dIC_dvce, inc.C_CE)
-        + _scaled(q.dIB_dvbe, inc.B_BE)
-        + _scaled(q.dIB_dvce, inc.B_CE)
-    )
-    return DeviceCurrents(current, jacobian, q, vbe, vce)
+    return DeviceCurrents(inc, q, vbe, vce)
 
 
 def nonlinear_residual(

@@ -132,11 +132,15 @@ class Varactor:
 
     @property
     def offset(self) -> float:
-        """V_bias − q(V_bias)/C(V_bias), V: the branch row's source term."""
+        """V_bias − q(V_bias)/C(V_bias), V: the branch row's source term.
+
+        ``V_bias`` may be an array (B,) of a batch's members (the pipeline's
+        stamp values): the offsets are then an array too.
+        """
         from ringwise.circuit.varactor import charge
 
         if self.C_j0 == 0.0:
-            return 0.0
+            return 0.0 * self.V_bias  # 0, or zeros of the batch's shape
         return self.V_bias - charge(self.V_bias, self.C_j0, self.phi, self.m) / self.C_bias
 
 
