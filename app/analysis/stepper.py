@@ -274,34 +274,42 @@ class _Stepper:
         Z[0, n : n + k] = self.Wt @ z0
         a = Z[0, n : n + k].tolist()
         flat = list(ph)
-        # the last four controls, newest first: Newton starts from their cubic
-        # extrapolation (three or four times closer than the linear one on
-        # the orbits of the samples, one evaluation of φ fewer a step), then
-        # from the last controls
+        # the last four controls, newest first (v, v1, v2, v3): Newton starts
+        # from their cubic extrapolation (two orders of magnitude closer than
+        # the linear one on the orbits of the samples: fewer evaluations of
+        # φ a step), then from the last controls
         v1 = v2 = v3 = v
         fixes: dict[int, np.ndarray] = {}
         newton, newton3, dot = self._newton, self._newton3, np.dot
+        rows = list(Z)  # the rows as views, made once
+        c0, c1, c2 = n + k + 1, n + k + 2, n + k + 3
         for j in range(count):
-            guess = tuple(
-                4.0 * (p0 + p2) - 6.0 * p1 - p3
-                for p0, p1, p2, p3 in zip(v, v1, v2, v3, strict=True)
-            )
+            row = rows[j]
             if k == 2:
-                found = newton(guess[0], guess[1], *a, *m)
+                found = newton(
+                    4.0 * (v[0] + v2[0]) - 6.0 * v1[0] - v3[0],
+                    4.0 * (v[1] + v2[1]) - 6.0 * v1[1] - v3[1],
+                    *a, *m,
+                )  # fmt: skip
                 if found is None:
                     found = newton(v[0], v[1], *a, *m)
                 if found is not None:
                     v_new, q = (found[0], found[1]), found[2]
-                    Z[j, cur] = q[0], q[1]
+                    row[c0] = q[0]
+                    row[c1] = q[1]
             else:
+                guess = [4.0 * (v[i] + v2[i]) - 6.0 * v1[i] - v3[i] for i in range(3)]
                 found = newton3(*guess, *a, *m)
                 if found is None:
                     found = newton3(*v, *a, *m)
                 if found is not None:
                     v_new, q = found[:3], found[3]
-                    Z[j, cur] = q[0], q[1], q[8]
+                    row[c0] = q[0]
+                    row[c1] = q[1]
+                    row[c2] = q[8]
+            nxt = rows[j + 1]
             if found is not None:
-                dot(ext, Z[j], out=Z[j + 1, : n + k])
+                dot(ext, row, out=nxt[: n + k])
             else:
                 if j in fixes:
                     x_j = fixes[j]
@@ -314,11 +322,11 @@ class _Stepper:
                     return None
                 x_new, v_new, q = stepped
                 fixes[j + 1] = x_new
-                Z[j, cur] = self._currents(q)
+                row[cur] = self._currents(q)
                 z = sm.B @ x_new + sm.c - sm.K @ self._currents(q)
-                Z[j + 1, :n] = z
-                Z[j + 1, n : n + k] = self.Wt @ z
-            a = Z[j + 1, n : n + k].tolist()
+                nxt[:n] = z
+                nxt[n : n + k] = self.Wt @ z
+            a = nxt[n : n + k].tolist()
             flat.extend(q)
             v3, v2, v1, v, ph = v2, v1, v, v_new, q
         X = np.empty((count + 1, n))
