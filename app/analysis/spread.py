@@ -187,16 +187,88 @@ class Batch:
         return self.solution.starts
 
 
+#: Relative change of each drawn part for the slopes of the samples' first
+#: frequency guess: about a tolerance, so that a slope spans the spread rather
+#: than one point (common practice, no source).
+GUESS_STEP: Final = 0.02
+#: The parts whose spread moves the samples' first frequency guess.
+GUESS_PARTS: Final = (*TOLERANCED_PARTS, "beta", "IS")
+
+
 @dataclass(frozen=True)
 class _Prepared:
-    """What every batch of one design shares: the nominal solve and the unit stamps."""
+    r"""What every batch of one design shares: the nominal solve, the unit stamps,
+    and where each sample's Newton starts.
+
+    The DC Newton starts at the nominal design's operating point at the
+    sample's temperature (and tuning voltage); the frequency search at
+    f_ideal·r with r = f_osc/f_ideal (the tank sets f, r is what the loading
+    and the transistor make of it) taken to first order in the parts,
+
+    .. math:: \ln r = \ln r_0(T, V) + \sum_p S_p \ln(p/p_0),
+
+    r₀ of the nominal design at that corner and S_p the slope of ln r against
+    ln p at the design's own corner (one-sided, :data:`GUESS_STEP`).  A start
+    within about 1e-5 of the crossing lets Newton settle on its second
+    solve.  The starts change where the iterations begin, not where they end.
+    """
 
     nominal: Solved
     patterns: Patterns
+    base: dict
+    slopes: dict[str, float]
+    #: (T, V_tune) → (the nominal's DC solution there, ln r₀ there)
+    starts: dict = field(default_factory=dict)
+
+    def start_at(self, keys: list[tuple[float, float | None]]) -> None:
+        """Solve the nominal design at the corners ``keys`` not met yet (one batch)."""
+        todo = list(dict.fromkeys(k for k in keys if k not in self.starts))
+        if not todo:
+            return
+        blocks = [(_at(self.base, T, V), 1) for T, V in todo]
+        sol = _solve_nominal(self, join_values(blocks), len(blocks))
+        ln_r = np.log(sol.loop.f_osc / sol.f_ideal)
+        own = self.starts[_own(self.base)]
+        for i, key in enumerate(todo):
+            ok = sol.converged[i] and np.isfinite(ln_r[i])
+            self.starts[key] = (sol.x[i], float(ln_r[i])) if ok else own
+
+
+def _own(base: dict) -> tuple[float, float | None]:
+    return (base["temperature_C"], base.get("V_tune"))
+
+
+def _at(base: dict, T: float, V: float | None) -> dict:
+    """Part values of the nominal design at temperature T and tuning voltage V."""
+    return {**base, "temperature_C": T, **({} if V is None else {"V_tune": V})}
+
+
+def _solve_nominal(prepared: _Prepared, values: dict, n: int) -> BatchSolution:
+    nominal = prepared.nominal
+    return solve_values(prepared.patterns, values, n, nominal.op.x, nominal.f_osc or None)
 
 
 def _prepare(design: Design) -> _Prepared:
-    return _Prepared(solve(design), patterns_of_structure(design))
+    nominal = solve(design)
+    base = part_values(design)
+    parts = [p for p in GUESS_PARTS if isinstance(base.get(p), float) and base[p] > 0]
+    prepared = _Prepared(nominal, patterns_of_structure(design), base, {})
+    f_ideal = float(f_ideal_of(base, 1)[0])
+    ln_r0 = math.log(nominal.f_osc / f_ideal) if nominal.f_osc else 0.0
+    prepared.starts[_own(base)] = (nominal.op.x, ln_r0)
+    if nominal.f_osc and parts:
+        blocks = [({**base, p: base[p] * (1.0 + GUESS_STEP)}, 1) for p in parts]
+        sol = _solve_nominal(prepared, join_values(blocks), len(blocks))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            S = (np.log(sol.loop.f_osc / sol.f_ideal) - ln_r0) / math.log1p(GUESS_STEP)
+        prepared.slopes.update(
+            {
+                p: float(v)
+                for p, v, ok in zip(parts, S, sol.converged, strict=True)
+                if ok and np.isfinite(v)
+            }
+        )
+    return prepared
 
 
 def analyse_batch(
@@ -215,13 +287,22 @@ def analyse_batch(
 
 def _solve_samples(values: dict, n_samples: int, prepared: _Prepared) -> BatchSolution:
     """The pipeline on samples' part values (temperature included, a float or
-    one per sample), warm-started from the nominal design."""
-    nominal = prepared.nominal
-    f_ideal = f_ideal_of(values, n_samples)
-    # Start each sample's search where the nominal design's crossing sits
-    # relative to its ideal resonance, and its Newton at the nominal DC point.
-    offset = nominal.f_osc / nominal.tank.f_ideal if nominal.f_osc else 1.0
-    return solve_values(prepared.patterns, values, n_samples, nominal.op.x, f_ideal * offset)
+    one per sample), started where :class:`_Prepared` says."""
+    V = values.get("V_tune")
+    corner = np.empty((n_samples, 2))  # each member's (T, V_tune)
+    corner[:, 0] = values["temperature_C"]
+    corner[:, 1] = 0.0 if V is None else V
+    corners, member = np.unique(corner, axis=0, return_inverse=True)
+    member = member.reshape(-1)
+    keys = [(float(T), None if V is None else float(V_c)) for T, V_c in corners]
+    prepared.start_at(keys)
+    x0 = np.stack([prepared.starts[k][0] for k in keys])[member]
+    ln_r = np.array([prepared.starts[k][1] for k in keys])[member]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for part, S in prepared.slopes.items():
+            ln_r = ln_r + S * np.log(values[part] / prepared.base[part])
+    f_guess = f_ideal_of(values, n_samples) * np.exp(ln_r)
+    return solve_values(prepared.patterns, values, n_samples, x0, f_guess)
 
 
 def _band(
@@ -358,6 +439,8 @@ def monte_carlo(
     band_n = min(samples, TEMPERATURE_BAND_SAMPLES)
     lo, hi = design.tolerances.T_min, design.tolerances.T_max
     band_temperatures = np.linspace(lo, hi, TEMPERATURE_STEPS if hi > lo else 1)
+    own_V = None if design.varactor is None else design.varactor.V_tune
+    prepared.start_at([*corners, *((float(T), own_V) for T in band_temperatures)])
     work = samples * len(corners) + band_n * len(band_temperatures)
     done_work = 0
     chunks: list[list[dict[str, np.ndarray]]] = [[] for _ in corners]
@@ -399,7 +482,6 @@ def monte_carlo(
     started = np.stack([b.starts for b in batches])
     margin_ok = (gains > margin) & active
     # the frequency figures at the design's own tuning voltage (every corner without a varactor)
-    own_V = None if design.varactor is None else design.varactor.V_tune
     own = [i for i, (_T, V) in enumerate(corners) if own_V == V]
     freqs = np.stack([batches[i].f_osc for i in own])
     in_window = None

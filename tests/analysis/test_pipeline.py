@@ -3,8 +3,6 @@ and the Monte Carlo yield agrees with the single-design verdict sample by sample
 
 from __future__ import annotations
 
-import dataclasses
-
 import numpy as np
 import pytest
 
@@ -200,14 +198,14 @@ def test_yield_agrees_when_every_sample_needs_source_stepping(monkeypatch) -> No
     # Start the batch's Newton where it cannot go (NaN): every sample is then
     # solved by source stepping, and the yield must still match the verdicts.
     design = _near_threshold({"R": 0.3, "beta_ratio": 6.0})
-    real = spread_module._prepare
+    real = spread_module._Prepared.start_at
 
-    def nan_start(d):
-        prepared = real(d)
-        op = dataclasses.replace(prepared.nominal.op, x=np.full_like(prepared.nominal.op.x, np.nan))
-        return dataclasses.replace(prepared, nominal=dataclasses.replace(prepared.nominal, op=op))
+    def nan_starts(prepared, keys):
+        real(prepared, keys)
+        for key, (x, ln_r) in prepared.starts.items():
+            prepared.starts[key] = (np.full_like(x, np.nan), ln_r)
 
-    monkeypatch.setattr(spread_module, "_prepare", nan_start)
+    monkeypatch.setattr(spread_module._Prepared, "start_at", nan_starts)
     draws = draw(design, 24, seed=5)
     batch = analyse_batch(design, values_at(design, draws, 25.0), 25.0)
     assert batch.solution.stepped.all() and batch.converged.all()
