@@ -55,6 +55,12 @@ LABEL_CACHE: Final = 4096
 MINUS: Final = "\u2212"
 #: Relative tolerance when deciding whether a tick lies inside the range.
 EDGE_RTOL: Final = 1e-9
+#: Every axis here is drawn as chosen: labels level and never hidden.  The ticks are
+#: spaced so their labels fit level, and the margins are set from the labels
+#: (style.fit_margins), so Plotly's own checks, which measure every label in the
+#: page on each redraw (whether to tilt them, whether one runs past the plot's
+#: edge), are skipped: they took a third of a plot's redraw in Chromium.
+DRAWN_AS_CHOSEN: Final = {"tickangle": 0, "ticklabeloverflow": "allow"}
 
 
 def _finite_positive(values: Iterable[float | None]) -> list[float]:
@@ -143,6 +149,7 @@ def log_axis(lo: float, hi: float, unit: str = "", max_labels: int = 6) -> dict[
         "ticktext": _texts(ticks, unit),
         "minor": {"tickmode": "array", "tickvals": minor, "ticklen": 3, "showgrid": False},
         "automargin": True,
+        **DRAWN_AS_CHOSEN,
     }
 
 
@@ -179,6 +186,7 @@ def linear_axis(
         "tickvals": ticks,
         "ticktext": _texts(ticks, unit),
         "automargin": True,
+        **DRAWN_AS_CHOSEN,
     }
 
 
@@ -199,6 +207,7 @@ def phase_axis(lo: float, hi: float, max_labels: int = 7) -> dict[str, Any]:
         "tickvals": ticks,
         "ticktext": [f"{t:.0f}°".replace("-", MINUS) for t in ticks],
         "automargin": True,
+        **DRAWN_AS_CHOSEN,
     }
 
 

@@ -6,6 +6,7 @@ Colours are the sheet's own (drafting paper, ink, a copper accent).
 
 from __future__ import annotations
 
+import math
 from typing import Any, Final
 
 INK: Final = "#1f2a30"
@@ -94,9 +95,10 @@ def fit_margins(figure: dict[str, Any]) -> dict[str, Any]:
         title = TITLE_PX if axis.get("title") else 0
         return longest * CHAR_PX + TICK_PAD_PX + title
 
+    first, last = _x_end_overhang(lay.get("xaxis"))
     lay["margin"] = {
-        "l": round(max(width("yaxis"), EDGE_PX)),
-        "r": round(max(width("yaxis2"), EDGE_PX)),
+        "l": round(max(width("yaxis"), EDGE_PX, first)),
+        "r": round(max(width("yaxis2"), EDGE_PX, last)),
         "t": TOP_PX if lay.get("showlegend", True) else EDGE_PX,
         "b": BOTTOM_PX,
     }
@@ -104,6 +106,30 @@ def fit_margins(figure: dict[str, Any]) -> dict[str, Any]:
         if key in lay:
             lay[key]["automargin"] = False
     return figure
+
+
+#: A horizontal axis's label counts as sitting on the plot's edge within this
+#: fraction of the axis's span from its end.
+AT_EDGE: Final = 0.01
+
+
+def _x_end_overhang(axis: dict[str, Any] | None) -> tuple[float, float]:
+    """How far the horizontal axis's first and last labels reach past the plotting
+    area's left and right edges, px: half a label's width when it sits on the edge
+    (Plotly centres a label on its tick; the axes draw every label, none is hidden)."""
+    if not axis or not axis.get("ticktext") or "range" not in axis:
+        return 0.0, 0.0
+    lo, hi = axis["range"]
+    ticks = axis["tickvals"]
+    if axis.get("type") == "log":
+        ticks = [math.log10(t) for t in ticks]
+    span = (hi - lo) or 1.0
+
+    def half(i: int, end: float) -> float:
+        at_edge = abs(ticks[i] - end) <= AT_EDGE * abs(span)
+        return len(axis["ticktext"][i]) * CHAR_PX / 2 + TICK_PAD_PX / 2 if at_edge else 0.0
+
+    return half(0, lo), half(-1, hi)
 
 
 def wrap(text: str, width: int = WRAP_CHARS) -> str:
