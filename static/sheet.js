@@ -205,8 +205,8 @@ function commit() {
   // Enter fires both submit and change: the same texts are not sent twice
   if (state.sent === query(formTexts())) return;
   state.inputAt = performance.now();
+  recompute(); // sends the request before the links are rewritten (they are not waited for)
   updateLinks();
-  recompute();
 }
 
 // One sheet request at a time.  The server finishes a request whether or not the
@@ -494,9 +494,10 @@ function plotWhenSeen(sel, data, draw) {
 }
 const observed = new Set();
 
-// Plots due for drawing are drawn one per task (each Plotly.react is its own
-// task), so the page answers input between them, and not while a slider moves;
-// plotsDrawn() resolves when none is left.
+// Plots due for drawing are drawn one per task: the first in the task that made it
+// due (an answer is drawn as it is shown, with no wait for the next task), the others
+// each in a task of its own, so the page answers input between them; none while a
+// slider moves.  plotsDrawn() resolves when none is left.
 const queue = { ids: [], running: false, waiting: [], holdUntil: 0 };
 
 function flushPlot(id) {
@@ -504,7 +505,7 @@ function flushPlot(id) {
   queue.ids.push(id);
   if (!queue.running) {
     queue.running = true;
-    setTimeout(drawNext, 0);
+    drawNext();
   }
 }
 
