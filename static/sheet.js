@@ -235,7 +235,7 @@ async function recompute() {
   $(SEL.outcome).dataset.state = "busy";
   let view;
   try {
-    view = await post(API.sheet, { fields: texts, sweep_param: $(SEL.sweepParam).value || null }, state.main.signal);
+    view = await post(API.sheet, { fields: texts, sweep_param: $(SEL.sweepParam).value || null, figures: plotsOnScreen() }, state.main.signal);
   } catch (err) {
     state.sent = null; // not answered: the same texts may be sent again
     if (err.name !== "AbortError" && !state.again) status(`Not computed: ${err.message}`);
@@ -373,6 +373,8 @@ function render(view) {
   renderSweepOptions(view);
   setText($(SEL.handFormula), view.budget_caption);
   for (const [name, figure] of Object.entries(view.figures)) plotFigure(name, figure);
+  // a plot off screen when the edit was sent: its figure comes with the steady state
+  for (const name of config.figures) if (!(name in view.figures)) markStale(SEL.plots[name]);
 }
 
 function cell(tag, text, field) {
@@ -483,6 +485,7 @@ function plotWhenSeen(sel, data, draw) {
   const key = JSON.stringify(data);
   if (lazy.drawn.get(el.id) === key) {
     lazy.pending.delete(el.id);
+    delete el.dataset.stale;
     return;
   }
   lazy.pending.set(el.id, { key, draw: () => draw(el) });
@@ -521,6 +524,7 @@ function drawNext() {
     lazy.pending.delete(id);
     job.draw();
     lazy.drawn.set(id, job.key);
+    delete document.getElementById(id).dataset.stale;
   }
   if (queue.ids.length) {
     setTimeout(drawNext, 0);
@@ -528,6 +532,20 @@ function drawNext() {
   }
   queue.running = false;
   for (const resolve of queue.waiting.splice(0)) resolve();
+}
+
+// The sheet's plots on screen (or near it), by name: the first answer to an edit
+// carries only their figures (less to build, send and read); the others, off screen,
+// are marked stale until the steady state's answer, which carries every figure.
+function plotsOnScreen() {
+  return config.figures.filter((name) => lazy.seen.has($(SEL.plots[name]).id));
+}
+
+// Until its figure comes, a plot keeps what it shows, dimmed, and nothing older is drawn.
+function markStale(sel) {
+  const el = $(sel);
+  lazy.pending.delete(el.id);
+  el.dataset.stale = "";
 }
 
 function plotsDrawn() {

@@ -23,6 +23,7 @@ sheet a ``<div class="plot" data-figure="name">``.
 
 from __future__ import annotations
 
+from collections.abc import Collection
 from typing import TYPE_CHECKING, Any, Final
 
 from ringwise.figures import curves
@@ -44,10 +45,14 @@ if TYPE_CHECKING:  # plotly is imported only when a Figure object is asked for
 
 #: The figures of every answer of the sheet, by name (the sheet's ``data-figure``).
 DESIGN_FIGURES: Final = ("loop", "reactance", "budget", "noise")
+#: Every figure a sheet's answer may carry: those, and the tuning curve of a
+#: varactor-tuned design (the what-if sweep comes on a request of its own).
+SHEET_FIGURES: Final = (*DESIGN_FIGURES, "tuning")
 
 __all__ = [
     "CONFIG",
     "DESIGN_FIGURES",
+    "SHEET_FIGURES",
     "design_curves",
     "design_figures",
     "design_specs",
@@ -94,9 +99,12 @@ SPECS: Final = {
 }
 
 
-def design_specs(data: dict[str, dict[str, Any]]) -> dict[str, dict[str, Any]]:
-    """The figure dicts of the design's plot data (:func:`design_curves`)."""
-    return {name: SPECS[name](d) for name, d in data.items()}
+def design_specs(
+    data: dict[str, dict[str, Any]], names: Collection[str] | None = None
+) -> dict[str, dict[str, Any]]:
+    """The figure dicts of the design's plot data (:func:`design_curves`); only
+    those of ``names`` when given."""
+    return {name: SPECS[name](d) for name, d in data.items() if names is None or name in names}
 
 
 def design_figures(design: Design, sweep_param: str | None = None) -> dict[str, go.Figure]:

@@ -9,6 +9,7 @@ from pydantic_core import PydanticCustomError
 
 from ringwise.analysis.threshold import MAX_SWEEP_POINTS
 from ringwise.design import Design
+from ringwise.figures import SHEET_FIGURES
 from ringwise.result import Result
 
 #: Points of a sweep when the request does not say.
@@ -80,6 +81,24 @@ class SheetRequest(_In):
         description="Form texts by field name, as typed (L, C1, RB2, topology, name, ...)"
     )
     sweep_param: str | None = Field(None, description="Part of the what-if plot")
+    figures: list[str] | None = Field(
+        None,
+        max_length=len(SHEET_FIGURES),
+        description="The plots to answer with, by name: "
+        f"{', '.join(SHEET_FIGURES)} (default: every one the design has)",
+    )
+
+    @field_validator("figures")
+    @classmethod
+    def _known_figures(cls, names: list[str] | None) -> list[str] | None:
+        unknown = [n for n in names or () if n not in SHEET_FIGURES]
+        if unknown:
+            raise PydanticCustomError(
+                "value_error",
+                "unknown plot {unknown}; known: {known}",
+                {"unknown": ", ".join(map(repr, unknown)), "known": ", ".join(SHEET_FIGURES)},
+            )
+        return names
 
 
 class SheetSweepRequest(_In):
@@ -159,7 +178,8 @@ class SheetView(BaseModel):
     part_rows: list[dict[str, Any]]
     figures: dict[str, dict[str, Any]] | None = Field(
         description="The sheet's plots as Plotly figures ({data, layout}) by name "
-        "(ringwise.figures): loop, reactance, budget, noise; sweep on a page"
+        "(ringwise.figures): loop, reactance, budget, noise, tuning (those the "
+        "request named); sweep on a page"
     )
     budget_caption: str = Field(description="The hand formula with its numbers, and the gap")
     unused: list[str]

@@ -10,7 +10,7 @@ from fastapi.templating import Jinja2Templates
 
 from ringwise.analysis.stability import RATING_FRACTION, REPORT_OFFSETS
 from ringwise.analysis.transient import HARMONICS, MAX_CYCLES, MIN_CYCLES
-from ringwise.figures import CONFIG
+from ringwise.figures import CONFIG, SHEET_FIGURES
 from ringwise.web.assets import plotly_js, static_url
 from ringwise.web.fields import FIELDS, GROUPS, choices, display, preset_texts
 from ringwise.web.ladders import SPANS, ladder
@@ -94,6 +94,7 @@ def _static_context() -> dict[str, Any]:
             "idle": idle_by_form(),
             "ladders": {name: ladder(name)[1] for name in SPANS},
             "plot": CONFIG,
+            "figures": SHEET_FIGURES,
         },
     }
 

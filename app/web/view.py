@@ -9,7 +9,7 @@ JSON twins return it as JSON.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from typing import Any, get_args
 from urllib.parse import urlencode
 
@@ -238,12 +238,15 @@ def build_view(
     with_sweep: bool = True,
     with_steady: bool = True,
     with_curves: bool = False,
+    figures: Collection[str] | None = None,
 ) -> dict[str, Any]:
     """Everything a page shows for these form texts (JSON-ready).
 
     ``with_sweep=False`` leaves out the what-if sweep and ``with_steady=False``
     the periodic steady state (the slowest parts), which the live sheet
     fetches separately so the small-signal verdict never waits for them.
+    ``figures`` names the plots to send (default: all): the live sheet's first
+    answer to an edit carries only the plots on screen.
     """
     states = check_fields(texts)
     fields = {name: vars(state).copy() for name, state in states.items()}
@@ -321,7 +324,7 @@ def build_view(
         unused=design.unused_parts() + _idle_parts(design),
         sweep_options=options,
         sweep_param=param,
-        figures=design_specs(plot_data),
+        figures=design_specs(plot_data, figures),
         budget_caption=plot_data["budget"]["caption"],
     )
     return view

@@ -154,6 +154,33 @@ def test_sheet_valid_and_invalid(client, sample):
     assert bad["problems"][0]["field"] == "tank.C2"
 
 
+def test_sheet_answers_with_the_plots_asked_for(client, sample):
+    # the live sheet asks only for the plots on screen; the steady answer for all
+    texts = client.post("/api/import", json=sample).json()["fields"]
+    full = client.post("/api/sheet", json={"fields": texts}).json()
+    some = client.post("/api/sheet", json={"fields": texts, "figures": ["loop", "noise"]}).json()
+    assert set(some["figures"]) == {"loop", "noise"}
+    assert some["figures"] == {k: full["figures"][k] for k in ("loop", "noise")}
+    assert {k: v for k, v in some.items() if k != "figures"} == {
+        k: v for k, v in full.items() if k != "figures"
+    }
+    none = client.post("/api/sheet", json={"fields": texts, "figures": []}).json()
+    assert none["ok"] is True and none["figures"] == {}
+    steady = client.post("/api/sheet/steady", json={"fields": texts, "figures": ["budget"]})
+    assert set(steady.json()["figures"]) == {"budget"}
+
+
+def test_sheet_unknown_plot_is_422(client, sample):
+    texts = client.post("/api/import", json=sample).json()["fields"]
+    r = client.post("/api/sheet", json={"fields": texts, "figures": ["loop", "sweep"]})
+    assert r.status_code == 422
+    [problem] = r.json()["problems"]
+    assert problem["field"] == "figures"
+    assert problem["message"] == (
+        "unknown plot 'sweep'; known: loop, reactance, budget, noise, tuning"
+    )
+
+
 def test_sheet_unknown_field_is_422(client):
     r = client.post("/api/sheet", json={"fields": {"Lx": "1"}})
     assert r.status_code == 422

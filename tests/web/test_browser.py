@@ -186,6 +186,37 @@ def settle_steady(sheet: Sheet, client) -> None:
     )
 
 
+def test_plots_off_screen_come_with_the_steady_state(context, live_server, client):
+    # an edit's first answer carries only the plots on screen; one off screen keeps
+    # what it showed, dimmed, until the steady answer's figure is drawn on sight
+    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet.page.wait_for_selector("#plot-sweep .main-svg")
+    asked: list[dict] = []
+    sheet.page.on(
+        "request", lambda r: r.url.endswith("/api/sheet") and asked.append(r.post_data_json)
+    )
+    sheet.page.fill("[name='C2']", "3n3")
+    sheet.page.press("[name='C2']", "Enter")
+    settle_steady(sheet, client)
+    assert [a["figures"] for a in asked] == [["loop"]]  # 1440 × 1000: the budget is below
+    assert sheet.page.get_attribute("#plot-loop", "data-stale") is None
+    assert sheet.page.get_attribute("#plot-reactance", "data-stale") == ""
+    want = expected_steady(client, sheet.inputs())["figures"]
+    assert (
+        sheet.page.eval_on_selector("#plot-loop", "el => el.data[0].y")
+        == (want["loop"]["data"][0]["y"])
+    )
+    sheet.page.locator("#plot-reactance").scroll_into_view_if_needed()
+    sheet.page.wait_for_function(
+        "() => !('stale' in document.querySelector('#plot-reactance').dataset)"
+    )
+    assert (
+        sheet.page.eval_on_selector("#plot-reactance", "el => el.data[0].y")
+        == (want["reactance"]["data"][0]["y"])
+    )
+    assert sheet.errors == []
+
+
 def test_copied_link_restores_the_design(context, live_server, client):
     context.grant_permissions(["clipboard-read", "clipboard-write"], origin=live_server)
     sheet = Sheet(context, f"{live_server}/?design=common-base-carrier-10M")

@@ -117,14 +117,21 @@ def get_design(name: str) -> dict[str, Any]:
 
 @router.post("/sheet", response_model=SheetView, responses=ERRORS)
 def post_sheet(req: SheetRequest) -> JSONResponse:
-    """What the sheet shows for these form texts, without the sweep and the steady state.
+    """What the sheet shows for these form texts, without the sweep and the steady state,
+    with the plots ``figures`` names (default: all).
 
     An invalid design is not an error here: the answer lists its problems,
     beside their fields, as the page does.  (The view is plain JSON data
     already, so it is sent as it is, without FastAPI's slower generic encoder;
     its shape is ``SheetView``, which a test checks against real answers.)
     """
-    view = build_view(form_texts(req.fields), req.sweep_param, with_sweep=False, with_steady=False)
+    view = build_view(
+        form_texts(req.fields),
+        req.sweep_param,
+        with_sweep=False,
+        with_steady=False,
+        figures=req.figures,
+    )
     return JSONResponse(view)
 
 
@@ -135,7 +142,10 @@ def post_sheet_steady(req: SheetRequest) -> JSONResponse:
     The same view as ``POST /api/sheet`` with ``result.steady_state`` filled in and
     everything that depends on it (the verdict, phase noise, part stresses).
     """
-    return JSONResponse(build_view(form_texts(req.fields), req.sweep_param, with_sweep=False))
+    view = build_view(
+        form_texts(req.fields), req.sweep_param, with_sweep=False, figures=req.figures
+    )
+    return JSONResponse(view)
 
 
 @router.post("/sheet/sweep", responses=ERRORS)
