@@ -15,7 +15,7 @@ import json
 import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cache, lru_cache
 from typing import Annotated, Any, Final, get_args
 
 from pydantic import BaseModel, TypeAdapter, ValidationError
@@ -301,6 +301,7 @@ _OPTIONAL_SECTIONS: Final = tuple(
 )
 
 
+@cache  # the design's models are fixed: a field's schema entry is looked up once
 def _field_info(field: FormField):
     if field.doc_sub is not None:
         return Tolerances.model_fields[field.doc_sub]

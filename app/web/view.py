@@ -277,8 +277,9 @@ def build_view(
         "topology": texts.get("topology", ""),
         "idle_key": idle_key(texts.get("topology", ""), texts.get("feed", "")),
     }
+    doc = document(texts)
     try:
-        design = Design.model_validate(document(texts))
+        design = Design.model_validate(doc)
     except ValidationError as err:
         for p in describe_validation_error(err):
             name = field_of_problem(p)
@@ -316,7 +317,7 @@ def build_view(
     view.update(
         ok=True,
         result=result,
-        design=document(texts),
+        design=doc,
         shown=shown_figures(result),
         noise_offsets=noise_offsets(result),
         part_rows=part_rows(result, design.ratings.V_cap),
