@@ -13,10 +13,12 @@ as a power law, and every step is one batch of the pipeline
    value / :data:`SEARCH_RANGE` … value · :data:`SEARCH_RANGE`, all full
    solves in one batch, brackets the crossings of ln(gain) = 0;
 2. the chosen bracket is polished by batched interpolation: each round
-   solves the secant (regula falsi) estimate and two points beside it, and
-   keeps the tightest sign change, until |ln gain| ≤ :data:`LOG_GAIN_TOL`
-   (a handful of rounds; the bracket shrinks at least fourfold per round, so
-   a discontinuity is pinned down too).
+   solves an estimate (Newton's step on the parabola through the last three
+   points, else regula falsi) and four points beside it, and keeps the
+   tightest sign change, until |ln gain| ≤ :data:`LOG_GAIN_TOL` or the
+   round's points pin the root down by interpolation (usually one round;
+   the bracket shrinks at least fourfold per round, so a discontinuity is
+   pinned down too).
 
 Which crossing is reported: for parts whose increase raises the loop gain
 (the collector resistor, the coil's Q, the load resistor, β ...) the
@@ -63,7 +65,7 @@ SCAN_FIRST: Final = 12
 #: The first grid covers value / NEAR_RANGE … value · NEAR_RANGE (warm
 #: starts hold there, so it is cheap); the rest of the range only if needed.
 NEAR_RANGE: Final = 10.0
-#: Most polishing rounds (each one batch of three solves); a smooth crossing
+#: Most polishing rounds (each one batch of five solves); a smooth crossing
 #: needs one or two, a discontinuity some twenty.
 POLISH_ROUNDS: Final = 40
 #: Largest reach of the first trend chord, in ln(value) (one decade).
@@ -72,8 +74,12 @@ MAX_STEP: Final = math.log(10.0)
 #: side of the power-law guess; they span about a factor 2 each way.
 GUESS_SPACING: Final = math.log(10.0) / 12.0
 GUESS_HALF: Final = 3
-#: A round's side points sit this many expected errors from the estimate.
+#: A round's outer points sit this many expected errors from the estimate ...
 ERROR_MARGIN: Final = 4.0
+#: ... and its inner points this fraction of that from it: five solves, the
+#: inner three close round the root for the interpolation, the outer two to
+#: bracket it and to check the interpolation (usually no second round).
+INNER_FRACTION: Final = 0.125
 #: A bracket narrower than this (in ln(value)) is as fine as doubles resolve.
 BRACKET_XTOL: Final = 1e-12
 #: A bracketed root whose |ln gain| exceeds this is a discontinuity, not a crossing.
@@ -432,13 +438,15 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
     """Narrow the sign change of ln(gain) in grid interval k to a root, a batch per round.
 
     Returns the root (ln value) and ln(gain) there.  Each round solves an
-    estimate x and x ± h and keeps the tightest sign change among them.  The
-    estimate is Newton's step on the parabola through the last three points
-    (the grid's, then the round's), h a few times its expected error, so a
-    round straddles the root and the next parabola is tight; when that fails
-    (no loop at a point, or a step out of the bracket) the estimate is the
-    bracket's regula falsi or middle, h a quarter of the bracket (it shrinks
-    at least fourfold).
+    estimate x, x ± h/8 and x ± h and keeps the tightest sign change among
+    them.  The estimate is Newton's step on the parabola through the last
+    three points (the grid's, then the round's inner three), h a few times
+    its expected error, so a round straddles the root and the next parabola
+    is tight; when that fails (no loop at a point, or a step out of the
+    bracket) the estimate is the bracket's regula falsi or middle, h a
+    quarter of the bracket (it shrinks at least fourfold).  A round whose
+    points pin the root down by interpolation ends the search
+    (:func:`_interpolated_root`).
     """
     a, ga, b, gb = float(xs[k]), float(gs[k]), float(xs[k + 1]), float(gs[k + 1])
     best_x, best_g = (a, ga) if abs(ga) < abs(gb) else (b, gb)
@@ -458,15 +466,19 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
             x = a - ga * width / (gb - ga) if usable else 0.5 * (a + b)
             h = 0.25 * width
         x = min(max(x, a + h), b - h)
-        trial = np.array([x - h, x, x + h])
+        d = INNER_FRACTION * h
+        trial = np.array([x - h, x - d, x, x + d, x + h])
         gt = trials.log_gain(trial)
-        trials.warm_from(1)
-        last = (trial.tolist(), gt.tolist()) if np.all(np.isfinite(gt)) else None
+        trials.warm_from(2)
+        points = list(zip(trial.tolist(), gt.tolist(), strict=True))
+        inner = points[1:4]
+        last = ([p for p, _g in inner], [g for _p, g in inner])
+        if not all(math.isfinite(g) for g in last[1]):
+            last = None
+        outer = [p for p in (points[0], points[4]) if _usable(p[1])]
         others = seen
-        seen = seen + [
-            (x, g) for x, g in zip(trial.tolist(), gt.tolist(), strict=True) if _usable(g)
-        ]
-        for p, g in zip(trial.tolist(), gt.tolist(), strict=True):
+        seen = seen + [p for p in points if _usable(p[1])]
+        for p, g in points:
             if not math.isfinite(g):
                 continue
             if abs(g) < abs(best_g):
@@ -478,7 +490,7 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
                 break
         if abs(best_g) <= LOG_GAIN_TOL:
             break
-        close = _interpolated_root(last, others, a, b)
+        close = _interpolated_root(last, outer, others, a, b)
         if close is not None:
             return close
     return best_x, best_g
@@ -491,41 +503,64 @@ def _usable(g: float) -> bool:
 
 def _interpolated_root(
     last: tuple[list[float], list[float]] | None,
+    outer: list[tuple[float, float]],
     others: list[tuple[float, float]],
     a: float,
     b: float,
 ) -> tuple[float, float] | None:
-    """The root read off a round's three points without another round, when
+    """The root read off a round's points without another round, when
     interpolation already pins it down.
 
-    The root of the parabola through the round's points is compared with the
-    root of the cubic through them and the nearest earlier point: their
-    difference is the parabola's interpolation error (the cubic's term), and
-    it must be within :data:`INTERPOLATION_SHARE` of :data:`LOG_GAIN_TOL` in
-    ln gain.  A jump among the points (the loop losing its crossing) shows as
-    a large difference, or as a point beyond :data:`INTERPOLATION_REACH`.
+    The root of the parabola through the round's inner three points (``last``)
+    is compared with the root of the cubic through them and the nearer of
+    the round's ``outer`` points, and that with the quartic's through both;
+    failing those, the parabola's with the cubic's through the inner points
+    and the nearest earlier point.  The difference of two successive roots
+    is the lower one's interpolation error (the higher polynomial's extra
+    term), and it must be within :data:`INTERPOLATION_SHARE` of
+    :data:`LOG_GAIN_TOL` in ln gain.  A jump among the points (the loop
+    losing its crossing) shows as a large difference, or as an inner point
+    beyond :data:`INTERPOLATION_REACH`.
 
-    Returns the cubic's root and the error bound in ln gain, or ``None``
-    (another round is needed).
+    Returns the higher polynomial's root and the error bound in ln gain, or
+    ``None`` (another round is needed).
     """
     if last is None or not all(_usable(y) for y in last[1]):
         return None
     xs, ys = last
     if max(abs(y) for y in ys) > INTERPOLATION_REACH:
         return None
+    middle = xs[1]
+    parabola = _polynomial_root(xs, ys, middle)
+    lower = parabola
+    px, py = list(xs), list(ys)
+    for x, y in sorted(outer, key=lambda p: abs(p[0] - middle)):
+        px.append(x)
+        py.append(y)
+        higher = _polynomial_root(px, py, middle)
+        agreed = _agreed(lower, higher, a, b)
+        if agreed is not None:
+            return agreed
+        lower = higher
     near = [p for p in others if p[0] not in xs]
     if not near:
         return None
-    middle = xs[1]
     x4, y4 = min(near, key=lambda p: abs(p[0] - middle))
-    r3 = _polynomial_root(xs, ys, middle)
-    r4 = _polynomial_root([*xs, x4], [*ys, y4], middle)
-    if r3 is None or r4 is None or not a <= r4[0] <= b:
+    return _agreed(parabola, _polynomial_root([*xs, x4], [*ys, y4], middle), a, b)
+
+
+def _agreed(
+    lower: tuple[float, float] | None, higher: tuple[float, float] | None, a: float, b: float
+) -> tuple[float, float] | None:
+    """The higher polynomial's root and the error bound in ln gain when the two
+    roots agree within :data:`INTERPOLATION_SHARE` of :data:`LOG_GAIN_TOL`
+    inside the bracket (a, b), else ``None``."""
+    if lower is None or higher is None or not a <= higher[0] <= b:
         return None
-    bound = abs(r4[0] - r3[0]) * abs(r4[1])
+    bound = abs(higher[0] - lower[0]) * abs(higher[1])
     if bound > INTERPOLATION_SHARE * LOG_GAIN_TOL:
         return None
-    return r4[0], bound
+    return higher[0], bound
 
 
 def _polynomial_root(xs: list[float], ys: list[float], start: float) -> tuple[float, float] | None:

@@ -15,6 +15,7 @@ from ringwise.analysis.threshold import (
     SCAN_PER_DECADE,
     SEARCH_RANGE,
     ParameterError,
+    _interpolated_root,
     _scan_side,
     _Trials,
     find_threshold,
@@ -165,3 +166,33 @@ def test_side_scan_in_parts_equals_the_side_in_one_batch(stem: str, param: str, 
     assert k + offset == full_k
     np.testing.assert_allclose(xs, full_xs[offset : offset + xs.size], rtol=0, atol=1e-12)
     np.testing.assert_allclose(gs, full_gs[offset : offset + xs.size], rtol=1e-9, atol=1e-12)
+
+
+def _round(g, x: float, h: float):
+    """A polishing round's five points round x (inner three, outer two) of g."""
+    inner = [x - h / 8, x, x + h / 8]
+    return (inner, [g(p) for p in inner]), [(x - h, g(x - h)), (x + h, g(x + h))]
+
+
+def test_a_round_that_pins_the_root_ends_the_search() -> None:
+    # ln gain smooth near its root (a log-like curve with its singularity well
+    # away): the quartic through a round's five points gives the root to
+    # far below LOG_GAIN_TOL (exact root by hand: g(r) = 0 at r = e^-1 - 0.5).
+    def g(x: float) -> float:
+        return 1.0 + math.log(x + 0.5)
+
+    root = math.exp(-1.0) - 0.5
+    last, outer = _round(g, root + 3e-4, 4e-3)
+    found = _interpolated_root(last, outer, [], root - 0.1, root + 0.1)
+    assert found is not None
+    assert found[0] == pytest.approx(root, abs=1e-9)
+
+
+def test_a_jump_among_a_rounds_points_asks_for_another_round() -> None:
+    # ln gain jumping between two inner points (the loop losing its crossing):
+    # the cubic and the quartic disagree with the parabola, no root is read off
+    def g(x: float) -> float:
+        return 0.8 * (x - 1e-4) + (0.04 if x > 3e-4 else 0.0)
+
+    last, outer = _round(g, 0.0, 4e-3)
+    assert _interpolated_root(last, outer, [], -0.1, 0.1) is None
