@@ -288,13 +288,17 @@ def analyse_batch(
 def _solve_samples(values: dict, n_samples: int, prepared: _Prepared) -> BatchSolution:
     """The pipeline on samples' part values (temperature included, a float or
     one per sample), started where :class:`_Prepared` says."""
-    V = values.get("V_tune")
-    corner = np.empty((n_samples, 2))  # each member's (T, V_tune)
-    corner[:, 0] = values["temperature_C"]
-    corner[:, 1] = 0.0 if V is None else V
-    corners, member = np.unique(corner, axis=0, return_inverse=True)
-    member = member.reshape(-1)
-    keys = [(float(T), None if V is None else float(V_c)) for T, V_c in corners]
+    T, V = values["temperature_C"], values.get("V_tune")
+    if np.ndim(T) == 0 and np.ndim(V) == 0:  # one corner (the band has several)
+        keys = [(float(T), None if V is None else float(V))]
+        member = np.zeros(n_samples, dtype=int)
+    else:
+        corner = np.empty((n_samples, 2))  # each member's (T, V_tune)
+        corner[:, 0] = T
+        corner[:, 1] = 0.0 if V is None else V
+        corners, member = np.unique(corner, axis=0, return_inverse=True)
+        member = member.reshape(-1)
+        keys = [(float(t), None if V is None else float(v)) for t, v in corners]
     prepared.start_at(keys)
     x0 = np.stack([prepared.starts[k][0] for k in keys])[member]
     ln_r = np.array([prepared.starts[k][1] for k in keys])[member]
