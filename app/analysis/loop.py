@@ -137,8 +137,11 @@ def _loop_solve_batched(
     G, C = G[tail], C[tail]
     shape = np.broadcast_shapes(G.shape[2:], s.shape)
     Y = np.empty((n, n, *shape), dtype=complex)
-    np.multiply(C, s, out=Y)
-    Y += G
+    parts = Y.view(float).reshape(*Y.shape, 2)  # real and imaginary parts, in place
+    np.multiply(C, s.imag, out=parts[..., 1])
+    parts[..., 0] = G
+    if np.any(s.real):
+        parts[..., 0] += C * s.real
     u = ss.u.astype(complex).reshape((n,) + (1,) * len(shape))
     lu = BatchLU(Y, overwrite=True)
     x = lu.solve(u)
@@ -148,10 +151,12 @@ def _loop_solve_batched(
     bad = unreliable(residual, size, x, u)
     dx = -lu.solve(Cx) if slope else None
     if bad.any():
-        Yb = G[..., bad] + s[bad] * C[..., bad]
+        full = (n, n, *shape)
+        Gb, Cb = np.broadcast_to(G, full)[..., bad], np.broadcast_to(C, full)[..., bad]
+        Yb = Gb + np.broadcast_to(s, shape)[bad] * Cb
         x[:, bad] = pivoted(Yb, np.broadcast_to(u, x.shape)[:, bad])
         if dx is not None:
-            dx[:, bad] = -pivoted(Yb, matvec(C[..., bad], x[:, bad]))
+            dx[:, bad] = -pivoted(Yb, matvec(Cb, x[:, bad]))
     return np.moveaxis(x, 0, -1), None if dx is None else np.moveaxis(dx, 0, -1)
 
 

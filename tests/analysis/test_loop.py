@@ -8,8 +8,17 @@ import math
 import numpy as np
 import pytest
 
-from ringwise.analysis.loop import CONDENSE_BATCH, find_oscillation, return_ratio, without_pinned
+from ringwise.analysis.loop import (
+    BATCH_ELIMINATION,
+    CONDENSE_BATCH,
+    TWO_PI,
+    find_oscillation,
+    loop_solve,
+    return_ratio,
+    without_pinned,
+)
 from ringwise.analysis.operating import solve
+from ringwise.circuit import batchlu
 from tests.conftest import BASE_CE, design_from
 
 
@@ -83,3 +92,29 @@ def test_large_batch_without_the_pinned_unknowns_equals_single_solves() -> None:
             assert a == pytest.approx(float(b), rel=1e-9)
         assert figs.Q_loaded[i] == pytest.approx(float(alone.Q_loaded), rel=1e-7)
         assert figs.Z_out[i] == pytest.approx(float(alone.Z_out), rel=1e-9)
+
+
+@pytest.mark.parametrize("limit", [batchlu.BACKWARD_LIMIT, 0.0])
+def test_a_large_batch_equals_lapack_member_by_member(monkeypatch, limit) -> None:
+    # A batch large enough for the elimination across it, against LAPACK
+    # (numpy.linalg, the reference library) on each member; with a backward
+    # error limit of 0 every member goes through the pivoted fallback instead.
+    monkeypatch.setattr(batchlu, "BACKWARD_LIMIT", limit)
+    values = ("1n", "1n5", "2n2", "3n3", "4n7", "100n")
+    solved = [solve(design_from(BASE_CE, tank__C2=c)) for c in values]
+    size = max(BATCH_ELIMINATION, CONDENSE_BATCH)
+    picks = [solved[i % len(solved)] for i in range(size)]
+    ss = without_pinned(_stack([s.ss for s in picks]), batch_last=True)
+    f = np.array([s.tank.f_ideal for s in picks])
+    grid = f[:, None] * np.array([0.9, 1.0, 1.1])
+    for s_arr in (TWO_PI * 1j * f, TWO_PI * 1j * grid):
+        x, dx = loop_solve(ss, s_arr, slope=s_arr.ndim == 1)
+        Y = ss.G.reshape(size, *(1,) * (s_arr.ndim - 1), *ss.G.shape[1:]) + s_arr[
+            ..., None, None
+        ] * ss.C.reshape(size, *(1,) * (s_arr.ndim - 1), *ss.C.shape[1:])
+        ref = np.linalg.solve(Y, np.broadcast_to(ss.u, Y.shape[:-1])[..., None])[..., 0]
+        np.testing.assert_allclose(x, ref, rtol=1e-9, atol=1e-12 * np.abs(ref).max())
+        if dx is not None:
+            Cx = (ss.C @ ref[..., None])[..., 0]
+            dref = -np.linalg.solve(Y, Cx[..., None])[..., 0]
+            np.testing.assert_allclose(dx, dref, rtol=1e-9, atol=1e-12 * np.abs(dref).max())
