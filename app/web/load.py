@@ -29,6 +29,7 @@ from __future__ import annotations
 import argparse
 import asyncio
 import json
+import os
 import socket
 import statistics
 import subprocess
@@ -39,6 +40,7 @@ from dataclasses import dataclass, field
 from typing import Any, Final
 
 from ringwise.units import parse_quantity
+from ringwise.web.light import LIGHT_WORKERS
 from ringwise.web.paths import SAMPLES_DIR
 
 DEFAULT_CLIENTS: Final = 200
@@ -268,6 +270,131 @@ async def _run(
     return stats
 
 
+# ---- memory of the server and its worker processes (Linux's /proc) -----------------
+
+#: How often the memory is sampled during a run, s.
+MEMORY_EVERY_S: Final = 0.25
+#: The longest wait for the light workers to be up before a run, s.
+SETTLE_S: Final = 20.0
+#: When the memory is measured again after a run, s.
+AFTER_S: Final = 2.0
+_PAGE: Final = os.sysconf("SC_PAGE_SIZE") if hasattr(os, "sysconf") else 4096
+_TICKS: Final = os.sysconf("SC_CLK_TCK") if hasattr(os, "sysconf") else 100
+
+
+def _stat(pid: int) -> list[str] | None:
+    """A process's ``/proc/PID/stat`` fields from the third on, or None if it is gone."""
+    try:
+        with open(f"/proc/{pid}/stat", encoding="ascii") as f:
+            text = f.read()
+    except OSError:
+        return None
+    return text[text.rindex(")") + 2 :].split()  # (the name may hold spaces)
+
+
+def _rss(pid: int) -> int:
+    """Resident memory of a process, bytes (0 if it is gone)."""
+    try:
+        with open(f"/proc/{pid}/statm", encoding="ascii") as f:
+            return int(f.read().split()[1]) * _PAGE
+    except (OSError, IndexError, ValueError):
+        return 0
+
+
+def _cpu(pid: int) -> float:
+    """CPU time a process has used, s (0 if it is gone)."""
+    fields = _stat(pid)
+    return (int(fields[11]) + int(fields[12])) / _TICKS if fields else 0.0
+
+
+def workers(server: int) -> list[int] | None:
+    """The worker processes of the server (its fork server's children); None
+    without Linux's /proc."""
+    if not os.path.isdir("/proc/self/task"):
+        return None
+    parents = {}
+    for name in os.listdir("/proc"):
+        if name.isdigit() and (fields := _stat(int(name))) is not None:
+            parents[int(name)] = int(fields[1])
+    children = {pid for pid, ppid in parents.items() if ppid == server}
+    return [pid for pid, ppid in parents.items() if ppid in children]
+
+
+class _Memory:
+    """RSS of the server and its workers, sampled in a thread during a run: before,
+    peak (the largest total, and the largest single process) and after.  The
+    light workers are the ones up before the run (they start warm and stay);
+    every other worker is a heavy one (each ends after its piece of work)."""
+
+    def __init__(self, server: int) -> None:
+        self.server = server
+        self.light = set(workers(server) or ())
+        self.cpu_before = {pid: _cpu(pid) for pid in self.light}
+        self.cpu: dict[str, float] = {}
+        self.before = self._measure()
+        self.peak: dict[str, int] = {}
+        self.after: dict[str, list[int]] | None = None
+        self._done = threading.Event()
+        self._thread = threading.Thread(target=self._sample, daemon=True, name="load-memory")
+
+    def _measure(self) -> dict[str, list[int]] | None:
+        found = workers(self.server)
+        if found is None:
+            return None
+        out: dict[str, list[int]] = {"server": [_rss(self.server)], "heavy": [], "light": []}
+        for pid in found:
+            out["light" if pid in self.light else "heavy"].append(_rss(pid))
+        return out
+
+    def _sample(self) -> None:
+        while not self._done.wait(MEMORY_EVERY_S):
+            for group, values in (self._measure() or {}).items():
+                self.peak[group] = max(self.peak.get(group, 0), sum(values))
+                one = max(values, default=0)
+                self.peak[group + "_one"] = max(self.peak.get(group + "_one", 0), one)
+
+    def __enter__(self) -> _Memory:
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._done.set()
+        self._thread.join()
+        self.cpu["light"] = sum(_cpu(pid) - cpu for pid, cpu in self.cpu_before.items())
+        # every request has its answer by now; a heavy worker ends after its piece
+        # of work (app/web/workers.py): what is held a moment later
+        time.sleep(AFTER_S)
+        self.after = self._measure()
+
+    def figures(self) -> dict[str, Any]:
+        if self.before is None or self.after is None:
+            return {}
+        out: dict[str, Any] = {}
+        for group in ("server", "heavy", "light"):
+            out[group] = {
+                "processes": [len(self.before[group]), len(self.after[group])],
+                "before_mb": _mb(sum(self.before[group])),
+                "peak_mb": _mb(self.peak.get(group, 0)),
+                "peak_one_mb": _mb(self.peak.get(group + "_one", 0)),
+                "after_mb": _mb(sum(self.after[group])),
+            }
+        return out
+
+
+def _mb(n: int) -> float:
+    return round(n / 2**20, 1)
+
+
+def _wait_for_light(server: int) -> None:
+    """Until the server's light workers are up (they start warm, in the background)."""
+    deadline = time.monotonic() + SETTLE_S
+    while time.monotonic() < deadline:
+        found = workers(server)
+        if found is None or len(found) >= LIGHT_WORKERS:
+            return
+        time.sleep(0.2)
+
+
 def run(
     clients: int = DEFAULT_CLIENTS,
     seconds: float = DEFAULT_SECONDS,
@@ -278,6 +405,9 @@ def run(
     """Serve the app on a free loopback port, load it, stop it; the figures as a dict."""
     out: list[Stats] = []
     with _Server() as server:
+        assert server.process is not None
+        _wait_for_light(server.process.pid)
+        load_before = _loadavg()
         # a thread of its own, so it also runs where an event loop is already running
         worker = threading.Thread(
             target=lambda: out.append(
@@ -285,11 +415,26 @@ def run(
             ),
             name="load-clients",
         )
-        worker.start()
-        worker.join()
+        with _Memory(server.process.pid) as sampled:
+            worker.start()
+            worker.join()
     if not out:
         raise RuntimeError("the load run failed (see the traceback above)")
-    return out[0].summary()
+    figures = out[0].summary()
+    figures["memory"] = sampled.figures()
+    answered = figures.get("analyze", {}).get("count", 0)
+    if sampled.cpu and answered:
+        figures["light_cpu_ms"] = round(1000 * sampled.cpu["light"] / answered, 1)
+    figures["load_average"] = [load_before, _loadavg()]
+    return figures
+
+
+def _loadavg() -> float | None:
+    """The machine's 1-minute load average (other work on it shows in the figures)."""
+    try:
+        return round(os.getloadavg()[0], 2)
+    except (OSError, AttributeError):
+        return None
 
 
 def report(
@@ -315,6 +460,20 @@ def report(
         f"p99 {figures['refused_p99_ms']} ms"
     )
     lines.append(f"  errors        {figures['errors']}  {figures['error_kinds'] or ''}".rstrip())
+    for group, m in figures.get("memory", {}).items():
+        before, after = m["processes"]
+        lines.append(
+            f"  RSS {group:<9} before {m['before_mb']} MB ({before}), peak {m['peak_mb']} MB "
+            f"(one process {m['peak_one_mb']} MB), after {m['after_mb']} MB ({after})"
+        )
+    if figures.get("light_cpu_ms"):
+        lines.append(
+            f"  light CPU     {figures['light_cpu_ms']} ms per analyze answered "
+            "(the light workers' CPU time over the run)"
+        )
+    if figures.get("load_average"):
+        start, end = figures["load_average"]
+        lines.append(f"  machine load  {start} at the start, {end} at the end (1-minute average)")
     return "\n".join(lines)
 
 

@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
+import contextlib
 import ipaddress
 import os
 import sys
-from collections.abc import Awaitable, Callable, Iterable
+from collections.abc import AsyncIterator, Awaitable, Callable, Iterable
 from pathlib import PurePosixPath
 from typing import Any, Final
 
@@ -19,13 +20,13 @@ from ringwise.web.assets import IMMUTABLE_MAX_AGE, plotly_js
 from ringwise.web.bodies import BODY_SECONDS, MAX_BODY_BYTES, TOO_LARGE, BodyGuard
 from ringwise.web.fields import texts_from_document
 from ringwise.web.hosts import HostGuard
-from ringwise.web.light import LightLimit
+from ringwise.web.light import Light, LightLimit, light_of
 from ringwise.web.methods import HeadAsGet
 from ringwise.web.paths import STATIC_DIR
 from ringwise.web.routers import api, downloads, jobs, pages, simulate, spread, tools
 from ringwise.web.samples import DEFAULT_SAMPLE, OPENED_DESIGN, samples
 from ringwise.web.schemas import ErrorOut
-from ringwise.web.workers import Work, lifespan
+from ringwise.web.workers import Work, work_of
 
 #: Scripts, styles, fonts and connections only from this server.  Plotly sets
 #: inline styles on the SVG it draws, hence 'unsafe-inline' for styles only.
@@ -127,6 +128,20 @@ def _standard_bounds(node: Any) -> None:
             _standard_bounds(value)
 
 
+@contextlib.asynccontextmanager
+async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+    """The worker processes for the app's life, made at start-up and let go at the
+    end: the heavy work's pool (app/web/workers.py) and the light one (app/web/light.py)."""
+    work, light = work_of(app), light_of(app)
+    work.start("process")
+    light.start("process")
+    try:
+        yield
+    finally:
+        light.shutdown()
+        work.shutdown()
+
+
 def create_app(
     default_design: str = DEFAULT_SAMPLE,
     document: dict[str, Any] | None = None,
@@ -154,12 +169,13 @@ def create_app(
         docs_url=None,
         redoc_url=None,
         generate_unique_id_function=apidocs.operation_id,
-        # the heavy work's process pool lives as long as the app (app/web/workers.py)
+        # the worker processes live as long as the app
         lifespan=lifespan,
     )
     app.state.default_design = default_design
     app.state.opened_texts = opened
     app.state.work = Work()
+    app.state.light = Light()
     app.state.spreads = {}  # the last spread of each recent design, for the summary
     errors.install(app)
     app.include_router(api.router)

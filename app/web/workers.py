@@ -7,8 +7,14 @@ answer (an edit of the sheet) waits behind it.  So the heavy kinds of work
 size, the summary's spread) run in a pool of worker processes
 (:class:`concurrent.futures.ProcessPoolExecutor`), each started by the
 ``forkserver`` method (never ``fork``: the server has threads) with the
-package imported once in the fork server, and running at a lower priority
-(:data:`WORKER_NICE`) so the light answers keep the CPU when they need it.
+package imported once in the fork server, and running under Linux's idle
+scheduling class (``SCHED_IDLE``; elsewhere at :data:`WORKER_NICE`), so heavy
+work only gets the CPU time the light answers leave (app/web/light.py).
+
+Memory: each worker process does one piece of work and ends
+(:data:`TASKS_PER_WORKER`), so what a large spread or run allocated goes
+back to the system when it ends, whatever the allocator keeps; the next
+worker is forked from the fork server, already warm, in about 10 ms.
 
 Admission: each kind has at most :data:`LIMITS` requests outstanding
 (running or waiting for a worker); one more is refused at once with 429
@@ -25,7 +31,7 @@ spread answers with the samples done).  A request whose client goes away
 is stopped the same way (:meth:`Work.run` watches the connection), and a
 job is stopped by ``DELETE /api/jobs/{id}`` (app/web/routers/jobs.py).
 
-The pool is made in the app's lifespan (:func:`lifespan`) and shut down at
+The pool is made in the app's lifespan (app/web/server.py) and shut down at
 its end.  An app used without its lifespan (an in-process test client)
 runs the same work, with the same admission, progress and stop, in
 threads of its own process instead (:data:`INLINE`).
@@ -41,13 +47,14 @@ import os
 import secrets
 import threading
 import time
-from collections.abc import AsyncIterator, Callable
+from collections.abc import Callable
 from concurrent.futures import Executor, Future, ProcessPoolExecutor, ThreadPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
 from functools import partial
 from typing import Any, Final, Literal
 
-from fastapi import FastAPI, Request
+from fastapi import Request
 
 from ringwise.analysis.transient import SimulationCancelledError
 from ringwise.errors import domain_message
@@ -57,14 +64,22 @@ log = logging.getLogger("ringwise.web")
 
 #: Worker processes: one per core, at most four (the work is one core's each).
 WORKERS: Final = max(1, min(4, os.cpu_count() or 1))
-#: Niceness added to the worker processes (POSIX ``nice``): heavy work takes
-#: the CPU the light answers leave (common practice for background work, no source).
-WORKER_NICE: Final = 5
+#: Niceness of the worker processes where the idle scheduling class is not
+#: available (POSIX ``nice``, the lowest priority): heavy work takes the CPU the
+#: light answers leave (common practice for background work, no source).
+WORKER_NICE: Final = 19
+#: Pieces of work a worker process does before it ends and a fresh one is forked
+#: in its place: one, so each heavy request's memory is returned when it ends.  (A
+#: limit above one can stall Python 3.11–3.13's pool, CPython issue gh-115634: one
+#: cannot, as every piece of work is then a worker's last.)
+TASKS_PER_WORKER: Final = 1
 #: How worker processes start: ``forkserver`` forks them from a clean
 #: single-threaded server process that has the package imported already
 #: (``fork`` from the threaded server could copy a held lock; ``spawn``
 #: would import numpy and scipy again for each worker).
 START_METHOD: Final = "forkserver"
+#: How often a worker process checks that its server is still there, s.
+WATCH_S: Final = 1.0
 #: Imported once in the fork server, so a worker starts warm.
 PRELOAD: Final = ("ringwise.web.server",)
 #: Requests of each kind outstanding at most (running or waiting for a worker);
@@ -125,11 +140,52 @@ class StoppedError(Exception):
 _shared: dict[str, Any] = {}
 
 
-def _init(progress: Any, stop: Any, nice: int) -> None:
-    """Worker process start: keep the shared arrays, lower the priority."""
+def _init(progress: Any, stop: Any, nice: int, server: int) -> None:
+    """Worker process start: keep the shared arrays, watch the server, lower the priority."""
     _shared["progress"], _shared["stop"] = progress, stop
-    with contextlib.suppress(OSError, AttributeError):
-        os.nice(nice)
+    watch(server)
+    background(nice)
+
+
+def watch(server: int) -> None:
+    """End this worker process when the server process ``server`` is gone.
+
+    A pool's workers end when the server lets the pool go; a server killed
+    before that (or ended while they still run) would leave them waiting for
+    work forever, each holding its memory (and the fork server with them,
+    whose liveness pipe they hold)."""
+
+    def check() -> None:
+        while True:
+            time.sleep(WATCH_S)
+            try:
+                os.kill(server, 0)
+            except ProcessLookupError:
+                os._exit(0)
+            except OSError:  # there, but not ours to signal
+                pass
+
+    threading.Thread(target=check, daemon=True, name="ringwise-watch").start()
+
+
+def background(nice: int = WORKER_NICE) -> str:
+    """Put every thread of this process in the idle scheduling class (Linux's
+    ``SCHED_IDLE``: it runs only when nothing else wants the CPU), or where that
+    is not available lower its priority by ``nice``; which one it got."""
+    threads = [0]
+    with contextlib.suppress(OSError):  # Linux: a thread's scheduling is its own
+        threads = [int(t) for t in os.listdir("/proc/self/task")]
+    try:
+        for tid in threads:
+            os.sched_setscheduler(tid, os.SCHED_IDLE, os.sched_param(0))
+        return "idle"
+    except (OSError, AttributeError):
+        with contextlib.suppress(OSError, AttributeError):
+            for tid in threads:
+                os.setpriority(
+                    os.PRIO_PROCESS, tid, min(19, os.getpriority(os.PRIO_PROCESS, tid) + nice)
+                )
+        return "nice"
 
 
 def _call(
@@ -162,7 +218,7 @@ def _call(
 # ---- in the server ----------------------------------------------------------------
 
 
-def _fork_server() -> None:
+def fork_server() -> None:
     """Start the fork server with the package imported (once per server process)."""
     ctx = multiprocessing.get_context("forkserver")
     ctx.set_forkserver_preload(list(PRELOAD))
@@ -176,6 +232,9 @@ def failure(err: BaseException, what: str = "the computation") -> dict[str, Any]
     """The error body an ended piece of work reports (domain errors are the user's to fix)."""
     if isinstance(err, ApiError):
         return error_body(err.status, err.message, err.problems)
+    if isinstance(err, BrokenProcessPool):  # its worker was killed (out of memory?)
+        message = f"the worker process of {what} ended before it answered; try again"
+        return error_body(503, message, [problem("request", message, "busy")])
     if isinstance(err, ValueError | ArithmeticError):
         message = domain_message(err)
         return error_body(422, f"design: {message}", [problem("design", message, "domain_error")])
@@ -252,7 +311,7 @@ class Work:
         if mode == "process" and START_METHOD == "forkserver":
             # the fork server imports the package once, in the background, so that
             # the first heavy request does not wait for it
-            threading.Thread(target=_fork_server, daemon=True, name="ringwise-forkserver").start()
+            threading.Thread(target=fork_server, daemon=True, name="ringwise-forkserver").start()
 
     def _make(self) -> None:
         if self.mode == "process":
@@ -265,7 +324,8 @@ class Work:
                 self.workers,
                 mp_context=ctx,
                 initializer=_init,
-                initargs=(self._progress, self._stop, WORKER_NICE),
+                initargs=(self._progress, self._stop, WORKER_NICE, os.getpid()),
+                max_tasks_per_child=TASKS_PER_WORKER,
             )
         else:
             self._progress = [0.0] * SLOTS
@@ -324,9 +384,8 @@ class Work:
                 self._jobs[job.id] = job
             arrays = None if self.mode == "process" else (self._progress, self._stop)
             try:
-                job.future = self._executor.submit(  # type: ignore[union-attr]
-                    _call, slot, fn, args, kwargs, with_progress, arrays
-                )
+                job.future = self._submit(slot, fn, args, kwargs, with_progress, arrays)
+                job.arrays = (self._progress, self._stop)  # a fresh pool's, if it was made
             except RuntimeError as err:  # the executor is shutting down
                 self._outstanding[kind] -= 1
                 self._free.append(slot)
@@ -334,6 +393,17 @@ class Work:
                 raise ApiError(503, "the server is stopping", headers={"Retry-After": "1"}) from err
         job.future.add_done_callback(lambda f: self._ended(job, f))
         return job
+
+    def _submit(self, *call: Any) -> Future:
+        """``_call(*call)`` in the executor; a pool broken by a worker that died
+        (killed from outside) is replaced by a fresh one first."""
+        try:
+            return self._executor.submit(_call, *call)  # type: ignore[union-attr]
+        except BrokenProcessPool:
+            broken = self._executor
+            self._make()
+            broken.shutdown(wait=False)  # type: ignore[union-attr]
+            return self._executor.submit(_call, *call)  # type: ignore[union-attr]
 
     def _ended(self, job: Job, future: Future) -> None:
         """A piece of work ended: free its slot, keep its result or its error."""
@@ -437,7 +507,11 @@ class Work:
             await asyncio.wait({waiter, watcher}, return_when=asyncio.FIRST_COMPLETED)
             if not waiter.done():
                 self.stop(job)
-                raise ApiError(503, "the client went away; the work was stopped")
+                raise ApiError(
+                    503,
+                    "the client went away; the work was stopped",
+                    headers={"Retry-After": str(RETRY_AFTER_S)},
+                )
         finally:
             watcher.cancel()
             if not waiter.done():
@@ -447,9 +521,15 @@ class Work:
         await asyncio.to_thread(job.finished.wait, STOP_WAIT_S)
         if job.state == "failed":
             e = job.error or {}
-            raise ApiError(e.get("status", 500), e.get("message", ""), e.get("problems"))
+            status = e.get("status", 500)
+            retry = {"Retry-After": str(RETRY_AFTER_S)} if status in (429, 503) else None
+            raise ApiError(status, e.get("message", ""), e.get("problems"), retry)
         if job.result is None:
-            raise ApiError(503, "the work was stopped before it had an answer")
+            raise ApiError(
+                503,
+                "the work was stopped before it had an answer",
+                headers={"Retry-After": str(RETRY_AFTER_S)},
+            )
         return job.result
 
 
@@ -470,14 +550,3 @@ async def _gone(request: Request) -> None:
 def work_of(app: Any) -> Work:
     """The app's heavy work (made with the app; its pool starts in the lifespan)."""
     return app.state.work
-
-
-@contextlib.asynccontextmanager
-async def lifespan(app: FastAPI) -> AsyncIterator[None]:
-    """The process pool for the app's life: made at start-up, shut down at the end."""
-    work = work_of(app)
-    work.start("process")
-    try:
-        yield
-    finally:
-        work.shutdown()

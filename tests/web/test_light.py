@@ -1,11 +1,21 @@
-"""Admission of the light computations (app/web/light.py)."""
+"""The light computations (app/web/light.py): admission, and their worker processes."""
 
 from __future__ import annotations
 
+import asyncio
+import json
+import os
+import threading
+import time
+
+import httpx2 as httpx
+import pytest
 from starlette.responses import PlainTextResponse
 from starlette.testclient import TestClient
 
-from ringwise.web import light
+from ringwise.web import light, load, workers
+from ringwise.web.errors import ApiError
+from ringwise.web.samples import sample_texts
 
 
 async def _plain(scope, receive, send) -> None:
@@ -29,3 +39,71 @@ def test_under_the_limit_every_light_request_goes_through():
     for path in ("/", "/api/sheet", "/api/csv/sheet/loop", "/sheet.json"):
         assert client.get(path).text == "computed"
     assert guard.running == 0  # every one counted out again
+
+
+# ---- the light worker processes ------------------------------------------------------
+
+
+def _fails() -> None:
+    raise ValueError("the DC solve does not converge")
+
+
+def test_light_work_runs_in_worker_processes_and_answers_json():
+    pool = light.Light()
+    pool.start("process")
+    try:
+        answer = asyncio.run(pool.json(os.getpid))
+        assert answer.media_type == "application/json"
+        pid = json.loads(answer.body)
+        assert pid != os.getpid()
+        # a domain error of the core comes back as the API's 422, naming the design
+        with pytest.raises(ApiError) as refused:
+            asyncio.run(pool.json(_fails))
+        assert refused.value.status == 422
+        assert refused.value.problems[0]["field"] == "design"
+    finally:
+        pool.shutdown()
+
+
+def test_twenty_people_editing_at_once_are_not_refused(live_server, sample):
+    """The goal scenario of ``make load`` (20 people editing) is normal use: 20
+    analyses of designs not seen before sent at the same moment are all
+    answered, none refused (the limit is sized above it)."""
+    count = load.GOAL_LIGHT
+    start = threading.Barrier(count)
+    statuses: list[int] = []
+
+    def edit(i: int) -> None:
+        edited = json.loads(json.dumps(sample))
+        edited["name"] = f"edit {i}"
+        edited["bias"]["RC"] = 1000 + i
+        with httpx.Client(base_url=live_server, timeout=120) as c:
+            start.wait()
+            statuses.append(c.post("/api/analyze", json=edited).status_code)
+
+    threads = [threading.Thread(target=edit, args=(i,)) for i in range(count)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(180)
+    assert statuses == [200] * count
+
+
+def test_an_analysis_is_answered_while_heavy_work_fills_every_worker(live_server, sample):
+    texts = {"fields": sample_texts()["clapp-clock-1M"], "samples": "100000", "seed": "1"}
+    with httpx.Client(base_url=live_server, timeout=120) as c:
+        # large Monte Carlo runs (several seconds each), one per heavy worker
+        jobs = [c.post("/api/sheet/spread/jobs", json=texts).json() for _ in range(workers.WORKERS)]
+        try:
+            deadline = time.monotonic() + 60
+            while any(c.get(f"/api/jobs/{j['id']}").json()["progress"] == 0.0 for j in jobs):
+                assert time.monotonic() < deadline
+                time.sleep(0.05)
+            sample["bias"]["RC"] = 1234.5  # a design not analysed before
+            assert c.post("/api/analyze", json=sample).status_code == 200
+            states = [c.get(f"/api/jobs/{j['id']}").json()["state"] for j in jobs]
+        finally:
+            for j in jobs:
+                c.delete(f"/api/jobs/{j['id']}")
+    # functional, not timed: the analysis was answered while every heavy worker was busy
+    assert states == ["running"] * workers.WORKERS

@@ -4,7 +4,9 @@ stop, partial results, a client that goes away, and the jobs API."""
 from __future__ import annotations
 
 import json
+import os
 import time
+from concurrent.futures import ProcessPoolExecutor
 
 import httpx2 as httpx
 import pytest
@@ -101,8 +103,6 @@ def test_kept_jobs_are_bounded_and_forgotten():
 
 
 def test_the_process_pool_runs_the_core_in_other_processes():
-    import os
-
     work = workers.Work()
     work.start("process")
     try:
@@ -185,3 +185,103 @@ def test_a_client_that_goes_away_stops_its_work():
         assert work._outstanding["spread"] == 1  # still at it when the client left
         # stopped at its next chunk, long before its 100 000 samples are done
         _until(lambda: work._outstanding["spread"] == 0, 8)
+
+
+# ---- the workers' priority, memory and life ------------------------------------------
+
+
+def _scheduling() -> tuple[int, int]:
+    """The calling process's scheduling policy and niceness (in a worker)."""
+    return os.sched_getscheduler(0), os.getpriority(os.PRIO_PROCESS, 0)
+
+
+@pytest.mark.skipif(not hasattr(os, "SCHED_IDLE"), reason="Linux's idle scheduling class")
+def test_heavy_workers_run_in_the_idle_scheduling_class():
+    work = workers.Work()
+    work.start("process")
+    try:
+        job = work.submit("sweep", _scheduling, with_progress=False, keep=True)
+        assert job.finished.wait(60)
+        policy, _ = work.get(job.id).result
+        assert policy == os.SCHED_IDLE
+    finally:
+        work.shutdown()
+
+
+def test_background_lowers_the_priority_of_every_thread_of_its_process():
+    import multiprocessing
+
+    ctx = multiprocessing.get_context("spawn")
+    with ProcessPoolExecutor(1, mp_context=ctx) as pool:
+        kind = pool.submit(workers.background).result(timeout=60)
+        policy, nice = pool.submit(_scheduling).result(timeout=60)
+    if kind == "idle":
+        assert policy == os.SCHED_IDLE
+    else:  # where the idle class is refused: the lowest niceness instead
+        assert kind == "nice" and nice == workers.WORKER_NICE
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    return True
+
+
+def _allocate(megabytes: int) -> int:
+    """Hold ``megabytes`` of memory for a moment; the worker's process id."""
+    block = bytearray(megabytes * 2**20)
+    block[:: 2**12] = b"x" * len(block[:: 2**12])  # touched, so resident
+    return os.getpid()
+
+
+def test_a_heavy_worker_ends_after_its_work_and_its_memory_goes_back():
+    """One piece of work per worker process (workers.TASKS_PER_WORKER): the process
+    that held a large allocation is gone when its job has ended, and the next
+    job runs in a fresh one."""
+    work = workers.Work()
+    work.start("process")
+    try:
+        first = work.submit("spread", _allocate, 200, with_progress=False, keep=True)
+        assert first.finished.wait(60)
+        pid = work.get(first.id).result
+        assert pid != os.getpid()
+        _until(lambda: not _alive(pid), 30)
+        second = work.submit("spread", _allocate, 1, with_progress=False, keep=True)
+        assert second.finished.wait(60)
+        assert work.get(second.id).result not in (pid, os.getpid())
+    finally:
+        work.shutdown()
+
+
+def _sleeper(seconds: float) -> None:
+    time.sleep(seconds)
+
+
+def _watched(server: int) -> None:
+    workers.watch(server)
+    time.sleep(120)
+
+
+def test_a_worker_ends_when_its_server_is_gone():
+    """A worker whose server was killed (not let go) ends by itself instead of
+    waiting for work forever."""
+    import multiprocessing
+
+    ctx = multiprocessing.get_context("spawn")
+    server = ctx.Process(target=_sleeper, args=(120,))
+    server.start()
+    worker = ctx.Process(target=_watched, args=(server.pid,))
+    worker.start()
+    try:
+        time.sleep(3 * workers.WATCH_S)
+        assert worker.is_alive()  # its server is still there
+        server.kill()
+        server.join()
+        worker.join(30)  # a hang detector, not a timing bound
+        assert worker.exitcode == 0
+    finally:
+        for p in (server, worker):
+            if p.is_alive():
+                p.kill()

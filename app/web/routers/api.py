@@ -6,7 +6,7 @@ import re
 from typing import Annotated, Any
 
 from fastapi import APIRouter, Body, Request
-from fastapi.responses import JSONResponse
+from fastapi.responses import JSONResponse, Response
 from pydantic import ValidationError
 
 from ringwise.analysis.analyze import analyze
@@ -23,6 +23,7 @@ from ringwise.web.fields import (
     document,
     texts_from_document,
 )
+from ringwise.web.light import light_of
 from ringwise.web.samples import samples
 from ringwise.web.schemas import (
     ImportOut,
@@ -49,9 +50,10 @@ HEAVY_ERRORS: dict[int | str, dict[str, Any]] = {
 
 
 @router.post("/analyze", response_model=Result, responses=ERRORS)
-def post_analyze(design: Design) -> Result:
-    """The full analysis of a design (the core's result contract)."""
-    return analyze(design)
+async def post_analyze(design: Design, request: Request) -> Response:
+    """The full analysis of a design (the core's result contract), computed in a
+    light worker process (app/web/light.py)."""
+    return await light_of(request.app).json(analyze, design)
 
 
 def _bound(param: str, key: str, value: float | str) -> float:
