@@ -156,16 +156,32 @@ def watch(server: int) -> None:
     whose liveness pipe they hold)."""
 
     def check() -> None:
-        while True:
+        while not gone(server):
             time.sleep(WATCH_S)
-            try:
-                os.kill(server, 0)
-            except ProcessLookupError:
-                os._exit(0)
-            except OSError:  # there, but not ours to signal
-                pass
+        os._exit(0)
 
     threading.Thread(target=check, daemon=True, name="ringwise-watch").start()
+
+
+def gone(pid: int) -> bool:
+    """Whether process ``pid`` has ended: no such process, or one that has exited and
+    waits for its parent to collect it (a zombie, which still answers a signal; its
+    parent may be waiting for our end first, for the pipes we share with it)."""
+    if os.path.isdir("/proc/self"):
+        try:
+            with open(f"/proc/{pid}/stat", encoding="ascii") as f:
+                return f.read().rpartition(")")[2].split()[0] in ("Z", "X")
+        except FileNotFoundError:
+            return True
+        except (OSError, IndexError):
+            pass
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return True
+    except OSError:  # there, but not ours to signal
+        pass
+    return False
 
 
 def background(nice: int = WORKER_NICE) -> str:

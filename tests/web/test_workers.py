@@ -5,6 +5,9 @@ from __future__ import annotations
 
 import json
 import os
+import signal
+import subprocess
+import sys
 import time
 from concurrent.futures import ProcessPoolExecutor
 
@@ -266,7 +269,8 @@ def _watched(server: int) -> None:
 
 def test_a_worker_ends_when_its_server_is_gone():
     """A worker whose server was killed (not let go) ends by itself instead of
-    waiting for work forever."""
+    waiting for work forever, also while the dead server is not yet collected by
+    its parent (which may wait for the pipes the worker holds)."""
     import multiprocessing
 
     ctx = multiprocessing.get_context("spawn")
@@ -277,11 +281,23 @@ def test_a_worker_ends_when_its_server_is_gone():
     try:
         time.sleep(3 * workers.WATCH_S)
         assert worker.is_alive()  # its server is still there
-        server.kill()
-        server.join()
+        os.kill(server.pid, signal.SIGKILL)  # not collected: a zombie until joined
         worker.join(30)  # a hang detector, not a timing bound
         assert worker.exitcode == 0
     finally:
         for p in (server, worker):
             if p.is_alive():
                 p.kill()
+            p.join()
+
+
+def test_a_process_that_ended_is_gone_before_it_is_collected():
+    child = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(120)"])
+    try:
+        assert not workers.gone(child.pid)
+        child.kill()
+        _until(lambda: workers.gone(child.pid), 30)  # a zombie: still there to a signal
+    finally:
+        child.kill()
+        child.wait()
+    assert workers.gone(child.pid)
