@@ -118,7 +118,7 @@ def design_figures(design: Design, sweep_param: str | None = None) -> dict[str, 
     result = analyze(design).model_dump(mode="json")
     setter = gain_setter(design)
     param = sweep_param or setter
-    hint = result["startup"]["threshold_value"] if param == setter else None
-    sweep = curves.what_if(design, param, hint, PARAM_UNITS.get(param, ""))
+    known = curves.analysed_threshold(design, param, result)
+    sweep = curves.what_if(design, param, None, PARAM_UNITS.get(param, ""), known)
     specs = design_specs(design_curves(design, solve(design), result, sweep))
     return {name: to_figure(spec) for name, spec in specs.items()}

@@ -10,13 +10,14 @@ reactance chart is the defining relation of an ideal part,
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from typing import Any, Final
 
 import numpy as np
 
 from ringwise.analysis.loop import return_ratio
 from ringwise.analysis.operating import Solved
-from ringwise.analysis.threshold import LINEAR_PARAMS, sweep
+from ringwise.analysis.threshold import LINEAR_PARAMS, Threshold, sweep
 from ringwise.design import PART_PARAMETERS, Design, get_param
 
 TWO_PI: Final = 2.0 * math.pi
@@ -118,17 +119,39 @@ def sweep_range(current: float, threshold: float | None) -> tuple[float, float]:
     return lo, hi
 
 
+def analysed_threshold(design: Design, param: str, result: Mapping[str, Any]) -> Threshold | None:
+    """The threshold the design's analysis (``result``, JSON form) found, when it was
+    searched on ``param`` (the gain setter) and found: the what-if sweep then marks the
+    very value the sheet shows, without searching for it again."""
+    startup = result["startup"]
+    value = startup["threshold_value"]
+    if startup["threshold_param"] != param or value is None:
+        return None
+    current = get_param(design, param)
+    assert current is not None  # the analysis searched on a part of this design
+    return Threshold(param, value, current)
+
+
 def what_if(
-    design: Design, param: str, threshold_hint: float | None, unit: str = ""
+    design: Design,
+    param: str,
+    threshold_hint: float | None,
+    unit: str = "",
+    threshold: Threshold | None = None,
 ) -> dict[str, Any]:
     """Loop gain and f_osc along ``param`` (the core's sweep), with its threshold.
 
-    ``unit`` is the parameter's display unit ("F", "Ω"; blank for a ratio).
+    ``unit`` is the parameter's display unit ("F", "Ω"; blank for a ratio);
+    ``threshold_hint`` a threshold already known, used to choose the span, and
+    ``threshold`` one already found for ``param`` (:func:`analysed_threshold`),
+    used as it is.
     """
     current = get_param(design, param)
     assert current is not None  # callers pass a sweepable parameter
+    if threshold is not None:
+        threshold_hint = threshold.value
     lo, hi = sweep_range(current, threshold_hint)
-    s = sweep(design, param, lo, hi, SWEEP_POINTS, "log")
+    s = sweep(design, param, lo, hi, SWEEP_POINTS, "log", threshold=threshold)
     return {
         "param": param,
         "unit": unit,

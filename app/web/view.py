@@ -307,10 +307,10 @@ def build_view(
         )
         sweep_param = None
     param = sweep_param or setter
-    hint = result["startup"]["threshold_value"] if param == setter else None
-    what_if = (
-        curves.what_if(design, param, hint, PARAM_UNITS.get(param, "")) if with_sweep else None
-    )
+    what_if = None
+    if with_sweep:
+        known = curves.analysed_threshold(design, param, result)
+        what_if = curves.what_if(design, param, None, PARAM_UNITS.get(param, ""), known)
     plot_data = design_curves(design, solved, result, what_if)
     if with_curves:
         view["curves"] = plot_data  # the plots' data as such (the CSV downloads)
@@ -364,7 +364,9 @@ def sweep_view(
     """The what-if sweep alone, for the live sheet (``None`` when the design is not valid).
 
     ``threshold_hint`` is the threshold the sheet already has (from the result),
-    used only to choose a span that shows it.
+    used only to choose a span that shows it.  On the gain setter the threshold
+    is the design's analysis's own (remembered from the sheet's answer), not
+    searched for again.
     """
     if param is not None and param not in PART_PARAMETERS:
         raise invalid("param", f"{param!r} is not a part; parts: {', '.join(PART_PARAMETERS)}")
@@ -379,7 +381,14 @@ def sweep_view(
         )
     chosen = param or gain_setter(design)
     try:
-        data = curves.what_if(design, chosen, threshold_hint, PARAM_UNITS.get(chosen, ""))
+        known = None
+        if chosen == gain_setter(design):
+            # the sheet's answer for this design has just been computed and is remembered
+            result = analyze(design, large_signal=False).model_dump(
+                mode="json", include={"startup"}
+            )
+            known = curves.analysed_threshold(design, chosen, result)
+        data = curves.what_if(design, chosen, threshold_hint, PARAM_UNITS.get(chosen, ""), known)
     except (ValueError, ArithmeticError):
         return {"ok": False, "figure": None}
     return {"ok": True, "param": chosen, "figure": sweep_spec(data)}

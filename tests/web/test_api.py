@@ -199,6 +199,23 @@ def test_sheet_sweep(client, sample):
     assert bad == {"ok": False, "figure": None}
 
 
+@pytest.mark.parametrize("name", ["clapp-clock-1M", "common-base-carrier-10M"])
+def test_sheet_sweep_marks_the_threshold_the_sheet_shows(client, name):
+    # on the gain setter the what-if plot reuses the analysis's threshold (not a
+    # second search, whose last digits could differ from the figure beside it)
+    from ringwise.web.samples import sample_texts
+
+    texts = sample_texts()[name]
+    sheet = client.post("/api/sheet", json={"fields": texts}).json()
+    startup = sheet["result"]["startup"]
+    body = client.post(
+        "/api/sheet/sweep", json={"fields": texts, "threshold_hint": startup["threshold_value"]}
+    ).json()
+    assert body["param"] == startup["threshold_param"]
+    [marker] = [s for s in body["figure"]["layout"]["shapes"] if s["name"].startswith("threshold")]
+    assert marker["x0"] == startup["threshold_value"]
+
+
 @pytest.mark.parametrize(
     ("param", "says"),
     [("XYZ", "is not a part"), ("F_dB", "is not a part"), ("C3", "cannot be swept in this design")],
