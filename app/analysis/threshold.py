@@ -153,6 +153,8 @@ class _Trials:
     patterns: Patterns = field(init=False)
     limits: tuple[float, float] = field(init=False)
     last: BatchSolution | None = field(init=False, default=None)
+    #: ln(value) of the last batch's trials (its first members)
+    last_logs: list[float] = field(init=False, default_factory=list)
 
     def __post_init__(self) -> None:
         # What every batch shares, worked out once per search.
@@ -167,6 +169,12 @@ class _Trials:
             self.x0 = sol.x[i]
             f = float(sol.loop.f_osc[i])
             self.f_guess = f if math.isfinite(f) else self.f_guess
+
+    def warm_near(self, log_value: float) -> None:
+        """Start the next batches from the last batch's trial at ``log_value``, if
+        it had one (the polish starts from the bracket's end nearer the root)."""
+        if log_value in self.last_logs:
+            self.warm_from(self.last_logs.index(log_value))
 
     def log_gain(self, log_values: np.ndarray) -> np.ndarray:
         """ln|T| at each exp(log_values): NaN where the value is outside the
@@ -186,6 +194,7 @@ class _Trials:
         else:
             sol = solve_values(self.patterns, parts, m, self.x0, self.f_guess)
         self.last = sol
+        self.last_logs = np.asarray(log_values, dtype=float).tolist()
         gain = sol.gain[:m]
         sol_ok = sol.converged[:m]
         with np.errstate(divide="ignore"):
@@ -453,6 +462,7 @@ def _polish(trials: _Trials, xs: np.ndarray, gs: np.ndarray, k: int) -> tuple[fl
     j = k if k + 2 < xs.size and math.isfinite(gs[k + 2]) else k - 1
     last = (xs[j : j + 3].tolist(), gs[j : j + 3].tolist()) if j >= 0 else None
     seen = [(x, g) for x, g in zip(xs.tolist(), gs.tolist(), strict=True) if _usable(g)]
+    trials.warm_near(best_x)
     for _ in range(POLISH_ROUNDS):
         width = b - a
         if width <= BRACKET_XTOL:
