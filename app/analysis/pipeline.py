@@ -193,7 +193,8 @@ def _varactor_stamps(values: PartValues, batch: int) -> dict[str, np.ndarray | f
     shared (the junction law takes an array of voltages), else one element
     per member.
     """
-    law = [values[k] for k in ("C_j0", "phi_j", "m_j")]
+    # a law the members share (as joined batches hold it: equal arrays) is one float
+    law = [_shared(values[k]) for k in ("C_j0", "phi_j", "m_j")]
     V = values["V_tune"]
     if all(np.ndim(a) == 0 for a in law):
         el = Varactor("", "", "", *(float(a) for a in law), np.asarray(V, float))  # type: ignore[arg-type]
@@ -210,6 +211,13 @@ def _varactor_stamps(values: PartValues, batch: int) -> dict[str, np.ndarray | f
         "RC": _value(C_b * values["R_v"], batch),
         "V0": _value(offset, batch),
     }
+
+
+def _shared(value):
+    """``value`` as one float when it is an array whose members are all equal."""
+    if np.ndim(value) and value.size and np.all(value == value.flat[0]):
+        return float(value.flat[0])
+    return value
 
 
 def _present(values: PartValues, name: str) -> bool:
