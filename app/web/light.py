@@ -162,6 +162,8 @@ class Light:
         self.workers = workers
         self._lock = threading.Lock()
         self._executor: Executor | None = None
+        #: The pool's processes are up (a submit no longer forks one).
+        self._ready = False
 
     def start(self, mode: str = "process") -> None:
         """Use worker processes from now on (the app's lifespan); they start in the
@@ -181,6 +183,8 @@ class Light:
         with contextlib.suppress(RuntimeError):
             for _ in range(self.workers):
                 self._submit(_warm)
+            # every worker is forked now: a submit no longer waits for one
+            self._ready = True
 
     def _make(self) -> Executor:
         if self.mode == "process":
@@ -199,6 +203,7 @@ class Light:
             try:
                 return self._executor.submit(fn, *args)
             except BrokenProcessPool:  # a light worker died (killed from outside)
+                self._ready = False  # the fresh pool forks its workers on demand
                 broken, self._executor = self._executor, self._make()
                 broken.shutdown(wait=False)
                 return self._executor.submit(fn, *args)
@@ -213,8 +218,10 @@ class Light:
         """``fn(*args)`` computed in a light worker, answered as JSON; its error as
         the one error shape (422 for a domain error, as in the server's process)."""
         try:
-            # off the event loop: a worker that is not there yet is forked first
-            future = await asyncio.to_thread(self._submit, as_json, fn, args)
+            if self._ready:  # the workers are up: a submit only queues the call
+                future = self._submit(as_json, fn, args)
+            else:  # off the event loop: a worker that is not there yet is forked first
+                future = await asyncio.to_thread(self._submit, as_json, fn, args)
             ok, out = await asyncio.wrap_future(future)
         except BrokenProcessPool as err:
             raise _busy("a light worker process ended before it answered; try again") from err

@@ -330,6 +330,7 @@ class _Memory:
         self.server = server
         self.light = set(workers(server) or ())
         self.cpu_before = {pid: _cpu(pid) for pid in self.light}
+        self.server_cpu_before = _cpu(server)
         self.cpu: dict[str, float] = {}
         self.before = self._measure()
         self.peak: dict[str, int] = {}
@@ -361,6 +362,7 @@ class _Memory:
         self._done.set()
         self._thread.join()
         self.cpu["light"] = sum(_cpu(pid) - cpu for pid, cpu in self.cpu_before.items())
+        self.cpu["server"] = _cpu(self.server) - self.server_cpu_before
         # every request has its answer by now; a heavy worker ends after its piece
         # of work (app/web/workers.py): what is held a moment later
         time.sleep(AFTER_S)
@@ -425,6 +427,8 @@ def run(
     answered = figures.get("analyze", {}).get("count", 0)
     if sampled.cpu and answered:
         figures["light_cpu_ms"] = round(1000 * sampled.cpu["light"] / answered, 1)
+    if sampled.cpu and figures["requests"]:
+        figures["server_cpu_ms"] = round(1000 * sampled.cpu["server"] / figures["requests"], 2)
     figures["load_average"] = [load_before, _loadavg()]
     return figures
 
@@ -470,6 +474,11 @@ def report(
         lines.append(
             f"  light CPU     {figures['light_cpu_ms']} ms per analyze answered "
             "(the light workers' CPU time over the run)"
+        )
+    if figures.get("server_cpu_ms"):
+        lines.append(
+            f"  server CPU    {figures['server_cpu_ms']} ms per request (answered or refused; "
+            "the server process's CPU time over the run)"
         )
     if figures.get("load_average"):
         start, end = figures["load_average"]
