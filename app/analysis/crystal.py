@@ -50,7 +50,13 @@ from ringwise.analysis.operating import Solved
 from ringwise.analysis.periodic import SteadyState
 from ringwise.analysis.pipeline import stamp_values, structure_of
 from ringwise.analysis.poles import PoleFigures
-from ringwise.circuit.mna import assemble, assemble_batch, linear_patterns, small_signal
+from ringwise.circuit.mna import (
+    assemble,
+    assemble_batch,
+    dot_last,
+    linear_patterns,
+    small_signal,
+)
 from ringwise.circuit.netlist import Netlist
 from ringwise.circuit.topologies import CRYSTAL_C0, CRYSTAL_C1, build
 from ringwise.units import format_si
@@ -197,7 +203,7 @@ def crystal_margins(design, values, sol) -> tuple[np.ndarray, np.ndarray]:
     w = 2.0 * np.pi * np.where(np.isfinite(f), f, 1.0)
     Y = ss.G_full + 1j * w[:, None, None] * ss.C
     v = np.linalg.solve(Y, np.broadcast_to(rhs, (B, lay.size))[..., None])[..., 0]
-    Z = v @ rhs
+    Z = dot_last(v, rhs)
     C0 = np.asarray(values["C_x0"], dtype=float)
     Z_arm = 1.0 / (1.0 / Z + 1j * w * C0)
     R_neg = np.where(np.isfinite(f), Z_arm.real, np.nan)
