@@ -20,7 +20,10 @@ Admission: at most :data:`LIGHT_LIMIT` light requests are outstanding
 (:class:`LightLimit`).  The limit is sized from the measured capacity: about
 :data:`QUEUE_S` of queued work for the light workers at :data:`ANSWER_S` an
 answer, so 20 people editing at once are never refused, and a flood waits at
-most about that long or is refused at once.
+most about that long or is refused at once.  The light routes that still
+compute in the server's own threads (the sheet's views, the pages) have a
+limit of their own, :data:`LOCAL_LIMIT`: more of them at once would only
+lengthen the queue for the one interpreter lock the event loop needs too.
 """
 
 from __future__ import annotations
@@ -57,6 +60,13 @@ QUEUE_S: Final = 1.0
 #: Light requests outstanding at most (computing or waiting for a light worker):
 #: about 33 with two workers.
 LIGHT_LIMIT: Final = max(8, round(LIGHT_WORKERS * QUEUE_S / ANSWER_S))
+#: The light paths computed in the light workers; the others compute in the
+#: server's own threads, under the interpreter lock the event loop needs.
+POOLED_PATHS: Final = frozenset({"/api/analyze"})
+#: Light computations at once in the server's own threads: a few per core keeps
+#: both busy while the event loop still gets the interpreter lock often
+#: (common practice, no source).
+LOCAL_LIMIT: Final = 8
 #: ``Retry-After`` of a refusal, s: a light answer takes well under a second.
 RETRY_AFTER_S: Final = 1
 #: The paths that compute (in the server's process or a light worker), exact, and prefixes.
@@ -76,7 +86,7 @@ LIGHT_PATHS: Final = frozenset(
 )
 LIGHT_PREFIXES: Final = ("/api/csv/sheet/",)
 BUSY: Final = (
-    f"the server is busy: {LIGHT_LIMIT} answers are being computed or waiting already; "
+    "the server is busy: {limit} answers are being computed or waiting already; "
     f"try again in {RETRY_AFTER_S} s"
 )
 #: The design each light worker analyses once when it starts (its caches warm).
@@ -87,7 +97,7 @@ def is_light(path: str) -> bool:
     return path in LIGHT_PATHS or path.startswith(LIGHT_PREFIXES)
 
 
-def _busy(message: str = BUSY) -> errors.ApiError:
+def _busy(message: str) -> errors.ApiError:
     return errors.ApiError(
         503,
         message,
@@ -97,28 +107,33 @@ def _busy(message: str = BUSY) -> errors.ApiError:
 
 
 class LightLimit:
-    """At most ``limit`` light requests at once; past it 503 at once (module doc)."""
+    """At most ``limit`` light requests for the light workers at once, and
+    ``local_limit`` computed in the server's own threads; past either 503 at
+    once (module doc)."""
 
-    def __init__(self, app: ASGIApp, limit: int = LIGHT_LIMIT) -> None:
+    def __init__(
+        self, app: ASGIApp, limit: int = LIGHT_LIMIT, local_limit: int = LOCAL_LIMIT
+    ) -> None:
         self.app = app
-        self.limit = limit
-        self.running = 0  # touched on the event loop only
+        self.limits = {"pooled": limit, "local": local_limit}
+        self.running = {"pooled": 0, "local": 0}  # touched on the event loop only
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if scope["type"] != "http" or not is_light(scope["path"]):
             await self.app(scope, receive, send)
             return
-        if self.running >= self.limit:
-            err = _busy()
+        group = "pooled" if scope["path"] in POOLED_PATHS else "local"
+        if self.running[group] >= self.limits[group]:
+            err = _busy(BUSY.format(limit=self.limits[group]))
             body = errors.error_body(err.status, err.message, err.problems)
             response = JSONResponse(body, status_code=err.status, headers=err.headers)
             await response(scope, receive, send)
             return
-        self.running += 1
+        self.running[group] += 1
         try:
             await self.app(scope, receive, send)
         finally:
-            self.running -= 1
+            self.running[group] -= 1
 
 
 # ---- in the light worker ----------------------------------------------------------

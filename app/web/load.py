@@ -498,6 +498,9 @@ def main(argv: list[str] | None = None) -> int:
         "flood: 200 closed-loop clients and more heavy requests than admitted",
     )
     p.add_argument("--clients", type=int, default=None, help="light clients (overrides)")
+    p.add_argument(
+        "--heavy", type=int, default=None, help="heavy clients (overrides; 0 for light work alone)"
+    )
     p.add_argument("--seconds", type=float, default=None)
     p.add_argument("--max-requests", type=int, default=DEFAULT_MAX_REQUESTS)
     p.add_argument("--json", action="store_true", help="print the figures as JSON")
@@ -511,6 +514,7 @@ def main(argv: list[str] | None = None) -> int:
     for name in chosen:
         clients, seconds, heavy, think = plans[name]
         clients = args.clients or clients
+        heavy = heavy if args.heavy is None else args.heavy
         seconds = args.seconds or seconds
         figures = run(clients, seconds, args.max_requests, heavy, think)
         results[name] = figures

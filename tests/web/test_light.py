@@ -27,18 +27,30 @@ def test_light_requests_past_the_limit_are_refused_at_once_with_retry_after():
     r = full.post("/api/analyze", json={})
     assert r.status_code == 503
     assert r.headers["retry-after"] == str(light.RETRY_AFTER_S)
-    assert r.json()["problems"] == [{"field": "request", "message": light.BUSY, "type": "busy"}]
+    message = light.BUSY.format(limit=0)
+    assert r.json()["problems"] == [{"field": "request", "message": message, "type": "busy"}]
     # what does not compute in the server's process is not counted
     for path in ("/static/sheet.js", "/api/jobs/x", "/api/spread"):
         assert full.get(path).text == "computed"
 
 
 def test_under_the_limit_every_light_request_goes_through():
-    guard = light.LightLimit(_plain, limit=1)
+    guard = light.LightLimit(_plain, limit=1, local_limit=1)
     client = TestClient(guard)
-    for path in ("/", "/api/sheet", "/api/csv/sheet/loop", "/sheet.json"):
+    for path in ("/", "/api/sheet", "/api/csv/sheet/loop", "/sheet.json", "/api/analyze"):
         assert client.get(path).text == "computed"
-    assert guard.running == 0  # every one counted out again
+    assert guard.running == {"pooled": 0, "local": 0}  # every one counted out again
+
+
+def test_light_work_in_the_server_s_own_threads_has_a_limit_of_its_own():
+    """The light workers' requests and those computed in the server's threads are
+    counted apart: a full server-side limit does not refuse an analysis."""
+    guard = light.LightLimit(_plain, limit=1, local_limit=0)
+    client = TestClient(guard)
+    refused = client.post("/api/sheet", json={})
+    assert refused.status_code == 503 and refused.headers["retry-after"]
+    assert light.BUSY.format(limit=0) == refused.json()["message"]
+    assert client.post("/api/analyze", json={}).text == "computed"
 
 
 # ---- the light worker processes ------------------------------------------------------
