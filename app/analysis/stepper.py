@@ -250,18 +250,20 @@ class _Stepper:
             self._cache[key] = (ext, sm, tuple(sm.M.ravel().tolist()))
         return self._cache[key]
 
-    def run(self, x0: np.ndarray, h: float, count: int, substeps: int = 0):
+    def run(self, x0: np.ndarray, h: float, count: int, substeps: int = 0, partial: bool = False):
         """``count`` steps of h from x0, the same steps as :meth:`step` with one
         matrix-vector product each (see :meth:`_run_matrices`).
 
         Returns (states (count + 1, n), the device tuples end to end as one
         flat list), or ``None`` if a step fails.  With ``substeps`` > 0 a step
         whose Newton iteration fails is retried as 2, 4, … 2**substeps
-        shorter steps (:func:`split_step`).
+        shorter steps (:func:`split_step`).  With ``partial`` a step that
+        still fails ends the run there: the states up to it are returned
+        (fewer than count + 1 rows) instead of ``None``.
         """
         k = 2 + len(self.extra)
         if k > 3:
-            return self.run_steps(x0, [h] * count, substeps)
+            return self.run_steps(x0, [h] * count, substeps, partial)
         ext, sm, m = self._run_matrices(h)
         n = sm.K.shape[0]
         cur = slice(n + k + 1, n + 2 * k + 1)
@@ -319,7 +321,10 @@ class _Stepper:
                     x_j = Z[j - 1, :n] - sm.K @ Z[j - 1, cur]
                 stepped = split_step(self, h, x_j, v, ph, substeps)
                 if stepped is None:
-                    return None
+                    if not partial:
+                        return None
+                    count = j
+                    break
                 x_new, v_new, q = stepped
                 fixes[j + 1] = x_new
                 row[cur] = self._currents(q)
@@ -331,12 +336,12 @@ class _Stepper:
             v3, v2, v1, v, ph = v2, v1, v, v_new, q
         X = np.empty((count + 1, n))
         X[0] = x0
-        X[1:] = Z[:-1, :n] - Z[:-1, cur] @ sm.K.T
+        X[1:] = Z[:count, :n] - Z[:count, cur] @ sm.K.T
         for j, x in fixes.items():
             X[j] = x
         return X, flat
 
-    def run_steps(self, x0: np.ndarray, hs: list[float], substeps: int = 0):
+    def run_steps(self, x0: np.ndarray, hs: list[float], substeps: int = 0, partial: bool = False):
         """:meth:`run` with any steps ``hs``, by :meth:`step` one at a time."""
         x = x0
         v = v_prev = self.controls(x)
@@ -349,7 +354,9 @@ class _Stepper:
             if stepped is None:
                 stepped = split_step(self, h, x, v, ph, substeps)
                 if stepped is None:
-                    return None
+                    if not partial:
+                        return None
+                    return X[:j].copy(), flat
             x, v_new, ph = stepped
             v_prev, v = v, v_new
             X[j] = x

@@ -23,9 +23,10 @@ lossless LC exactly and so adds no numerical damping to the resonator.  With
 so with :math:`A^{-1}` factorised once per step size the Newton iteration
 runs on the two controlling voltages only (a 2×2 system; the Woodbury
 identity in effect; the stepper is :mod:`ringwise.analysis.stepper`, shared
-with the steady state).  A local-error estimate from third differences of the
-tank voltage halves the step where the waveform turns sharply (saturation,
-current pulses) and lets it grow back afterwards.
+with the steady state, and its :meth:`~ringwise.analysis.stepper._Stepper.run`
+takes the steps, a stretch of equal steps at a time).  A local-error estimate
+from third differences of the tank voltage halves the step where the waveform
+turns sharply (saturation, current pulses) and lets it grow back afterwards.
 
 References
 ----------
@@ -153,6 +154,9 @@ class SimulationCancelledError(Exception):
 
 #: The progress callback is called about this often, in steps.
 PROGRESS_EVERY: Final = 256
+#: Steps of the first stretch after a rejected step (integrate: the stretches
+#: double from there up to PROGRESS_EVERY while no step is rejected).
+MIN_STRETCH: Final = 16
 
 
 def run(
@@ -205,57 +209,92 @@ def integrate(
 
     ``out`` names the node whose voltage drives the local-error control;
     ``progress`` is as in :func:`run`.
+
+    The steps are taken in stretches of equal steps by :meth:`_Stepper.run`
+    (one matrix-vector product a step) and judged afterwards, all at once, as
+    if one at a time: a stretch is cut at its first step that the local-error
+    control rejects or that fails, or after the step at which the step size
+    grows back or the run ends; the rest is discarded and the next stretch
+    starts there.  A stretch ends at the next progress report at the latest.
     """
     stepper = _Stepper(circuit_dynamics(system))
     i_out, e_sel = system.layout.node[out], system.layout.unit(system.devices[0].e)
-    v = stepper.controls(x)
-    v_prev = v
-    ph = stepper.phi(*v)
+    w_be = stepper.Wt[0]
     t = 0.0
-    ts, vo, vbe_t, ve = [0.0], [float(x[i_out])], [v[0]], [float(x @ e_sel)]
+    ts, vo, vbe_t, ve = [np.zeros(1)], [x[i_out : i_out + 1]], [np.array([w_be @ x])], []
+    ve.append(np.array([x @ e_sel]))
+    last3 = [math.nan, math.nan, float(x[i_out])]  # the last three accepted outputs
+    samples = 1
     level, h, since_change, rejected, quiet = 0, h0, 0, 0, 0
     scale = KICK_VOLTS
     vo_mean = float(x[i_out])
+    stretch = PROGRESS_EVERY  # doubled after each stretch taken whole, cut back on a rejection
     while t < t_end:
-        stepped = stepper.step(h, x, v, v_prev, ph)
-        if stepped is None:
-            if level >= MAX_HALVINGS:
+        # to the next progress report or past the end, and on a halved step to
+        # about the first step after which it could grow back
+        count = min(
+            stretch, PROGRESS_EVERY - samples % PROGRESS_EVERY, math.ceil((t_end - t) / h) + 1
+        )
+        if level > 0:
+            count = min(count, max(0, 3 - since_change) + max(1, 8 - quiet))
+        X = stepper.run(x, h, count, partial=True)[0][1:]
+        m = len(X)
+        outs = X[:, i_out]
+        times = np.cumsum(np.concatenate(([t], np.full(m, h))))[1:]
+        # LTE of the trapezoidal rule ~ h^3 x'''/12, from third differences
+        # (the spacing is uniform since the last change of step), against the
+        # largest swing before the step
+        seq = np.concatenate((last3, outs))
+        err = np.abs(seq[3:] - 3.0 * seq[2:-1] + 3.0 * seq[1:-2] - seq[:-3]) / 12.0
+        judged = since_change + np.arange(m) >= 3
+        dev = np.abs(outs - vo_mean)
+        scales = np.maximum.accumulate(np.concatenate(([scale], dev[:-1])))
+        reject = judged & (err > LTE_TOL * scales) & (level < MAX_HALVINGS)
+        # the quiet count after each step: one up on a quiet judged step, back
+        # to 0 on a loud one, unchanged on the first three after a change
+        calm = judged & (err < LTE_TOL * scales / 16.0)
+        ups = np.cumsum(calm)
+        at_loud = np.maximum.accumulate(np.where(judged & ~calm, ups, -1))
+        quiets = np.where(at_loud >= 0, ups - at_loud, quiet + ups)
+        # accepted: the steps before the first rejected one, cut after the
+        # first at which the step grows back or the run ends
+        first = np.flatnonzero(reject)
+        take = int(first[0]) if first.size else m
+        stop = np.flatnonzero((((quiets >= 8) & (level > 0)) | (times >= t_end))[:take])
+        if stop.size:
+            take = int(stop[0]) + 1
+        if take:
+            x = X[take - 1]
+            t = float(times[take - 1])
+            ts.append(times[:take])
+            vo.append(outs[:take])
+            vbe_t.append(X[:take] @ w_be)
+            ve.append(X[:take] @ e_sel)
+            scale = max(scale, float(dev[:take].max()))
+            quiet = int(quiets[take - 1])
+            since_change += take
+            samples += take
+            last3 = seq[take : take + 3].tolist()
+            if progress is not None and samples % PROGRESS_EVERY == 0 and not progress(t / t_end):
+                raise SimulationCancelledError(f"cancelled at t = {t:.4g} s")
+        if stop.size:
+            if level > 0 and quiet >= 8:
+                level -= 1
+                h = h0 / 2**level
+                since_change, quiet = 0, 0
+        elif take < count:
+            # the next step was rejected, or its Newton iteration failed
+            if take == m and level >= MAX_HALVINGS:
                 raise SimulationError(f"Newton's method failed at t = {t:.4g} s")
             level += 1
             h = h0 / 2**level
             since_change = 0
             rejected += 1
-            continue
-        x_new, v_new, ph_new = stepped
-        out = float(x_new[i_out])
-        # LTE of the trapezoidal rule ~ h^3 x'''/12, from third differences
-        # (the spacing is uniform since the last change of step).
-        if since_change >= 3:
-            err = abs(out - 3.0 * vo[-1] + 3.0 * vo[-2] - vo[-3]) / 12.0
-            if err > LTE_TOL * scale and level < MAX_HALVINGS:
-                level += 1
-                h = h0 / 2**level
-                since_change = 0
-                rejected += 1
-                continue  # redo the step from the accepted state with h halved
-            quiet = quiet + 1 if err < LTE_TOL * scale / 16.0 else 0
-        x, v_prev, v, ph = x_new, v, v_new, ph_new
-        t += h
-        ts.append(t)
-        vo.append(out)
-        vbe_t.append(v[0])
-        ve.append(float(x @ e_sel))
-        dev_out = abs(out - vo_mean)
-        if dev_out > scale:
-            scale = dev_out
-        since_change += 1
-        if progress is not None and len(ts) % PROGRESS_EVERY == 0 and not progress(t / t_end):
-            raise SimulationCancelledError(f"cancelled at t = {t:.4g} s")
-        if level > 0 and quiet >= 8:
-            level -= 1
-            h = h0 / 2**level
-            since_change, quiet = 0, 0
-    return Trace(np.array(ts), np.array(vo), np.array(vbe_t), np.array(ve), len(ts) - 1, rejected)
+            stretch = MIN_STRETCH
+        else:
+            stretch = min(2 * stretch, PROGRESS_EVERY)
+    parts = (np.concatenate(p) for p in (ts, vo, vbe_t, ve))
+    return Trace(*parts, samples - 1, rejected)
 
 
 def unwarp(f_measured: float, h: float) -> float:

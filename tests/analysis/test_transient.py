@@ -166,3 +166,36 @@ def test_settled_is_judged_against_the_slowest_multiplier():
     r = run(design, cycles=100)
     assert slow > 1000 and not r.settled
     assert any("Floquet multiplier" in n for n in r.notes)
+
+
+def test_the_step_control_halves_grows_back_and_keeps_its_bound(monkeypatch) -> None:
+    # A tolerance 100x tighter makes the local-error control halve the step at
+    # every current pulse and grow it back after: the steps taken in stretches
+    # must still obey the control's bound, step by step (Nagel, SPICE2, 1975:
+    # trapezoidal LTE from divided differences, from memory), and the amplitude
+    # stays that of the default run (within 0.5 %, common practice, no source).
+    import ringwise.analysis.transient as transient
+
+    d = load_sample(next(p for p in sample_paths() if "clapp" in p.name))
+    loose = run(d, cycles=60)
+    monkeypatch.setattr(transient, "LTE_TOL", transient.LTE_TOL / 100)
+    solved = solve(d)
+    system, x0 = transient.transient_system(solved)
+    h0 = 1.0 / (solved.f_osc * transient.STEPS_PER_CYCLE)
+    trace = integrate(system, x0, h0, 60 / solved.f_osc, transient.T1)
+    assert trace.rejected > 0 and trace.steps == len(trace.t) - 1
+    dt = np.diff(trace.t)
+    level = np.rint(np.log2(h0 / dt))
+    assert np.allclose(dt, h0 / 2**level, rtol=1e-6) and level.max() <= transient.MAX_HALVINGS
+    assert np.any(np.diff(level) < 0), "the step never grew back"
+    # every step judged (four equal intervals up to it, above the smallest step)
+    # kept its third difference within the bound of the swing before it
+    v = trace.v_out
+    scale = np.maximum.accumulate(np.maximum(np.abs(v - v[0]), transient.KICK_VOLTS))
+    for j in range(4, len(v)):
+        if level[j - 1] < transient.MAX_HALVINGS and np.all(level[j - 4 : j] == level[j - 1]):
+            err = abs(v[j] - 3 * v[j - 1] + 3 * v[j - 2] - v[j - 3]) / 12
+            assert err <= transient.LTE_TOL * scale[j - 1], j
+    tight = run(d, cycles=60)
+    assert tight.rejected_steps == trace.rejected
+    assert tight.amp_out_peak == pytest.approx(loose.amp_out_peak, rel=5e-3)
