@@ -251,8 +251,10 @@ async function recompute() {
     return;
   }
   if (!view) return;
-  // the what-if sweep first (it needs this answer's threshold), the steady state once
-  // the sweep has answered (both at once would share the server and slow the sweep)
+  // the what-if sweep once this answer has come: the server builds it while the page
+  // draws (asked beside the sheet's request it would share the server's interpreter
+  // lock with it: the sheet's answer 8-10 ms later); the steady state once the sweep
+  // has answered (both at once would share the server and slow the sweep)
   const steady = view.ok && view.result.steady_state === null;
   const afterSweep = () => steady && seq === state.mainSeq && !state.main && requestSteady(texts, seq, inputAt);
   if (view.ok) requestSweep(texts, view, inputAt, afterSweep);
