@@ -5,12 +5,17 @@ from __future__ import annotations
 
 import pytest
 
+from ringwise.analysis.spread import MAX_SAMPLES
 from tests.web.test_browser import Sheet
 
 pytestmark = pytest.mark.browser
 
-#: A spread long enough to watch and stop: some 10 s of work at full speed.
-SAMPLES = 60_000
+#: A spread long enough to watch and stop: the most samples a spread takes, on the
+#: design with the most corners (three temperatures by four tuning voltages), some
+#: 15 s of work at full speed (the clock sample's 60 000 had become 2 s, short
+#: enough to end before the Stop click on a quiet machine).
+SAMPLES = MAX_SAMPLES
+DESIGN = "varactor-lo-5M"
 BAR = "[data-job='spread'] progress"
 
 
@@ -19,7 +24,7 @@ def _progress(sheet: Sheet) -> float:
 
 
 def test_spread_shows_progress_and_stops_keeping_the_samples_done(context, live_server):
-    sheet = Sheet(context, f"{live_server}/?design=clapp-clock-1M")
+    sheet = Sheet(context, f"{live_server}/?design={DESIGN}")
     page = sheet.page
     page.fill("#spread-samples", str(SAMPLES))
     page.click("#spread-start")
