@@ -11,10 +11,13 @@ package imported once in the fork server, and running under Linux's idle
 scheduling class (``SCHED_IDLE``; elsewhere at :data:`WORKER_NICE`), so heavy
 work only gets the CPU time the light answers leave (app/web/light.py).
 
-Memory: each worker process does one piece of work and ends
-(:data:`TASKS_PER_WORKER`), so what a large spread or run allocated goes
-back to the system when it ends, whatever the allocator keeps; the next
-worker is forked from the fork server, already warm, in about 10 ms.
+Memory: a worker whose peak memory grew by more than :data:`RENEW_BYTES`
+during its work (a large spread, a long run) ends once its work is done: the
+pool it belongs to is let go and the next piece of work starts a fresh one,
+forked from the fork server, so what the big request allocated goes back to
+the system whatever the allocator keeps.  Workers that did small pieces of
+work stay, warm (a fresh process per piece of work measured about twice the
+light answers' latency in ``make load``, and four times the spread's).
 
 Admission: each kind has at most :data:`LIMITS` requests outstanding
 (running or waiting for a worker); one more is refused at once with 429
@@ -68,11 +71,12 @@ WORKERS: Final = max(1, min(4, os.cpu_count() or 1))
 #: available (POSIX ``nice``, the lowest priority): heavy work takes the CPU the
 #: light answers leave (common practice for background work, no source).
 WORKER_NICE: Final = 19
-#: Pieces of work a worker process does before it ends and a fresh one is forked
-#: in its place: one, so each heavy request's memory is returned when it ends.  (A
-#: limit above one can stall Python 3.11–3.13's pool, CPython issue gh-115634: one
-#: cannot, as every piece of work is then a worker's last.)
-TASKS_PER_WORKER: Final = 1
+#: A worker whose peak resident memory grew by more than this during its work
+#: ends after it, bytes (a 20 000-sample spread grows a worker by about 20 MB, a
+#: 100 000-sample one or a 20 000-cycle run by hundreds).  (Not the pool's
+#: ``max_tasks_per_child``: above one it can stall Python 3.11–3.13's pool,
+#: CPython issue gh-115634, and at one every piece of work pays a cold start.)
+RENEW_BYTES: Final = 64 * 2**20
 #: How worker processes start: ``forkserver`` forks them from a clean
 #: single-threaded server process that has the package imported already
 #: (``fork`` from the threaded server could copy a held lock; ``spawn``
@@ -143,6 +147,7 @@ _shared: dict[str, Any] = {}
 def _init(progress: Any, stop: Any, nice: int, server: int) -> None:
     """Worker process start: keep the shared arrays, watch the server, lower the priority."""
     _shared["progress"], _shared["stop"] = progress, stop
+    _shared["rss"] = resident()
     watch(server)
     background(nice)
 
@@ -211,9 +216,10 @@ def _call(
     kwargs: dict[str, Any],
     with_progress: bool,
     arrays: tuple[Any, Any] | None = None,
-) -> tuple[Any, bool]:
+) -> tuple[Any, bool, int]:
     """``fn(*args, **kwargs)`` in a worker (or a thread), reporting into ``slot``;
-    with whether it was asked to stop (its result is then what it had)."""
+    with whether it was asked to stop (its result is then what it had) and how
+    much the worker's peak memory has grown since it started, bytes."""
     progress_of, stop = arrays or (_shared["progress"], _shared["stop"])
     if stop[slot]:
         raise StoppedError("stopped before it began")
@@ -228,7 +234,28 @@ def _call(
     if with_progress:
         kwargs = {**kwargs, "progress": progress}
     result = fn(*args, **kwargs)
-    return result, asked
+    start = _shared.get("rss", 0) if arrays is None else 0
+    grown = peak_resident() - start if start else 0
+    return result, asked, grown
+
+
+def resident() -> int:
+    """This process's resident memory now, bytes (0 where unknown)."""
+    try:
+        with open("/proc/self/statm", encoding="ascii") as f:
+            return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
+    except (OSError, ValueError, IndexError, AttributeError):
+        return 0
+
+
+def peak_resident() -> int:
+    """This process's peak resident memory so far, bytes (0 where unknown)."""
+    try:
+        import resource
+
+        return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024  # KiB on Linux
+    except (ImportError, OSError):
+        return 0
 
 
 # ---- in the server ----------------------------------------------------------------
@@ -278,6 +305,8 @@ class Job:
     ended: float | None = None
     stop_asked: bool = False
     future: Future | None = None
+    #: The executor it runs in (let go after it if the work grew its worker).
+    executor: Executor | None = None
     #: The shared progress and stop arrays of the executor it runs in.
     arrays: tuple[Any, Any] = ((), ())
     finished: threading.Event = field(default_factory=threading.Event)
@@ -341,7 +370,6 @@ class Work:
                 mp_context=ctx,
                 initializer=_init,
                 initargs=(self._progress, self._stop, WORKER_NICE, os.getpid()),
-                max_tasks_per_child=TASKS_PER_WORKER,
             )
         else:
             self._progress = [0.0] * SLOTS
@@ -401,6 +429,7 @@ class Work:
             arrays = None if self.mode == "process" else (self._progress, self._stop)
             try:
                 job.future = self._submit(slot, fn, args, kwargs, with_progress, arrays)
+                job.executor = self._executor
                 job.arrays = (self._progress, self._stop)  # a fresh pool's, if it was made
             except RuntimeError as err:  # the executor is shutting down
                 self._outstanding[kind] -= 1
@@ -421,6 +450,16 @@ class Work:
             broken.shutdown(wait=False)  # type: ignore[union-attr]
             return self._executor.submit(_call, *call)  # type: ignore[union-attr]
 
+    def _renew(self, executor: Executor | None) -> None:
+        """Let ``executor`` go after a piece of work that grew its worker: the work it
+        still runs finishes there, its workers end, and the next piece of work
+        starts a fresh pool (module doc)."""
+        with self._lock:
+            if executor is None or executor is not self._executor:
+                return  # let go already
+            self._executor = None
+        executor.shutdown(wait=False)
+
     def _ended(self, job: Job, future: Future) -> None:
         """A piece of work ended: free its slot, keep its result or its error."""
         result: Any = None
@@ -434,7 +473,9 @@ class Work:
             else:
                 state, error = "failed", failure(err, f"the {job.kind}")
         else:
-            value, asked = future.result()
+            value, asked, grown = future.result()
+            if grown > RENEW_BYTES:
+                self._renew(job.executor)
             state = "cancelled" if asked else "done"
             try:
                 result = job.finish(value) if job.finish else value

@@ -239,21 +239,30 @@ def _allocate(megabytes: int) -> int:
     return os.getpid()
 
 
-def test_a_heavy_worker_ends_after_its_work_and_its_memory_goes_back():
-    """One piece of work per worker process (workers.TASKS_PER_WORKER): the process
-    that held a large allocation is gone when its job has ended, and the next
-    job runs in a fresh one."""
+def test_a_heavy_worker_that_grew_ends_after_its_work_and_its_memory_goes_back():
+    """A worker whose memory grew past workers.RENEW_BYTES is gone once its job has
+    ended, and the next job runs in a fresh one; one that did a small job stays."""
     work = workers.Work()
     work.start("process")
     try:
-        first = work.submit("spread", _allocate, 200, with_progress=False, keep=True)
-        assert first.finished.wait(60)
-        pid = work.get(first.id).result
+        small = work.submit("spread", _allocate, 1, with_progress=False, keep=True)
+        assert small.finished.wait(60)
+        kept = work.get(small.id).result
+        big_mb = 3 * workers.RENEW_BYTES // 2**20
+        big = work.submit("spread", _allocate, big_mb, with_progress=False, keep=True)
+        assert big.finished.wait(60)
+        pid = work.get(big.id).result
         assert pid != os.getpid()
         _until(lambda: not _alive(pid), 30)
-        second = work.submit("spread", _allocate, 1, with_progress=False, keep=True)
-        assert second.finished.wait(60)
-        assert work.get(second.id).result not in (pid, os.getpid())
+        if kept != pid:  # the small job's worker was not the one that grew
+            _until(lambda: not _alive(kept), 30)  # its pool was let go with it
+        after = work.submit("spread", _allocate, 1, with_progress=False, keep=True)
+        assert after.finished.wait(60)
+        fresh = work.get(after.id).result
+        assert fresh not in (pid, kept, os.getpid())
+        again = work.submit("spread", _allocate, 1, with_progress=False, keep=True)
+        assert again.finished.wait(60)
+        assert _alive(fresh)  # a small job does not end its worker
     finally:
         work.shutdown()
 
