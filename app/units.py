@@ -242,11 +242,57 @@ def _check_unit(text: str, given: str, expected: str) -> None:
         raise UnitError(f"{shown(text)} carries the unit {given!r}, this field is a plain number")
 
 
+#: The scale factors :func:`format_si` writes, by power of ten (quantiphy's
+#: default output set, ``u`` for micro as it writes it).
+_OUTPUT_PREFIXES: Final = {
+    12: "T", 9: "G", 6: "M", 3: "k", 0: "", -3: "m", -6: "u", -9: "n", -12: "p", -15: "f",
+    -18: "a",
+}  # fmt: skip
+
+
 def format_si(value: float | None, unit: str = "", digits: int = 4) -> str:
-    """Short engineering text for a value in SI base units (``2.2e-9, "F"`` -> ``"2.2 nF"``)."""
+    """Short engineering text for a value in SI base units (``2.2e-9, "F"`` -> ``"2.2 nF"``).
+
+    Written as quantiphy renders it (``prec=digits - 1``, zeros stripped;
+    ``tests/test_units.py`` compares the two), by string formatting where
+    that is plain — a scale factor of quantiphy's output set and a unit
+    without its tight-unit rules — and by quantiphy itself otherwise: the
+    sheet formats a few numbers per analysis, and quantiphy takes some 60 µs
+    for each.
+    """
     if value is None or not math.isfinite(value):
         return "—"
-    return Quantity(value, unit).render(prec=digits - 1, strip_zeros=True).replace(" u", " µ")
+    text = _plain_si(float(value), unit, digits)
+    if text is None:
+        text = Quantity(value, unit).render(prec=digits - 1, strip_zeros=True)
+    return text.replace(" u", " µ")
+
+
+def _plain_si(value: float, unit: str, digits: int) -> str | None:
+    """:func:`format_si`'s text before the micro sign, ``None`` where quantiphy must write it."""
+    if digits < 1 or unit[:1] in _TIGHT or (unit and not unit.isprintable()):
+        return None
+    if value == 0.0:
+        return None  # its sign is quantiphy's affair
+    mantissa, _, exp = f"{abs(value):.{digits - 1}e}".partition("e")
+    exponent = int(exp)
+    power = exponent - exponent % 3
+    figures = mantissa.replace(".", "")
+    point = 1 + exponent - power
+    if len(figures) < point:
+        figures += "0" * (point - len(figures))
+    whole, fraction = figures[:point], figures[point:].rstrip("0")
+    number = ("-" if value < 0 else "") + (f"{whole}.{fraction}" if fraction else whole)
+    prefix = _OUTPUT_PREFIXES.get(power)
+    if prefix is None:
+        return None
+    if not unit:
+        return number + prefix
+    return f"{number} {prefix}{unit}"
+
+
+#: Units quantiphy writes without the space (its ``tight_units``).
+_TIGHT: Final = frozenset(Quantity.get_pref("tight_units"))
 
 
 def format_limit(value: float, unit: str) -> str:

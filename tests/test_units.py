@@ -75,6 +75,29 @@ def test_format() -> None:
     assert format_si(math.inf, "F") == "—"
 
 
+def test_format_is_quantiphys() -> None:
+    """format_si writes what quantiphy renders (reference library: ``quantiphy``,
+    ``render(prec=digits - 1, strip_zeros=True)``, micro as µ), rounding edges,
+    every scale factor, beyond them and tight units included."""
+    import random
+
+    from quantiphy import Quantity
+
+    rng = random.Random(7)
+    values = [0.0, -0.0, 999.95, 999.949999, 999.96, 9.9995, 99.995, 1e15, 5e-324]
+    for e in range(-25, 20):
+        for m in (1.0, 9.9995, 9.99949, 9.9996, 1.00005, 5.0005, 2.5, 3.14159):
+            values += [m * 10.0**e, -m * 10.0**e]
+    for _ in range(1500):
+        values.append(rng.choice((1, -1)) * 10 ** rng.uniform(-22, 18))
+        values.append(round(rng.uniform(0, 1000), rng.randint(0, 6)) * 10.0 ** rng.randint(-20, 15))
+    for value in values:
+        for unit in ("", "F", "Ω", "°C"):
+            for digits in (1, 3, 4, 6):
+                expected = Quantity(value, unit).render(prec=digits - 1, strip_zeros=True)
+                assert format_si(value, unit, digits) == expected.replace(" u", " µ"), value
+
+
 @pytest.mark.parametrize(
     ("text", "unit", "needle"),
     [
