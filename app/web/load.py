@@ -417,9 +417,11 @@ def run(
             ),
             name="load-clients",
         )
+        client_cpu = time.process_time()
         with _Memory(server.process.pid) as sampled:
             worker.start()
             worker.join()
+            client_cpu = time.process_time() - client_cpu
     if not out:
         raise RuntimeError("the load run failed (see the traceback above)")
     figures = out[0].summary()
@@ -429,6 +431,7 @@ def run(
         figures["light_cpu_ms"] = round(1000 * sampled.cpu["light"] / answered, 1)
     if sampled.cpu and figures["requests"]:
         figures["server_cpu_ms"] = round(1000 * sampled.cpu["server"] / figures["requests"], 2)
+        figures["client_cpu_ms"] = round(1000 * client_cpu / figures["requests"], 2)
     figures["load_average"] = [load_before, _loadavg()]
     return figures
 
@@ -478,7 +481,8 @@ def report(
     if figures.get("server_cpu_ms"):
         lines.append(
             f"  server CPU    {figures['server_cpu_ms']} ms per request (answered or refused; "
-            "the server process's CPU time over the run)"
+            "the server process's CPU time over the run); the load generator's "
+            f"{figures.get('client_cpu_ms')} ms"
         )
     if figures.get("load_average"):
         start, end = figures["load_average"]
