@@ -290,12 +290,16 @@ def solve_values(
     batch: int,
     x0: np.ndarray | None = None,
     f_guess: np.ndarray | float | None = None,
+    guess_f_ideal: float | None = None,
 ) -> BatchSolution:
     """The pipeline for ``batch`` members of one structure given their part values.
 
     ``x0`` (n,) or (B, n) starts the DC Newton (default: each member's own
     initial guess); ``f_guess`` (Hz) starts the loop search (default: each
-    member's ideal resonance).
+    member's ideal resonance).  ``guess_f_ideal`` is the ideal resonance of
+    the circuit ``f_guess`` was found for: each member's search then starts
+    at ``f_guess`` moved with its own ideal resonance (a tuning sweep, whose
+    members' f_osc follow their tanks).
     """
     system = assemble_batch(patterns, stamp_values(patterns, values, batch))
     params = device_params_at(
@@ -316,6 +320,8 @@ def solve_values(
     ss = small_signal(system, hp)
     f_ideal = f_ideal_of(values, batch)
     guess = f_ideal if f_guess is None else _array(f_guess, batch)
+    if f_guess is not None and guess_f_ideal is not None:
+        guess = guess * (f_ideal / guess_f_ideal)
     loop = find_oscillation(ss, f_ideal, guess)
     if not np.all(dc.converged):
         loop = LoopFigures(

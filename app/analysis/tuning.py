@@ -102,16 +102,28 @@ def _num(x) -> float | None:
 def tuning_sweep(design: Design, start: Solved | None = None):
     """The small-signal batch over the tuning range: (V, solution); ``None`` without a varactor.
 
-    ``start`` (the design solved) warm-starts every member's DC Newton: the
-    tuning voltage hardly moves the transistor's bias.
+    ``start`` (the design solved) warm-starts every member's DC Newton (the
+    tuning voltage hardly moves the transistor's bias) and its loop search,
+    at the design's f_osc moved with the member's ideal resonance (two
+    Newton steps instead of three from the ideal resonance).
     """
     v = design.varactor
     if v is None:
         return None
     V = np.linspace(v.V_min, v.V_max, TUNING_POINTS)
     values = {**part_values(design), "V_tune": V}
-    x0 = None if start is None else start.op.x
-    sol = solve_values(patterns_of_structure(design), values, len(V), x0)
+    if start is None or start.f_osc is None:
+        x0 = None if start is None else start.op.x
+        sol = solve_values(patterns_of_structure(design), values, len(V), x0)
+    else:
+        sol = solve_values(
+            patterns_of_structure(design),
+            values,
+            len(V),
+            start.op.x,
+            start.f_osc,
+            guess_f_ideal=start.tank.f_ideal,
+        )
     return V, sol
 
 
