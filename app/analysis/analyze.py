@@ -15,7 +15,7 @@ from ringwise.analysis.output import load_output
 from ringwise.analysis.periodic import SteadyState, steady_state
 from ringwise.analysis.phase_noise import SHARE_OFFSETS, OscillatorNoise
 from ringwise.analysis.poles import natural_frequencies
-from ringwise.analysis.stability import REPORT_OFFSETS, neighbour_designs, neighbours, stability
+from ringwise.analysis.stability import REPORT_OFFSETS, neighbour_changes, neighbours, stability
 from ringwise.analysis.startup import verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
@@ -104,7 +104,7 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     budget = loop_budget(s, setter) if f_osc is not None else []
     poles = natural_frequencies(s.ss, s.tank.f_ideal, f_osc)
     # pushing and pulling ride in the threshold search's first batch
-    threshold, near_f = threshold_with_riders(design, setter, s, neighbour_designs(s))
+    threshold, near_f = threshold_with_riders(design, setter, s, neighbour_changes(s))
     v = verdict(gain, op)
     findings = rule_checks(s, budget, poles)
     findings += tank_checks(s, budget)

@@ -380,6 +380,24 @@ def stack_values(designs: Sequence[Design]) -> dict[str, np.ndarray | float | No
     return out
 
 
+def changed_values(
+    values: PartValues, changes: Sequence[Mapping[str, float | None]]
+) -> dict[str, np.ndarray | float | str | None]:
+    """Part values of ``len(changes)`` members: ``values`` with each member's
+    changes (parameter name -> value; ``None`` leaves an optional part out).
+
+    The same numbers as :func:`stack_values` of the changed designs, without
+    building and validating a design per member: a changed part is an array
+    (B,), the others stay shared.
+    """
+    out: dict[str, np.ndarray | float | str | None] = dict(values)
+    for name in dict.fromkeys(k for change in changes for k in change):
+        missing = np.inf if name in OPTIONAL_PARTS else np.nan
+        column = [change.get(name, values.get(name)) for change in changes]
+        out[name] = np.array([missing if v is None else v for v in column], dtype=float)
+    return out
+
+
 def join_values(blocks: Sequence[tuple[PartValues, int]]) -> dict[str, np.ndarray | str | None]:
     """Part values of several batches of one structure as one batch (members in order).
 

@@ -50,7 +50,12 @@ from ringwise.analysis.phase_noise import (
     oscillator_noise,
     resonator_power,
 )
-from ringwise.analysis.pipeline import solve_designs
+from ringwise.analysis.pipeline import (
+    changed_values,
+    part_values,
+    patterns_of_structure,
+    solve_values,
+)
 from ringwise.analysis.ppv import SensitivityError
 from ringwise.circuit.topologies import UNRATED_CAPACITANCES
 from ringwise.design import Design, step_within, with_param
@@ -136,28 +141,41 @@ def pushing_at_amplitude(solved: Solved) -> float | None:
     return (f[0] - f[1]) / (V_hi - V_lo)
 
 
-def _variants(solved: Solved) -> list[Design]:
-    """The designs pushing and pulling need: Vcc ± a step, then (with a load) the
-    load opened, R_load ± a step and the stated load change."""
+Changes = dict[str, float | None]
+
+
+def _variants(solved: Solved) -> list[Changes]:
+    """The designs pushing and pulling need, as changes of the solved one's part
+    values: Vcc ± a step, then (with a load) the load opened, R_load ± a step
+    and the stated load change."""
     d = solved.design
     # the steps stay inside the fields' bounds (at a bound the difference is one-sided)
-    out = [with_param(d, "Vcc", V) for V in _steps(d, "Vcc")]
+    out: list[Changes] = [{"Vcc": V} for V in _steps(d, "Vcc")]
     if d.load.R_load is not None:
-        out.append(d.model_copy(update={"load": d.load.model_copy(update={"R_load": None})}))
-        out += [with_param(d, "R_load", R) for R in _steps(d, "R_load")]
-        out.append(load_changed(d))
+        out.append({"R_load": None})
+        out += [{"R_load": R} for R in _steps(d, "R_load")]
+        out.append(load_change(d))
     return out
 
 
-def load_changed(design: Design) -> Design:
-    """``design`` with its load's resistance lowered and its capacitance raised by
-    the stated fraction ``load.change`` (a buffer that loads the tank harder)."""
+def load_change(design: Design) -> Changes:
+    """The stated load change ``load.change`` as new part values: the load's
+    resistance lowered and its capacitance raised by that fraction (a buffer
+    that loads the tank harder)."""
     load = design.load
     assert load.R_load is not None
-    changed = with_param(design, "R_load", load.R_load * (1.0 - load.change))
+    change: Changes = {"R_load": load.R_load * (1.0 - load.change)}
     if load.C_load is not None:
-        changed = with_param(changed, "C_load", load.C_load * (1.0 + load.change))
-    return changed
+        change["C_load"] = load.C_load * (1.0 + load.change)
+    return change
+
+
+def load_changed(design: Design) -> Design:
+    """``design`` with the stated load change (:func:`load_change`), validated."""
+    for name, value in load_change(design).items():
+        assert value is not None
+        design = with_param(design, name, value)
+    return design
 
 
 def _steps(d: Design, name: str) -> tuple[float, float]:
@@ -185,8 +203,9 @@ class Neighbours:
     load_change_ppm: float | None
 
 
-def neighbour_designs(solved: Solved) -> list[Design]:
-    """The designs :func:`neighbours` solves (none without a loop crossing)."""
+def neighbour_changes(solved: Solved) -> list[Changes]:
+    """The designs :func:`neighbours` solves, as changes of ``solved``'s part
+    values (none without a loop crossing)."""
     return [] if solved.f_osc is None else _variants(solved)
 
 
@@ -195,15 +214,17 @@ def neighbours(solved: Solved, f_osc: np.ndarray | None = None) -> Neighbours:
     solves (operating point re-solved), all in one batch of the pipeline;
     ``None`` where a figure does not exist.
 
-    ``f_osc`` holds the small-signal f_osc of :func:`neighbour_designs` when
+    ``f_osc`` holds the small-signal f_osc of :func:`neighbour_changes` when
     another batch already solved them (the threshold search's first one,
     warm-started from ``solved`` as here).
     """
     if solved.f_osc is None:
         return Neighbours(None, None, None, None)
     if f_osc is None:
-        designs = _variants(solved)
-        f_osc = solve_designs(designs, solved.op.x, solved.f_osc, like=solved.design).loop.f_osc
+        changes = _variants(solved)
+        values = changed_values(part_values(solved.design), changes)
+        patterns = patterns_of_structure(solved.design)
+        f_osc = solve_values(patterns, values, len(changes), solved.op.x, solved.f_osc).loop.f_osc
     f = [float(v) if np.isfinite(v) else None for v in f_osc]
     d = solved.design
     V_hi, V_lo = _steps(d, "Vcc")

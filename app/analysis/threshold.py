@@ -32,7 +32,7 @@ the crossing nearest the current value.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Final, Literal
 
@@ -42,12 +42,12 @@ from pydantic import ValidationError
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.pipeline import (
     BatchSolution,
+    changed_values,
     join_values,
     part_values,
     patterns_of_structure,
     solve_designs,
     solve_values,
-    stack_values,
 )
 from ringwise.circuit.mna import Patterns
 from ringwise.design import Design, get_param, param_limits, with_param
@@ -151,8 +151,9 @@ class _Trials:
     f_guess: float | None
     #: Designs of the same structure solved in the first batch alongside the
     #: trials (another analysis's members riding along: one pipeline call
-    #: fewer); their f_osc is :attr:`rider_f_osc` (NaN where none).
-    riders: Sequence[Design] = ()
+    #: fewer), as changes of the design's part values; their f_osc is
+    #: :attr:`rider_f_osc` (NaN where none).
+    riders: Sequence[Mapping[str, float | None]] = ()
     rider_f_osc: np.ndarray | None = field(init=False, default=None)
     parts: dict = field(init=False)
     patterns: Patterns = field(init=False)
@@ -193,7 +194,8 @@ class _Trials:
         m = values.size
         if self.riders and self.rider_f_osc is None:
             riders = len(self.riders)
-            joined = join_values([(parts, m), (stack_values(self.riders), riders)])
+            rider_values = changed_values(self.parts, self.riders)
+            joined = join_values([(parts, m), (rider_values, riders)])
             sol = solve_values(self.patterns, joined, m + riders, self.x0, self.f_guess)
             self.rider_f_osc = np.where(sol.converged[m:], sol.loop.f_osc[m:], np.nan)
         else:
@@ -217,10 +219,15 @@ def find_threshold(design: Design, param: str, start: Solved | None = None) -> T
 
 
 def threshold_with_riders(
-    design: Design, param: str, start: Solved | None = None, riders: Sequence[Design] = ()
+    design: Design,
+    param: str,
+    start: Solved | None = None,
+    riders: Sequence[Mapping[str, float | None]] = (),
 ) -> tuple[Threshold, np.ndarray | None]:
-    """:func:`find_threshold`, with ``riders`` (designs of the same structure)
-    solved in the search's first batch, warm-started as its trials are.
+    """:func:`find_threshold`, with ``riders`` (designs of the same structure, as
+    changes of ``design``'s part values: parameter name -> value, ``None`` an
+    optional part left out) solved in the search's first batch, warm-started
+    as its trials are.
 
     Returns the threshold and the riders' f_osc (Hz, NaN where none), or
     ``None`` when the search needed no batch (the riders are then the
