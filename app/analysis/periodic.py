@@ -39,9 +39,11 @@ from ringwise.analysis.steady import (
     Orbit,
     ShootingError,
     _trajectory,
+    neighbour_period,
     shoot,
     steps_needed,
     uniform_grid,
+    unwarped_frequency,
     warped_period,
 )
 from ringwise.analysis.stepper import Dynamics, _Stepper, circuit_dynamics
@@ -180,6 +182,28 @@ def steady_state(solved: Solved, warm: bool = True) -> SteadyState:
                 _warm.pop(next(iter(_warm)))
             _warm[key] = (orbit.x[0].copy(), orbit.T, solved.op.x.copy(), orbit.N)
     return _figures(solved, system, dyn, orbit, scale, floating)
+
+
+def neighbour_frequency(ss: SteadyState, solved: Solved, near: Solved) -> float | None:
+    """The steady-state frequency of ``near`` (``solved`` with a part moved a little),
+    to first order in the move, from ``ss`` (``solved``'s steady state): one period
+    of the neighbour and one bordered solve (:func:`steady.neighbour_period`),
+    not a shooting of its own.  ``None`` without an orbit, or when the neighbour
+    does not start or its period cannot be stepped."""
+    if ss.orbit is None or near.op.region.value != "active" or near.f_osc is None:
+        return None
+    system, _x_kick = transient_system(near)
+    if _layout_key(system) != _layout_key(solved.system):
+        raise ValueError("a neighbour must have the same circuit layout")
+    dyn = circuit_dynamics(system)
+    start = ss.orbit.x[0] + (near.op.x - solved.op.x)
+    try:
+        T = neighbour_period(
+            ss.orbit, dyn, start, _scale(system, near), floating_groups(system, near.op.x)
+        )
+    except ArithmeticError:  # ShootingError, or a step's overflow
+        return None
+    return unwarped_frequency(T, ss.orbit.dtau)
 
 
 def _scale(system: LinearSystem, solved: Solved) -> np.ndarray:

@@ -316,6 +316,80 @@ def _linearisation_steps(stepper: _Stepper, hs: np.ndarray, X: np.ndarray, J: np
     return S, g, prod[0][:n, :n], prod[0][:n, n]
 
 
+def _bordered(
+    monodromy: np.ndarray,
+    dxdT_T: np.ndarray,
+    flow: np.ndarray,
+    T: float,
+    w: np.ndarray,
+    U: np.ndarray,
+) -> np.ndarray:
+    """The shooting Newton matrix, scaled, bordered by the phase condition and
+    the floating groups: unknowns (w·δx, δT/T, the floating multipliers).
+
+    ``monodromy`` and ``dxdT_T`` (∂x_N/∂T·T) are on the dynamic unknowns,
+    ``flow`` the flow at the start, ``T`` the period, ``w`` their weights and ``U``
+    the floating groups' indicator columns (m, p).
+    """
+    m, p = len(w), U.shape[1]
+    A = np.zeros((m + 1 + p, m + 1 + p))
+    A[:m, :m] = (w[:, None] * (monodromy - np.eye(m))) / w[None, :]
+    A[:m, m] = w * dxdT_T
+    A[m, :m] = w * flow * T
+    A[:m, m + 1 :] = w[:, None] * U
+    A[m + 1 :, :m] = U.T / w[None, :]
+    return A
+
+
+def _bordered_solve(A: np.ndarray, r_w: np.ndarray) -> tuple[np.ndarray, tuple]:
+    """Newton's step of the bordered system for a scaled mismatch ``r_w`` (w·r),
+    and the factors of ``A`` (for simplified steps with the same matrix)."""
+    rhs = np.zeros(len(A))
+    rhs[: len(r_w)] = -r_w
+    try:
+        lu = scipy.linalg.lu_factor(A, check_finite=False)
+    except (np.linalg.LinAlgError, ValueError) as err_:
+        raise ShootingError("the shooting matrix is singular") from err_
+    step = scipy.linalg.lu_solve(lu, rhs, check_finite=False)
+    if not np.all(np.isfinite(step)):
+        raise ShootingError("the shooting matrix is singular")
+    return step, lu
+
+
+def neighbour_period(
+    orbit: Orbit,
+    dyn: Dynamics,
+    x_start: np.ndarray,
+    scale: np.ndarray,
+    floating: np.ndarray | None = None,
+) -> float:
+    """The period of a circuit next to ``orbit``'s (a part moved a little), to first
+    order in the move: one period of the neighbour's dynamics from ``x_start``
+    (the orbit's start moved by the change of the DC point) on the orbit's grid,
+    and one Newton step with the orbit's own bordered matrix.
+
+    At a converged orbit this is the implicit function theorem: the step is
+    −A⁻¹·∂r/∂p·δp plus terms of second order in δp, so a central difference of
+    two neighbours gives dT/dp with an error of second order (sensitivity of a
+    periodic orbit through its shooting Jacobian; Aprille & Trick 1972, and the
+    parameter sensitivity of shooting methods generally, from memory).  Raises
+    :class:`ShootingError` when the neighbour's period cannot be stepped.
+    """
+    dyn_idx = orbit.dynamic
+    w = scale[dyn_idx]
+    U = np.zeros((len(dyn_idx), 0)) if floating is None else floating[dyn_idx]
+    T, dtau = orbit.T, orbit.dtau
+    traj = _trajectory(_Stepper(dyn), x_start, T * dtau)
+    if traj is None:
+        raise ShootingError("a trapezoidal step failed on the neighbour's period")
+    r = (traj[0][-1] - x_start)[dyn_idx]
+    hs0, hsN = T * dtau[0], T * dtau[-1]
+    flow = (orbit.x[1] - orbit.x[-2])[dyn_idx] / (hs0 + hsN)
+    A = _bordered(orbit.monodromy, orbit.dxdT[dyn_idx] * T, flow, T, w, U)
+    step, _lu = _bordered_solve(A, r * w)
+    return T * (1.0 + float(step[len(dyn_idx)]))
+
+
 def shoot(
     dyn: Dynamics,
     x0: np.ndarray,
@@ -368,21 +442,8 @@ def shoot(
         r = (X[-1] - X[0])[dyn_idx]
         # flow at the start: central difference across the periodic end
         f0 = (X[1] - X[-2])[dyn_idx] / (hs[0] + hs[-1])
-        # scaled bordered system in (w·δx, δT/T, floating multipliers)
-        A = np.zeros((m + 1 + p, m + 1 + p))
-        A[:m, :m] = (w[:, None] * (Phi[np.ix_(dyn_idx, dyn_idx)] - np.eye(m))) / w[None, :]
-        A[:m, m] = w * dxdT_T[dyn_idx]
-        A[m, :m] = w * f0 * T
-        A[:m, m + 1 :] = w[:, None] * U
-        A[m + 1 :, :m] = U.T / w[None, :]
-        rhs = np.concatenate((-w * r, np.zeros(1 + p)))
-        try:
-            lu = scipy.linalg.lu_factor(A, check_finite=False)
-        except (np.linalg.LinAlgError, ValueError) as err_:
-            raise ShootingError("the shooting matrix is singular") from err_
-        step = scipy.linalg.lu_solve(lu, rhs, check_finite=False)
-        if not np.all(np.isfinite(step)):
-            raise ShootingError("the shooting matrix is singular")
+        A = _bordered(Phi[np.ix_(dyn_idx, dyn_idx)], dxdT_T[dyn_idx], f0, T, w, U)
+        step, lu = _bordered_solve(A, r * w)
         dT = step[m] * T
         limit = MAX_PERIOD_STEP * T
         if abs(dT) > limit:
