@@ -56,6 +56,10 @@ ASSET_SUFFIXES: Final = frozenset({".js", ".css", ".svg"})
 #: Answers smaller than this, bytes, are sent uncompressed (gzip's header and
 #: the work outweigh the saving; Starlette's default, common practice).
 GZIP_MIN_BYTES: Final = 500
+#: gzip's level: the fastest.  The answers cross the loopback, where bytes cost
+#: nothing, and are compressed on the event loop: a 26 kB analysis 0.16 ms at
+#: level 1 against 0.70 ms at 9 (Starlette's default) for 5 % more bytes.
+GZIP_LEVEL: Final = 1
 
 
 class AssetFiles(StaticFiles):
@@ -203,7 +207,7 @@ def create_app(
     # "/x/" is not redirected to "/x": such a redirect is an absolute URL built from the Host
     app.router.redirect_slashes = False
     # text answers (plotly.js is 4.8 MB, a third of that gzipped) compressed when asked for
-    app.add_middleware(GZipMiddleware, minimum_size=GZIP_MIN_BYTES)
+    app.add_middleware(GZipMiddleware, minimum_size=GZIP_MIN_BYTES, compresslevel=GZIP_LEVEL)
 
     @app.middleware("http")
     async def headers(
