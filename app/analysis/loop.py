@@ -256,17 +256,21 @@ def refine_crossing(
                 (size <= ACCEPT_RTOL * f) | ((size <= NOISE_RTOL * f) & (size >= 0.5 * prev_step))
             )
             go = ok & ~conv
-            if conv.any():
+            settled, moving = np.count_nonzero(conv), np.count_nonzero(go)
+            if settled == B:
+                # every member at once (the usual case): the arrays as they are
+                out_f, out_dT, out_x = f_new, dT_ds, x
+                out_T = T + dT_ds * ((TWO_PI * 1j) * step)
+                break
+            if settled:
                 k = conv if idx is None else idx[conv]
                 out_f[k] = f_new[conv]
                 out_T[k] = T[conv] + dT_ds[conv] * ((TWO_PI * 1j) * step[conv])
                 out_dT[k] = dT_ds[conv]
                 out_x[k] = x[conv]
-                if not go.any():
-                    break
-            elif not go.any():
+            if not moving:
                 break
-            if not go.all():
+            if moving < go.size:
                 idx = np.flatnonzero(go) if idx is None else idx[go]
                 f_new, f_lo, f_hi, size = f_new[go], f_lo[go], f_hi[go], size[go]
                 sub = _members(sub, go)
