@@ -50,8 +50,20 @@ from ringwise.web.workers import INLINE, PRELOAD, START_METHOD, failure, fork_se
 
 log = logging.getLogger("ringwise.web")
 
+
+def _start(server: int) -> None:
+    """Light worker process start: watch the server, yield to its event loop."""
+    watch(server)
+    with contextlib.suppress(OSError):
+        os.nice(LIGHT_NICE)
+
+
 #: Light worker processes: one per core, at most four.
 LIGHT_WORKERS: Final = max(1, min(4, os.cpu_count() or 1))
+#: Niceness added to the light workers: the server's event loop, which admits,
+#: refuses and answers, wakes ahead of them when the cores are full, so a refusal
+#: stays immediate under a flood (the heavy workers sit lower still, idle class).
+LIGHT_NICE: Final = 2
 #: CPU time of one light answer, s: a full analysis of a sample design not seen
 #: before, measured on the 2-core development machine (40–60 ms; ``make load``).
 ANSWER_S: Final = 0.06
@@ -207,7 +219,7 @@ class Light:
             if START_METHOD == "forkserver":
                 ctx.set_forkserver_preload(list(PRELOAD))
             return ProcessPoolExecutor(
-                self.workers, mp_context=ctx, initializer=watch, initargs=(os.getpid(),)
+                self.workers, mp_context=ctx, initializer=_start, initargs=(os.getpid(),)
             )
         return ThreadPoolExecutor(self.workers, thread_name_prefix="ringwise-light")
 

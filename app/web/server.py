@@ -60,6 +60,10 @@ GZIP_MIN_BYTES: Final = 500
 #: nothing, and are compressed on the event loop: a 26 kB analysis 0.16 ms at
 #: level 1 against 0.70 ms at 9 (Starlette's default) for 5 % more bytes.
 GZIP_LEVEL: Final = 1
+#: An idle kept-alive connection is closed after this long, s: longer than any
+#: Retry-After we send (uvicorn's 5 s equals the heavy refusals' 5 s, so a client
+#: coming back on time raced the close and read a dropped connection).
+KEEP_ALIVE_S: Final = 15
 
 
 class AssetFiles(StaticFiles):
@@ -272,4 +276,4 @@ def serve(
             "the sheet has no authentication.",
             file=sys.stderr,
         )
-    uvicorn.run(app, host=host, port=port, log_level="warning")
+    uvicorn.run(app, host=host, port=port, log_level="warning", timeout_keep_alive=KEEP_ALIVE_S)

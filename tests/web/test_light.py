@@ -77,6 +77,22 @@ def test_light_work_runs_in_worker_processes_and_answers_json():
         pool.shutdown()
 
 
+def _niceness() -> int:
+    return os.getpriority(os.PRIO_PROCESS, 0)
+
+
+def test_light_workers_yield_to_the_server_s_event_loop():
+    """The light workers run LIGHT_NICE below the server, so the event loop that admits
+    and refuses wakes first when the cores are full."""
+    pool = light.Light()
+    pool.start("process")
+    try:
+        nice = json.loads(asyncio.run(pool.json(_niceness)).body)
+        assert nice == min(19, _niceness() + light.LIGHT_NICE)
+    finally:
+        pool.shutdown()
+
+
 def test_twenty_people_editing_at_once_are_not_refused(live_server, sample):
     """The goal scenario of ``make load`` (20 people editing) is normal use: 20
     analyses of designs not seen before sent at the same moment are all

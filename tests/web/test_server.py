@@ -6,6 +6,7 @@ import re
 
 import pytest
 
+from ringwise.web import light, server, workers
 from ringwise.web.assets import plotly_js, static_url
 from ringwise.web.server import _is_loopback, create_app
 
@@ -78,15 +79,23 @@ def test_loopback(host, loopback):
 def test_serve_warns_when_exposed(monkeypatch, capsys):
     import uvicorn
 
-    from ringwise.web import server
-
     calls = []
     monkeypatch.setattr(uvicorn, "run", lambda app, **kw: calls.append(kw))
     server.serve(host="0.0.0.0", port=8123, design="clapp-clock-1M")
     out = capsys.readouterr()
     assert "http://0.0.0.0:8123/" in out.out
     assert "no authentication" in out.err
-    assert calls == [{"host": "0.0.0.0", "port": 8123, "log_level": "warning"}]
+    assert calls == [
+        {
+            "host": "0.0.0.0",
+            "port": 8123,
+            "log_level": "warning",
+            "timeout_keep_alive": server.KEEP_ALIVE_S,
+        }
+    ]
+    # kept-alive connections outlive every Retry-After we send (a client coming back
+    # on time must not race the close)
+    assert max(workers.RETRY_AFTER_S, light.RETRY_AFTER_S) < server.KEEP_ALIVE_S
     server.serve(host="127.0.0.1", port=8124)
     assert "no authentication" not in capsys.readouterr().err
 
