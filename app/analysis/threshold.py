@@ -260,6 +260,11 @@ def _search(trials: _Trials, value: float, start: Solved | None) -> Threshold:
     # lossless circuit): usually they bracket the crossing, one small batch.
     guess = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
     around = guess + GUESS_SPACING * np.arange(-GUESS_HALF, GUESS_HALF + 1)
+    # and two round where it would be if the gain went as the value's square root
+    # (an emitter follower's load: its threshold twice as far in ln value), so
+    # that one batch brackets exponents from 1/2 to 1 and beyond
+    half = x0 - max(-2.0 * MAX_STEP, min(2.0 * MAX_STEP, 2.0 * g0))
+    around = np.union1d(around, half + GUESS_SPACING * np.array([-1.0, 1.0]))
     centre = int(np.searchsorted(around, x0))
     xs = np.insert(around, centre, x0)
     gs = np.insert(trials.log_gain(around), centre, g0)
