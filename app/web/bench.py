@@ -2,8 +2,9 @@
 
 :func:`bench_web` measures
 
-- the median server time of ``POST /api/analyze`` over the sample designs
-  (in process, FastAPI's TestClient; target 10 ms), and
+- the median server time of ``POST /api/analyze`` over the sample designs,
+  each request a design not seen before (C2 nudged), small-signal and steady
+  state (in process, FastAPI's TestClient, the light workers computing), and
 - when Chromium is installed, in headless Chromium at 1440 × 1200 px
   (the verdict and the loop and what-if plots on screen):
 
@@ -51,9 +52,9 @@ import threading
 import time
 from typing import Final
 
+from ringwise.units import parse_quantity
 from ringwise.web.paths import SAMPLES_DIR
 
-ANALYZE_TARGET_S: Final = 0.010
 EDIT_TARGET_S: Final = 0.150
 EDIT_AIM_S: Final = 0.100
 WHAT_IF_TARGET_S: Final = 0.250
@@ -136,10 +137,14 @@ def _api_median() -> float:
     with TestClient(create_app(), base_url="http://127.0.0.1") as client:
         for doc in docs:
             client.post("/api/analyze", json=doc)  # warm up
-            for _ in range(ANALYZE_REPEATS):
-                forget()  # measure the analysis, not the memory of it
+            C2 = parse_quantity(doc["tank"]["C2"], "F")
+            for i in range(ANALYZE_REPEATS):
+                # a design not seen before each time: the analysis, not the memory of
+                # it (the light workers keep their own, which forget() here can't clear)
+                forget()
+                edited = {**doc, "tank": {**doc["tank"], "C2": C2 * (1.0 + 1e-4 * (i + 1))}}
                 t0 = time.perf_counter()
-                client.post("/api/analyze", json=doc).raise_for_status()
+                client.post("/api/analyze", json=edited).raise_for_status()
                 times.append(time.perf_counter() - t0)
     return statistics.median(times)
 
@@ -373,7 +378,12 @@ def _line(label: str, value: float, target: float, extra: str = "") -> str:
 
 def bench_web() -> list[str]:
     """The web speed figures as printed lines (see the module docstring)."""
-    lines = ["web layer:", _line("POST /api/analyze, median", _api_median(), ANALYZE_TARGET_S)]
+    lines = [
+        "web layer:",
+        f"  {'POST /api/analyze, median (with its steady state)':<44} "
+        f"{_api_median() * 1e3:8.1f} ms  (no target of its own: the small-signal core's "
+        "is above, the server's under load in make load)",
+    ]
     if shutil.which("chromium") is None:
         return [*lines, "  browser: skipped (apt-get install chromium)"]
     b = _browser()
