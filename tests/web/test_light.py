@@ -7,6 +7,7 @@ import json
 import os
 import threading
 import time
+from concurrent.futures import ThreadPoolExecutor
 
 import httpx2 as httpx
 import pytest
@@ -60,17 +61,24 @@ def _fails() -> None:
     raise ValueError("the DC solve does not converge")
 
 
+def _run(coroutine):
+    """``coroutine`` run to its end on an event loop of its own, in a thread of its own:
+    the browser tests' sync Playwright keeps a loop running in the main thread."""
+    with ThreadPoolExecutor(1) as thread:
+        return thread.submit(asyncio.run, coroutine).result()
+
+
 def test_light_work_runs_in_worker_processes_and_answers_json():
     pool = light.Light()
     pool.start("process")
     try:
-        answer = asyncio.run(pool.json(os.getpid))
+        answer = _run(pool.json(os.getpid))
         assert answer.media_type == "application/json"
         pid = json.loads(answer.body)
         assert pid != os.getpid()
         # a domain error of the core comes back as the API's 422, naming the design
         with pytest.raises(ApiError) as refused:
-            asyncio.run(pool.json(_fails))
+            _run(pool.json(_fails))
         assert refused.value.status == 422
         assert refused.value.problems[0]["field"] == "design"
     finally:
@@ -87,7 +95,7 @@ def test_light_workers_yield_to_the_server_s_event_loop():
     pool = light.Light()
     pool.start("process")
     try:
-        nice = json.loads(asyncio.run(pool.json(_niceness)).body)
+        nice = json.loads(_run(pool.json(_niceness)).body)
         assert nice == min(19, _niceness() + light.LIGHT_NICE)
     finally:
         pool.shutdown()
