@@ -183,14 +183,6 @@ def load_change(design: Design) -> Changes:
     return change
 
 
-def load_changed(design: Design) -> Design:
-    """``design`` with the stated load change (:func:`load_change`), validated."""
-    for name, value in load_change(design).items():
-        assert value is not None
-        design = with_param(design, name, value)
-    return design
-
-
 def _steps(d: Design, name: str, fraction: float | None = None) -> tuple[float, float]:
     """The two values of ``name`` a central difference uses, inside the field's bounds
     (``fraction`` of the value apart from it; by default PUSH_STEP or PULL_STEP)."""
