@@ -7,10 +7,12 @@ import math
 import threading
 from typing import Any, Final
 
+import numpy as np
+
 from ringwise.analysis.budget import loop_budget
 from ringwise.analysis.checks import Finding, choke_checks, rule_checks, steady_checks
 from ringwise.analysis.crystal import crystal_checks, crystal_figures
-from ringwise.analysis.operating import solve
+from ringwise.analysis.operating import solve_with
 from ringwise.analysis.output import load_output
 from ringwise.analysis.periodic import SteadyState, steady_state
 from ringwise.analysis.phase_noise import SHARE_OFFSETS, OscillatorNoise
@@ -19,8 +21,8 @@ from ringwise.analysis.stability import REPORT_OFFSETS, neighbour_changes, neigh
 from ringwise.analysis.startup import verdict
 from ringwise.analysis.story import gain_story
 from ringwise.analysis.tankchecks import tank_checks
-from ringwise.analysis.threshold import threshold_with_riders
-from ringwise.analysis.tuning import tuning, tuning_checks
+from ringwise.analysis.threshold import probe_changes, threshold_with_riders
+from ringwise.analysis.tuning import tuning, tuning_changes, tuning_checks
 from ringwise.analysis.verdict import combined_verdict
 from ringwise.circuit.topologies import OUTPUT_NODE_LABEL, T1, gain_setter, hand_formula
 from ringwise.design import Design
@@ -96,15 +98,28 @@ def _analyze_json(design_json: str, large_signal: bool) -> Result:
 
 
 def _analyze(design: Design, large_signal: bool = True) -> Result:
-    s = solve(design)
+    setter = gain_setter(design)
+    # the gain setter's two probes ride in the design's own solve (they place
+    # the threshold search's first batch) ...
+    s, probed = solve_with(design, probe_changes(design, setter))
+    probes = probed.gain[1:].tolist() if probed.gain.size == 3 else None
     op, hp = s.op, s.hybrid
     f_osc = s.f_osc
     gain = s.gain if f_osc is not None else None
-    setter = gain_setter(design)
     budget = loop_budget(s, setter) if f_osc is not None else []
     poles = natural_frequencies(s.ss, s.tank.f_ideal, f_osc)
-    # pushing and pulling ride in the threshold search's first batch
-    threshold, near_f = threshold_with_riders(design, setter, s, neighbour_changes(s))
+    # ... pushing, pulling and the tuning range in that search's first batch
+    near_changes = neighbour_changes(s)
+    swept = tuning_changes(design, s)
+    tune_changes, tune_guess = swept if swept is not None else ([], None)
+    guess = None
+    if tune_guess is not None and s.f_osc is not None:
+        guess = np.concatenate([np.full(len(near_changes), s.f_osc), tune_guess])
+    threshold, ridden = threshold_with_riders(
+        design, setter, s, near_changes + tune_changes, guess, probes
+    )
+    near_f = None if ridden is None else ridden.f_osc[: len(near_changes)]
+    tune_figures = None if ridden is None or not tune_changes else ridden.part(len(near_changes))
     v = verdict(gain, op)
     findings = rule_checks(s, budget, poles)
     findings += tank_checks(s, budget)
@@ -122,7 +137,7 @@ def _analyze(design: Design, large_signal: bool = True) -> Result:
     output = load_output(s, ss, near)
     crystal = crystal_figures(s, ss, poles)
     findings += crystal_checks(crystal)
-    tuned = tuning(design, large_signal, start=s)
+    tuned = tuning(design, large_signal, start=s, swept=tune_figures)
     findings += tuning_checks(tuned)
     story = gain_story(hand, s, budget, setter) if gain is not None else None
     return Result(

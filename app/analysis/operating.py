@@ -8,13 +8,22 @@ of one, with the member's figures unpacked as plain numbers.
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
 from ringwise.analysis.dc import DCConvergenceError, OperatingPoint, operating_point_from
 from ringwise.analysis.loop import LoopFigures
-from ringwise.analysis.pipeline import BatchSolution, solve_designs
+from ringwise.analysis.pipeline import (
+    BatchSolution,
+    changed_values,
+    join_values,
+    part_values,
+    patterns_of_structure,
+    solve_designs,
+    solve_values,
+)
 from ringwise.circuit.mna import LinearSystem, SmallSignal
 from ringwise.circuit.netlist import NPN, Netlist, NPNParams
 from ringwise.circuit.npn import HybridPi, JunctionState
@@ -115,3 +124,24 @@ def solve(design: Design, x0: np.ndarray | None = None, f_guess: float | None = 
     if x0 is not None and not sol.converged[0]:
         sol = solve_designs([design])
     return member(sol, 0, design, netlist)
+
+
+def solve_with(
+    design: Design, changes: Sequence[Mapping[str, float | None]]
+) -> tuple[Solved, BatchSolution]:
+    """:func:`solve`, with designs of the same structure (``changes`` of its part
+    values) solved in the same batch as members 1 … (the design itself is
+    member 0: its figures are those of :func:`solve`).
+
+    Raises
+    ------
+    DCConvergenceError
+        If the design's own DC solve did not converge.
+    """
+    if not changes:
+        sol = solve_designs([design])
+    else:
+        values = part_values(design)
+        joined = join_values([(values, 1), (changed_values(values, changes), len(changes))])
+        sol = solve_values(patterns_of_structure(design), joined, 1 + len(changes))
+    return member(sol, 0, design), sol

@@ -284,6 +284,26 @@ class BatchSolution:
         return starts(self.gain, self.active)
 
 
+@dataclass(frozen=True)
+class MemberFigures:
+    """What a few members of a batch tell another analysis, arrays (members,):
+    f_osc (Hz, NaN where no crossing or no DC point), the loop gain (0 there)
+    and whether each starts."""
+
+    f_osc: np.ndarray
+    gain: np.ndarray
+    starts: np.ndarray
+
+    @classmethod
+    def of(cls, sol: BatchSolution, first: int = 0) -> MemberFigures:
+        """Members ``first`` … of ``sol``."""
+        return cls(sol.loop.f_osc[first:], sol.gain[first:], sol.starts[first:])
+
+    def part(self, first: int) -> MemberFigures:
+        """Members ``first`` … of these."""
+        return MemberFigures(self.f_osc[first:], self.gain[first:], self.starts[first:])
+
+
 def solve_values(
     patterns: Patterns,
     values: PartValues,

@@ -12,6 +12,11 @@ as a power law, and every step is one batch of the pipeline
 1. a grid of :data:`SCAN_PER_DECADE` points per decade over
    value / :data:`SEARCH_RANGE` … value · :data:`SEARCH_RANGE`, all full
    solves in one batch, brackets the crossings of ln(gain) = 0;
+   When the design's own solve also solved the part at value·e^{±PROBE_STEP}
+   (:func:`probe_changes`), the first batch is instead
+   :data:`PROBE_POINTS` points round the root of the quadratic through
+   those three (:func:`_probe_guess`): a tighter batch, near the root where
+   the loop has its crossing, that usually brackets it;
 2. the chosen bracket is polished by batched interpolation: each round
    solves an estimate (Newton's step on the parabola through the last three
    points, else regula falsi) and four points beside it, and keeps the
@@ -42,6 +47,7 @@ from pydantic import ValidationError
 from ringwise.analysis.operating import Solved
 from ringwise.analysis.pipeline import (
     BatchSolution,
+    MemberFigures,
     changed_values,
     join_values,
     part_values,
@@ -57,6 +63,25 @@ from ringwise.errors import DesignError
 SEARCH_RANGE: Final = 1e4
 #: |ln gain| below this counts as exactly at threshold (gain within 1e-6).
 LOG_GAIN_TOL: Final = 1e-6
+#: The design's solve also solves the part at value·e^{±PROBE_STEP} (ln value):
+#: the slope and curvature of ln(gain) there place the first batch.
+PROBE_STEP: Final = 0.01
+#: The probes' first batch: its points sit at the quadratic's root plus these
+#: multiples of the spread (:func:`_probe_guess`) ...
+PROBE_POINTS: Final = (-1.0, -0.5, 0.0, 0.5, 1.0)
+#: ... the spread being this multiple of the quadratic term's share of the
+#: step (the root of the tangent minus that of the quadratic; measured on the
+#: samples' six parts with a threshold, the quadratic's root lay within 0.2
+#: to 0.6 of it from the true one) ...
+PROBE_SPREAD: Final = 0.75
+#: ... and at least this (ln value) ...
+PROBE_SPREAD_MIN: Final = 0.02
+#: ... used only where the tangent's root is within this reach (ln value, two
+#: decades) and the quadratic moves it by at most this fraction of it: a gain
+#: far from its maximum, where the nearest crossing on the trend's side is the
+#: one the quadratic points to.
+PROBE_REACH: Final = 2.0 * math.log(10.0)
+PROBE_BEND: Final = 0.5
 #: Points per decade of the bracketing grid (one pipeline batch).
 SCAN_PER_DECADE: Final = 6
 #: A side of the range is scanned this many grid points at a time from the
@@ -151,10 +176,12 @@ class _Trials:
     f_guess: float | None
     #: Designs of the same structure solved in the first batch alongside the
     #: trials (another analysis's members riding along: one pipeline call
-    #: fewer), as changes of the design's part values; their f_osc is
-    #: :attr:`rider_f_osc` (NaN where none).
+    #: fewer), as changes of the design's part values; their figures are
+    #: :attr:`ridden` once solved.
     riders: Sequence[Mapping[str, float | None]] = ()
-    rider_f_osc: np.ndarray | None = field(init=False, default=None)
+    #: the riders' own loop-search starts (Hz), default ``f_guess``
+    rider_guess: np.ndarray | None = None
+    ridden: MemberFigures | None = field(init=False, default=None)
     parts: dict = field(init=False)
     patterns: Patterns = field(init=False)
     limits: tuple[float, float] = field(init=False)
@@ -192,12 +219,15 @@ class _Trials:
         parts = dict(self.parts)
         parts[self.param] = np.where(allowed, values, parts[self.param])
         m = values.size
-        if self.riders and self.rider_f_osc is None:
+        if self.riders and self.ridden is None:
             riders = len(self.riders)
             rider_values = changed_values(self.parts, self.riders)
             joined = join_values([(parts, m), (rider_values, riders)])
-            sol = solve_values(self.patterns, joined, m + riders, self.x0, self.f_guess)
-            self.rider_f_osc = np.where(sol.converged[m:], sol.loop.f_osc[m:], np.nan)
+            guess = self.f_guess
+            if self.rider_guess is not None and guess is not None:
+                guess = np.concatenate([np.full(m, guess), self.rider_guess])
+            sol = solve_values(self.patterns, joined, m + riders, self.x0, guess)
+            self.ridden = MemberFigures.of(sol, m)
         else:
             sol = solve_values(self.patterns, parts, m, self.x0, self.f_guess)
         self.last = sol
@@ -223,15 +253,18 @@ def threshold_with_riders(
     param: str,
     start: Solved | None = None,
     riders: Sequence[Mapping[str, float | None]] = (),
-) -> tuple[Threshold, np.ndarray | None]:
+    rider_guess: np.ndarray | None = None,
+    probes: Sequence[float] | None = None,
+) -> tuple[Threshold, MemberFigures | None]:
     """:func:`find_threshold`, with ``riders`` (designs of the same structure, as
     changes of ``design``'s part values: parameter name -> value, ``None`` an
     optional part left out) solved in the search's first batch, warm-started
-    as its trials are.
+    as its trials are (their loop searches from ``rider_guess``, Hz, when
+    given).  ``probes`` are the loop gains of :func:`probe_changes`, solved
+    with ``start``: they place the first batch.
 
-    Returns the threshold and the riders' f_osc (Hz, NaN where none), or
-    ``None`` when the search needed no batch (the riders are then the
-    caller's to solve).
+    Returns the threshold and the riders' figures, or ``None`` when the
+    search needed no batch (the riders are then the caller's to solve).
     """
     value = _check_param(design, param)
     if start is not None and abs(_ln(start.gain)) <= LOG_GAIN_TOL:
@@ -242,11 +275,56 @@ def threshold_with_riders(
         None if start is None else start.op.x,
         None if start is None else start.f_osc,
         tuple(riders),
+        rider_guess,
     )
-    return _search(trials, value, start), trials.rider_f_osc
+    return _search(trials, value, start, probes), trials.ridden
 
 
-def _search(trials: _Trials, value: float, start: Solved | None) -> Threshold:
+def probe_changes(design: Design, param: str) -> list[dict[str, float]]:
+    """The two probes of ``param`` the design's solve may carry (value·e^{∓PROBE_STEP}),
+    as changes of its part values; none for a linear parameter or one at its bounds."""
+    value = get_param(design, param)
+    if value is None or param in LINEAR_PARAMS:
+        return []
+    lo, hi = param_limits(param)
+    probes = [value * math.exp(-PROBE_STEP), value * math.exp(PROBE_STEP)]
+    return [{param: v} for v in probes] if lo <= probes[0] and probes[1] <= hi else []
+
+
+def _probe_guess(g0: float, probes: Sequence[float] | None) -> tuple[float, float] | None:
+    """Where the probes put the root, as (step from the current value, spread), ln value.
+
+    The quadratic through ln gain at the current value and the two probes;
+    its root nearest the tangent's, the spread :data:`PROBE_SPREAD` times
+    their distance.  ``None`` when the probes are missing or without a loop,
+    or the gain is too flat or too bent there (:data:`PROBE_REACH`,
+    :data:`PROBE_BEND`).
+    """
+    if probes is None or len(probes) != 2 or not all(g > 0 for g in probes):
+        return None
+    g_lo, g_hi = (math.log(g) for g in probes)
+    h = PROBE_STEP
+    slope = (g_hi - g_lo) / (2.0 * h)
+    curv = (g_hi - 2.0 * g0 + g_lo) / (h * h)
+    if not (math.isfinite(slope) and math.isfinite(curv)) or slope == 0.0:
+        return None
+    tangent = -g0 / slope
+    if abs(tangent) > PROBE_REACH:
+        return None
+    root = tangent
+    disc = slope * slope - 2.0 * curv * g0
+    if curv != 0.0 and disc >= 0.0:
+        roots = [(-slope + sign * math.sqrt(disc)) / curv for sign in (1.0, -1.0)]
+        root = min(roots, key=lambda r: abs(r - tangent))
+    bend = abs(root - tangent)
+    if bend > PROBE_BEND * abs(tangent):
+        return None
+    return root, max(PROBE_SPREAD * bend, PROBE_SPREAD_MIN)
+
+
+def _search(
+    trials: _Trials, value: float, start: Solved | None, probes: Sequence[float] | None = None
+) -> Threshold:
     """The threshold search of :func:`find_threshold` on its trials."""
     param = trials.param
     x0 = math.log(value)
@@ -255,22 +333,25 @@ def _search(trials: _Trials, value: float, start: Solved | None) -> Threshold:
         return Threshold(param, value, value)
     rising = param in RISING_PARAMS
     step = math.log(10.0) / SCAN_PER_DECADE
-    # First a few points around where the root would be if the gain were
-    # proportional to the value (exact for the gain-setting resistor of a
-    # lossless circuit): usually they bracket the crossing, one small batch.
-    guess = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
-    around = guess + GUESS_SPACING * np.arange(-GUESS_HALF, GUESS_HALF + 1)
-    # and two round where it would be if the gain went as the value's square root
-    # (an emitter follower's load: its threshold twice as far in ln value), so
-    # that one batch brackets exponents from 1/2 to 1 and beyond
-    half = x0 - max(-2.0 * MAX_STEP, min(2.0 * MAX_STEP, 2.0 * g0))
-    around = np.union1d(around, half + GUESS_SPACING * np.array([-1.0, 1.0]))
-    centre = int(np.searchsorted(around, x0))
-    xs = np.insert(around, centre, x0)
-    gs = np.insert(trials.log_gain(around), centre, g0)
-    k = _pick_interval(gs, centre, rising, xs)
-    if k is not None and not _on_trend_side(xs, gs, centre, k, rising):
-        k = None
+    k = None
+    placed = _probe_guess(g0, probes) if start is not None else None
+    if placed is not None:
+        # The probes' quadratic: a tight batch round its root.
+        root, spread = placed
+        around = x0 + root + spread * np.asarray(PROBE_POINTS)
+        k, xs, gs, centre = _first_batch(trials, around, x0, g0, rising)
+    if k is None:
+        # A few points around where the root would be if the gain were
+        # proportional to the value (exact for the gain-setting resistor of a
+        # lossless circuit): usually they bracket the crossing, one small batch.
+        guess = x0 - max(-MAX_STEP, min(MAX_STEP, g0))
+        around = guess + GUESS_SPACING * np.arange(-GUESS_HALF, GUESS_HALF + 1)
+        # and two round where it would be if the gain went as the value's square root
+        # (an emitter follower's load: its threshold twice as far in ln value), so
+        # that one batch brackets exponents from 1/2 to 1 and beyond
+        half = x0 - max(-2.0 * MAX_STEP, min(2.0 * MAX_STEP, 2.0 * g0))
+        around = np.union1d(around, half + GUESS_SPACING * np.array([-1.0, 1.0]))
+        k, xs, gs, centre = _first_batch(trials, around, x0, g0, rising)
     if k is None and not rising:
         # The whole range on the trend's side, then the other side.
         down = _goes_down(xs, gs, centre)
@@ -318,6 +399,22 @@ def _search(trials: _Trials, value: float, start: Solved | None) -> Threshold:
             ),
         )
     return Threshold(param, math.exp(root), value)
+
+
+def _first_batch(
+    trials: _Trials, around: np.ndarray, x0: float, g0: float, rising: bool
+) -> tuple[int | None, np.ndarray, np.ndarray, int]:
+    """A first batch of trials ``around`` (ln value, sorted), with the current
+    value x0 (ln gain g0) inserted: the interval holding the crossing to
+    report (``None`` when it holds none on the trend's side), the points,
+    their ln gain and the index of x0 among them."""
+    centre = int(np.searchsorted(around, x0))
+    xs = np.insert(around, centre, x0)
+    gs = np.insert(trials.log_gain(around), centre, g0)
+    k = _pick_interval(gs, centre, rising, xs)
+    if k is not None and not _on_trend_side(xs, gs, centre, k, rising):
+        k = None
+    return k, xs, gs, centre
 
 
 def _scan_side(

@@ -32,10 +32,17 @@ from ringwise.analysis.criteria import Region
 from ringwise.analysis.criteria import starts as starts_rule
 from ringwise.analysis.operating import Solved, solve
 from ringwise.analysis.periodic import steady_state
-from ringwise.analysis.pipeline import part_values, patterns_of_structure, solve_values
+from ringwise.analysis.pipeline import (
+    MemberFigures,
+    changed_values,
+    f_ideal_of,
+    part_values,
+    patterns_of_structure,
+    solve_values,
+)
 from ringwise.circuit import varactor as junction_law
 from ringwise.circuit.topologies import VARACTOR, varactor_branch
-from ringwise.design import Design, with_param
+from ringwise.design import Design, Varactor, with_param
 
 #: Tuning voltages solved across the range (one pipeline batch).
 TUNING_POINTS: Final = 21
@@ -99,45 +106,66 @@ def _num(x) -> float | None:
     return x if np.isfinite(x) else None
 
 
-def tuning_sweep(design: Design, start: Solved | None = None):
-    """The small-signal batch over the tuning range: (V, solution); ``None`` without a varactor.
+def voltages(v: Varactor) -> np.ndarray:
+    """The tuning voltages solved: :data:`TUNING_POINTS` across V_min … V_max, V."""
+    return np.linspace(v.V_min, v.V_max, TUNING_POINTS)
 
-    ``start`` (the design solved) warm-starts every member's DC Newton (the
-    tuning voltage hardly moves the transistor's bias) and its loop search,
-    at the design's f_osc moved with the member's ideal resonance (two
-    Newton steps instead of three from the ideal resonance).
-    """
+
+def tuning_changes(
+    design: Design, start: Solved | None = None
+) -> tuple[list[dict[str, float]], np.ndarray | None] | None:
+    """The tuning range as changes of ``design``'s part values (one member per
+    voltage), with each member's loop-search start: the design's f_osc moved
+    with the member's ideal resonance (two Newton steps instead of three
+    from the ideal resonance; ``None`` without ``start`` or its crossing).
+    ``None`` without a varactor."""
     v = design.varactor
     if v is None:
         return None
-    V = np.linspace(v.V_min, v.V_max, TUNING_POINTS)
-    values = {**part_values(design), "V_tune": V}
+    V = voltages(v)
+    changes = [{"V_tune": float(x)} for x in V]
     if start is None or start.f_osc is None:
-        x0 = None if start is None else start.op.x
-        sol = solve_values(patterns_of_structure(design), values, len(V), x0)
-    else:
-        sol = solve_values(
-            patterns_of_structure(design),
-            values,
-            len(V),
-            start.op.x,
-            start.f_osc,
-            guess_f_ideal=start.tank.f_ideal,
-        )
-    return V, sol
+        return changes, None
+    values = part_values(design)
+    f_ideal = f_ideal_of(changed_values(values, changes), len(V))
+    return changes, start.f_osc * (f_ideal / f_ideal_of(values, 1)[0])
 
 
-def tuning(design: Design, large_signal: bool = True, start: Solved | None = None) -> Tuning | None:
+def tuning_sweep(design: Design, start: Solved | None = None) -> MemberFigures | None:
+    """The small-signal batch over the tuning range (:func:`tuning_changes`);
+    ``None`` without a varactor.
+
+    ``start`` (the design solved) warm-starts every member's DC Newton (the
+    tuning voltage hardly moves the transistor's bias) and its loop search.
+    """
+    found = tuning_changes(design, start)
+    if found is None:
+        return None
+    changes, guess = found
+    values = changed_values(part_values(design), changes)
+    x0 = None if start is None else start.op.x
+    sol = solve_values(patterns_of_structure(design), values, len(changes), x0, guess)
+    return MemberFigures.of(sol)
+
+
+def tuning(
+    design: Design,
+    large_signal: bool = True,
+    start: Solved | None = None,
+    swept: MemberFigures | None = None,
+) -> Tuning | None:
     """The varactor's tuning figures (``None`` without a varactor); ``large_signal``
     adds the steady state at both ends and the middle; ``start`` (the design
-    solved) warm-starts the sweep's DC solves."""
-    swept = tuning_sweep(design, start)
-    if swept is None:
-        return None
+    solved) warm-starts the sweep's DC solves; ``swept`` is the sweep when
+    another batch already solved :func:`tuning_changes` (the full analysis's
+    threshold search carries it)."""
     v = design.varactor
-    assert v is not None
-    V, sol = swept
-    f = np.asarray(sol.loop.f_osc, dtype=float)
+    if v is None:
+        return None
+    sol = swept if swept is not None else tuning_sweep(design, start)
+    assert sol is not None
+    V = voltages(v)
+    f = np.asarray(sol.f_osc, dtype=float)
     ok = np.isfinite(f)
     K = np.full_like(f, np.nan)
     if ok.sum() >= 3 and ok.all():

@@ -12,10 +12,12 @@ from scipy.optimize import brentq
 from ringwise.analysis.operating import solve
 from ringwise.analysis.threshold import (
     MAX_SWEEP_POINTS,
+    PROBE_STEP,
     SCAN_PER_DECADE,
     SEARCH_RANGE,
     ParameterError,
     _interpolated_root,
+    _probe_guess,
     _scan_side,
     _Trials,
     find_threshold,
@@ -196,3 +198,37 @@ def test_a_jump_among_a_rounds_points_asks_for_another_round() -> None:
 
     last, outer = _round(g, 0.0, 4e-3)
     assert _interpolated_root(last, outer, [], -0.1, 0.1) is None
+
+
+def test_probe_guess_is_the_root_of_the_quadratic_through_the_probes() -> None:
+    # ln gain exactly quadratic in ln value, g(x) = 0.9 + 0.8x - 0.2x^2 (x the
+    # step from the current value): its root nearest the tangent's, by the
+    # quadratic formula (algebra, common practice), is what the probes give.
+    def g(x: float) -> float:
+        return 0.9 + 0.8 * x - 0.2 * x * x
+
+    root, spread = _probe_guess(g(0.0), [math.exp(g(-PROBE_STEP)), math.exp(g(PROBE_STEP))])
+    exact = (-0.8 + math.sqrt(0.64 + 4 * 0.2 * 0.9)) / (-0.4)
+    assert root == pytest.approx(exact, abs=1e-9)
+    assert spread == pytest.approx(0.75 * abs(exact - (-0.9 / 0.8)), rel=1e-6)
+
+
+def test_probes_of_a_flat_or_lost_loop_place_nothing() -> None:
+    # a gain nearly flat in the part (its root decades away), a probe without
+    # a loop, or no probes: the search keeps its power-law first batch
+    assert _probe_guess(1.0, [math.exp(1.0 - 1e-4), math.exp(1.0 + 1e-4)]) is None
+    assert _probe_guess(1.0, [0.0, 3.0]) is None
+    assert _probe_guess(1.0, None) is None
+
+
+@pytest.mark.parametrize("path", sample_files(), ids=lambda p: p.stem)
+def test_the_full_analysis_threshold_is_the_searched_one(path) -> None:
+    # The analysis places its first batch with the probes its own solve
+    # carries; the crossing must be the one find_threshold lands on (which
+    # the test above checks against brentq).
+    from ringwise.analysis.analyze import _analyze
+
+    design = Design.model_validate_json(path.read_text(encoding="utf-8"))
+    r = _analyze(design, large_signal=False)
+    th = find_threshold(design, gain_setter(design), start=solve(design))
+    assert r.startup.threshold_value == pytest.approx(th.value, rel=1e-7)

@@ -72,6 +72,19 @@ def test_batch_equals_single_solves_and_K_equals_their_differences() -> None:
     assert r.K_ratio > 1  # a hyperabrupt diode tunes faster at low bias
 
 
+def test_the_analysis_carries_the_same_tuning_range() -> None:
+    # The full analysis solves the tuning range in its threshold search's
+    # first batch: the figures are those of the range solved on its own
+    # (the same converged solves; common practice, no source).
+    d = lo()
+    alone = tuning(d, large_signal=False)
+    carried = analyze(d, large_signal=False).tuning
+    assert carried is not None and alone is not None
+    np.testing.assert_allclose(carried.f_osc, alone.f_osc, rtol=1e-10)
+    np.testing.assert_allclose(carried.gain, alone.gain, rtol=1e-7)
+    assert carried.starts == alone.starts
+
+
 def test_steady_state_at_the_ends_and_middle_reads_the_diode_swing() -> None:
     d = lo()
     r = analyze(d).tuning
