@@ -18,7 +18,6 @@ from ringwise.analysis.loop import LoopFigures
 from ringwise.analysis.pipeline import (
     BatchSolution,
     changed_values,
-    join_values,
     part_values,
     patterns_of_structure,
     solve_designs,
@@ -141,7 +140,6 @@ def solve_with(
     if not changes:
         sol = solve_designs([design])
     else:
-        values = part_values(design)
-        joined = join_values([(values, 1), (changed_values(values, changes), len(changes))])
-        sol = solve_values(patterns_of_structure(design), joined, 1 + len(changes))
+        values = changed_values(part_values(design), [{}, *changes])
+        sol = solve_values(patterns_of_structure(design), values, 1 + len(changes))
     return member(sol, 0, design), sol

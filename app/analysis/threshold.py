@@ -49,7 +49,6 @@ from ringwise.analysis.pipeline import (
     BatchSolution,
     MemberFigures,
     changed_values,
-    join_values,
     part_values,
     patterns_of_structure,
     solve_designs,
@@ -221,8 +220,8 @@ class _Trials:
         m = values.size
         if self.riders and self.ridden is None:
             riders = len(self.riders)
-            rider_values = changed_values(self.parts, self.riders)
-            joined = join_values([(parts, m), (rider_values, riders)])
+            trial = [{self.param: v} for v in parts[self.param].tolist()]
+            joined = changed_values(self.parts, trial + list(self.riders))
             guess = self.f_guess
             if self.rider_guess is not None and guess is not None:
                 guess = np.concatenate([np.full(m, guess), self.rider_guess])
