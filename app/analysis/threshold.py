@@ -107,8 +107,9 @@ INNER_FRACTION: Final = 0.125
 #: A round whose h (in ln value) is at most this is three solves, x and x ± h:
 #: they are close enough round the root for the parabola through them (checked
 #: with the nearest earlier point) to end the search (measured on the samples:
-#: h up to 0.006 did, from 0.01 on it did not).
-THREE_POINT_REACH: Final = 0.008
+#: h up to 0.0012 did; 0.004 did not on the Clapp sample, whose loop loses its
+#: crossing just below the threshold, and a round of five there did).
+THREE_POINT_REACH: Final = 0.002
 #: A bracket narrower than this (in ln(value)) is as fine as doubles resolve.
 BRACKET_XTOL: Final = 1e-12
 #: A bracketed root whose |ln gain| exceeds this is a discontinuity, not a crossing.
