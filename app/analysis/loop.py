@@ -44,9 +44,6 @@ SEARCH_POINTS: Final = 41
 #: taken and T extrapolated to it, leaving an error of order its square
 #: (about 1e-14 of f for Q ~ 100).
 ACCEPT_RTOL: Final = 1e-7
-#: Newton steps that stop shrinking below this relative size have reached the
-#: round-off floor of Im T and are accepted.
-NOISE_RTOL: Final = 1e-8
 #: Bisection narrows a bracket to this relative width, then hands over to Newton.
 BISECT_HANDOVER: Final = 1e-6
 BISECT_MAX: Final = 60
@@ -231,54 +228,120 @@ def refine_crossing(
     """
     shape = np.shape(f0)
     f = np.array(f0, dtype=float).reshape(-1)
-    f_lo = np.broadcast_to(np.asarray(f_lo, dtype=float), shape).reshape(-1)
-    f_hi = np.broadcast_to(np.asarray(f_hi, dtype=float), shape).reshape(-1)
-    B, n = f.size, ss.u.size
-    out_f = np.full(B, np.nan)
-    out_T = np.full(B, np.nan + 0j)
-    out_dT = np.full(B, np.nan + 0j)
-    out_x = np.full((B, n), np.nan + 0j)
+    B = f.size
+    f_lo = _of_shape(f_lo, shape).reshape(B)
+    f_hi = _of_shape(f_hi, shape).reshape(B)
+    if _eliminates(ss, f):
+        solver: _LoopAt = _Eliminating(ss)
+    else:
+        solver = _Lapack(ss, B)
+    out = None  # the figures of members settled or failed before the others (None: none yet)
     idx = None  # the members still moving (None: all of them)
-    sub = ss
-    prev_step = np.inf
+    figs = None
     with np.errstate(divide="ignore", invalid="ignore"):
         for _ in range(NEWTON_STEPS):
-            T, dT_ds, x = return_ratio_slope(sub, (TWO_PI * 1j) * f)
+            T, dT_ds, x = solver.at(TWO_PI * f)
             ratio = dT_ds / T
             inv_T = 1.0 / T
             # dφ/dω = Im(j T′/T) = Re(T′/T), T′ = dT/ds; d(Im 1/T)/dω = −Re(T′/T²)
             step = inv_T.imag / (ratio * inv_T).real / TWO_PI
             f_new = f + step
-            size = np.abs(step)
             ok = (ratio.real < 0) & (T.real > 0) & (f_new >= f_lo) & (f_new <= f_hi)
-            # Converged, or stuck at the round-off floor of Im T (steps no longer shrink).
-            conv = ok & (
-                (size <= ACCEPT_RTOL * f) | ((size <= NOISE_RTOL * f) & (size >= 0.5 * prev_step))
-            )
-            go = ok & ~conv
-            settled, moving = np.count_nonzero(conv), np.count_nonzero(go)
+            conv = ok & (np.abs(step) <= ACCEPT_RTOL * f)
+            settled = np.count_nonzero(conv)
             if settled == B:
                 # every member at once (the usual case): the arrays as they are
-                out_f, out_dT, out_x = f_new, dT_ds, x
-                out_T = T + dT_ds * ((TWO_PI * 1j) * step)
+                T_new = T + dT_ds * ((TWO_PI * 1j) * step)
+                figs = _figures_from(ss, f_new, T_new, dT_ds, x)
                 break
+            go = ok ^ conv  # (conv is a part of ok)
+            moving = np.count_nonzero(go)
+            if out is None and (settled or moving < go.size):
+                out = _unsettled(B, ss.u.size)
             if settled:
                 k = conv if idx is None else idx[conv]
-                out_f[k] = f_new[conv]
-                out_T[k] = T[conv] + dT_ds[conv] * ((TWO_PI * 1j) * step[conv])
-                out_dT[k] = dT_ds[conv]
-                out_x[k] = x[conv]
+                out[0][k] = f_new[conv]
+                out[1][k] = T[conv] + dT_ds[conv] * ((TWO_PI * 1j) * step[conv])
+                out[2][k] = dT_ds[conv]
+                out[3][k] = x[conv]
             if not moving:
                 break
             if moving < go.size:
                 idx = np.flatnonzero(go) if idx is None else idx[go]
-                f_new, f_lo, f_hi, size = f_new[go], f_lo[go], f_hi[go], size[go]
-                sub = _members(sub, go)
-            f, prev_step = f_new, size
-    out = _figures_from(ss, out_f, out_T, out_dT, out_x)
+                f_new, f_lo, f_hi = f_new[go], f_lo[go], f_hi[go]
+                solver.keep(go)
+            f = f_new
+        if figs is None:
+            figs = _figures_from(ss, *(out or _unsettled(B, ss.u.size)))
     if len(shape) == 1:
-        return out
-    return LoopFigures(*(a.reshape(shape) for a in _astuple(out)))
+        return figs
+    return LoopFigures(*(a.reshape(shape) for a in _astuple(figs)))
+
+
+def _unsettled(B: int, n: int) -> tuple[np.ndarray, ...]:
+    """f, T, dT/ds and x of ``B`` members without a crossing (yet): NaN."""
+    return (np.full(B, np.nan), np.full(B, np.nan + 0j), np.full(B, np.nan + 0j),
+            np.full((B, n), np.nan + 0j))  # fmt: skip
+
+
+def _of_shape(value, shape: tuple[int, ...]) -> np.ndarray:
+    """``value`` (a float or an array that broadcasts to ``shape``) as floats of ``shape``."""
+    a = np.asarray(value, dtype=float)
+    return a if a.shape == shape else np.broadcast_to(a, shape)
+
+
+class _LoopAt:
+    """T, dT/ds and x of the batch's broken loop at s = jω, one ω per member
+    still moving (:func:`refine_crossing`'s solve)."""
+
+    def at(self, omega: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        raise NotImplementedError
+
+    def keep(self, keep: np.ndarray) -> None:
+        """Keep only the members ``keep`` (a boolean mask over those still moving)."""
+        raise NotImplementedError
+
+
+class _Eliminating(_LoopAt):
+    """A large batch: :func:`return_ratio_slope` (elimination across the batch)."""
+
+    def __init__(self, ss: SmallSignal) -> None:
+        self.ss = ss
+
+    def at(self, omega):
+        return return_ratio_slope(self.ss, 1j * omega)
+
+    def keep(self, keep):
+        self.ss = _members(self.ss, keep)
+
+
+class _Lapack(_LoopAt):
+    """A small batch, LAPACK matrix by matrix: the numbers of :func:`loop_solve`
+    (``slope=True``) and :func:`return_ratio_slope`, with the parts that do not
+    change from step to step (G in Y = G + jωC, C and u, w as complex) set up
+    once, so a Newton step is one inversion and a few products."""
+
+    def __init__(self, ss: SmallSignal, B: int) -> None:
+        n = ss.u.size
+        self.Y = np.empty((B, n, n), dtype=complex)
+        self.Y.real = ss.G
+        self.C = np.ascontiguousarray(_of_shape(ss.C, (B, n, n)))
+        self.Cc = self.C.astype(complex)
+        self.gm = _of_shape(ss.gm, (B,))
+        self.neg_gm = -self.gm
+        self.u = ss.u.astype(complex)
+        self.w = ss.w.astype(complex)
+
+    def at(self, omega):
+        np.multiply(self.C, omega[:, None, None], out=self.Y.imag)  # Y = G + jωC
+        Yinv = np.linalg.inv(self.Y)
+        x = Yinv @ self.u
+        y = (Yinv @ (self.Cc @ x[..., None]))[..., 0]  # −dx/ds
+        return self.neg_gm * (x @ self.w), self.gm * (y @ self.w), x
+
+    def keep(self, keep):
+        self.Y, self.C, self.Cc = self.Y[keep], self.C[keep], self.Cc[keep]
+        self.gm, self.neg_gm = self.gm[keep], self.neg_gm[keep]
 
 
 def _members(ss: SmallSignal, keep: np.ndarray) -> SmallSignal:
@@ -337,10 +400,10 @@ def find_oscillation(
     batch = np.shape(ss.gm)
     if np.size(ss.gm) >= CONDENSE_BATCH:
         ss = without_pinned(ss, batch_last=len(batch) == 1)
-    f_ref_a = np.broadcast_to(np.asarray(f_ref, dtype=float), batch)
-    start = f_ref_a if f_guess is None else np.broadcast_to(np.asarray(f_guess, float), batch)
+    f_ref_a = _of_shape(f_ref, batch)
+    start = f_ref_a if f_guess is None else _of_shape(f_guess, batch)
     first = refine_crossing(ss, start, start / SEARCH_SPAN, start * SEARCH_SPAN)
-    if np.all(first.found):
+    if first.found.all():
         return first
     # Search the grid only for the members Newton could not settle.
     todo = ~first.found

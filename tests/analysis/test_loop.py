@@ -12,9 +12,11 @@ from ringwise.analysis.loop import (
     BATCH_ELIMINATION,
     CONDENSE_BATCH,
     TWO_PI,
+    _Lapack,
     find_oscillation,
     loop_solve,
     return_ratio,
+    return_ratio_slope,
     without_pinned,
 )
 from ringwise.analysis.operating import solve
@@ -41,6 +43,31 @@ def test_batch_of_n_equals_n_singles() -> None:
         one = find_oscillation(_stack([s.ss]), np.array([s.tank.f_ideal]))
         assert batch.f_osc[i] == pytest.approx(float(one.f_osc[0]), rel=1e-10)
         assert batch.gain[i] == pytest.approx(float(one.gain[0]), rel=1e-9)
+
+
+def test_small_batch_equals_singles_exactly() -> None:
+    # Below BATCH_ELIMINATION every member takes the same LAPACK path, alone or
+    # in a batch: the figures are the same numbers, not merely close ones.
+    solved = [solve(design_from(BASE_CE, tank__C2=c)) for c in ("1n5", "2n2", "3n3", "4n7")]
+    f_ref = np.array([s.tank.f_ideal for s in solved])
+    batch = find_oscillation(_stack([s.ss for s in solved]), f_ref, 1.05 * f_ref)
+    for i, s in enumerate(solved):
+        one = find_oscillation(s.ss, s.tank.f_ideal, 1.05 * s.tank.f_ideal)
+        for name in ("f_osc", "T", "gain", "phase_slope", "Q_loaded", "Z_out", "dT_ds"):
+            assert getattr(batch, name)[i] == getattr(one, name), name
+
+
+def test_newton_solve_gives_the_numbers_of_return_ratio_slope() -> None:
+    # refine_crossing's step (G set up once, jωC added per step) against the
+    # general solve: equal, not only to round-off.
+    solved = [solve(design_from(BASE_CE, tank__C2=c)) for c in ("1n5", "3n3", "4n7")]
+    ss = _stack([s.ss for s in solved])
+    f = np.array([s.f_osc for s in solved]) * np.array([0.97, 1.0, 1.02])
+    T, dT, x = _Lapack(ss, 3).at(TWO_PI * f)
+    T0, dT0, x0 = return_ratio_slope(ss, (TWO_PI * 1j) * f)
+    np.testing.assert_array_equal(T, T0)
+    np.testing.assert_array_equal(dT, dT0)
+    np.testing.assert_array_equal(x, x0)
 
 
 def test_phase_is_zero_at_f_osc_and_q_matches_the_phase_slope() -> None:
