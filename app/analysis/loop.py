@@ -465,7 +465,7 @@ def without_pinned(ss: SmallSignal, batch_last: bool = False) -> SmallSignal:
 
 def _grid_search(ss: SmallSignal, f_ref: np.ndarray) -> LoopFigures:
     """Grid over f_ref/SPAN … f_ref·SPAN, then bracketed Newton (and bisection if needed)."""
-    grid = np.geomspace(1.0 / SEARCH_SPAN, SEARCH_SPAN, SEARCH_POINTS)
+    grid = _GRID
     f_grid = f_ref[..., None] * grid
     T = return_ratio(ss, TWO_PI * 1j * f_grid)
     im, re = T.imag, T.real
@@ -478,15 +478,28 @@ def _grid_search(ss: SmallSignal, f_ref: np.ndarray) -> LoopFigures:
     out = _no_crossing(has.shape)
     if not np.any(has):
         return out
+    # Newton starts where Im 1/T, nearly linear in f near a resonance, is zero
+    # on the chord between the interval's ends (their midpoint where that fails).
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = (1.0 / T).imag
+    y_lo = np.take_along_axis(y, k[..., None], -1)[..., 0]
+    y_hi = np.take_along_axis(y, k[..., None] + 1, -1)[..., 0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        chord = lo + (hi - lo) * y_lo / (y_lo - y_hi)
+    start = np.where((chord > lo) & (chord < hi), chord, np.sqrt(lo * hi))
     # Only the members whose grid holds a falling crossing are refined (each
     # member's refinement is its own: the others' figures would be NaN anyway).
     sub = ss if np.all(has) else _members(ss, has)
-    lo, hi = lo[has], hi[has]
-    second = refine_crossing(sub, np.sqrt(lo * hi), lo, hi)
+    lo, hi, start = lo[has], hi[has], start[has]
+    second = refine_crossing(sub, start, lo, hi)
     second = _bisect_leftovers(sub, second, lo, hi, np.ones(lo.shape, dtype=bool))
     for full, part in zip(_astuple(out), _astuple(second), strict=True):
         full[has] = part
     return out
+
+
+#: The grid of :func:`_grid_search`, relative to f_ref.
+_GRID: Final = np.geomspace(1.0 / SEARCH_SPAN, SEARCH_SPAN, SEARCH_POINTS)
 
 
 def _no_crossing(shape: tuple[int, ...]) -> LoopFigures:
