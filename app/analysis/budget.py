@@ -152,11 +152,12 @@ def sequential_costs(
     by_element = {i.element: i for i in budget_items(solved.netlist, gain_setter)}
     items = [by_element[e] for e in order]
     variants = _variants(solved, [items[k:] for k in range(len(items) + 1)])
-    gains = _solve_variants(solved, variants).gain
-    if not np.all(np.isfinite(gains)) or not np.all(gains > 0):
+    found = _solve_variants(solved, variants).gain
+    if not np.all(np.isfinite(found)) or not np.all(found > 0):
         return None
+    gains = found.tolist()
     costs = [20.0 * math.log10(gains[k - 1] / gains[k]) for k in range(1, len(items) + 1)]
-    return float(gains[0]), costs
+    return gains[0], costs
 
 
 def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
@@ -164,9 +165,10 @@ def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
     items = budget_items(solved.netlist, gain_setter)
     figs = _solve_variants(solved, _variants(solved, [[item] for item in items]))
     gain = solved.gain
+    gains, freqs = figs.gain.tolist(), figs.f_osc.tolist()  # floats, not array scalars
     costs: list[float | None] = []
-    for g in figs.gain:
-        ok = np.isfinite(g) and gain > 0
+    for g in gains:
+        ok = math.isfinite(g) and gain > 0
         costs.append(20.0 * math.log10(g / gain) if ok else None)
     positive = sum(
         c
@@ -174,7 +176,7 @@ def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
         if c is not None and c > 0 and not item.in_hand
     )
     lines = []
-    for item, g, f, cost in zip(items, figs.gain, figs.f_osc, costs, strict=True):
+    for item, g, f, cost in zip(items, gains, freqs, costs, strict=True):
         share = None
         if cost is not None and positive > 0 and not item.in_hand:
             share = max(cost, 0.0) / positive
@@ -182,8 +184,8 @@ def loop_budget(solved: Solved, gain_setter: str) -> list[BudgetLine]:
             BudgetLine(
                 element=item.element,
                 label=item.label,
-                gain_without=float(g) if np.isfinite(g) else None,
-                f_without=float(f) if np.isfinite(f) else None,
+                gain_without=g if math.isfinite(g) else None,
+                f_without=f if math.isfinite(f) else None,
                 cost_dB=cost,
                 share=share,
                 in_hand=item.in_hand,

@@ -256,7 +256,10 @@ def initial_controls(red: Reduced, params: NPNParams) -> np.ndarray:
     emitter one junction drop V_T·ln(``GUESS_CURRENT``/I_S) below the base."""
     vbe = params.VT * np.log(GUESS_CURRENT / np.asarray(params.IS))
     vce = red.a[:, 1] - red.a[:, 0] + vbe  # v_C − v_E with v_E = v_B − v_BE
-    return np.column_stack(np.broadcast_arrays(vbe, vce)).astype(float)
+    v = np.empty((len(vce), 2))
+    v[:, 0] = vbe
+    v[:, 1] = vce
+    return v
 
 
 def solve_dc_batch(
@@ -283,8 +286,9 @@ def solve_dc_batch(
         shapes.append(np.shape(x0)[:-1] if x0 is not None else ())
         batch = int(np.prod(np.broadcast_shapes(*shapes))) or 1
     inc = incidence_of(system)
-    G = np.broadcast_to(system.G, (batch, n, n))
-    red = reduce_to_controls(G, np.broadcast_to(system.b, (batch, n)), inc)
+    red = reduce_to_controls(
+        _batch_of(system.G, (batch, n, n)), _batch_of(system.b, (batch, n)), inc
+    )
     if x0 is None:
         v = initial_controls(red, params)
     else:
@@ -302,9 +306,15 @@ def solve_dc_batch(
         exp_and_slope_array,
     )  # fmt: skip
     x = red.y - red.K[..., 0] * q.IC[:, None] - red.K[..., 1] * q.IB[:, None]
-    ok &= np.all(np.isfinite(x), axis=1)
-    x[~ok] = np.nan
+    ok &= np.isfinite(x).all(axis=1)
+    if not ok.all():
+        x[~ok] = np.nan
     return DCBatch(x=x, converged=ok, stepped=stepped)
+
+
+def _batch_of(a: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+    """``a`` broadcast to ``shape`` (itself when it has that shape already)."""
+    return a if np.shape(a) == shape else np.broadcast_to(a, shape)
 
 
 def solve_dc(system: LinearSystem, x0: np.ndarray | None = None) -> np.ndarray:

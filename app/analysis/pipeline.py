@@ -325,13 +325,9 @@ def solve_values(
     params = device_params_at(
         *(values[k] for k in ("IS", "beta", "VA", "fT", "C_mu", "temperature_C"))
     )
-    system = LinearSystem(
-        system.layout,
-        system.G,
-        system.C,
-        np.broadcast_to(system.b, (batch, patterns.layout.size)),
-        patterns.devices,
-    )
+    if system.b.shape != (batch, patterns.layout.size):
+        b = np.broadcast_to(system.b, (batch, patterns.layout.size))
+        system = LinearSystem(system.layout, system.G, system.C, b, patterns.devices)
     dc = solve_dc_batch(system, params, x0, batch)
     x_ok = np.where(dc.converged[:, None], dc.x, 0.0)
     dev = device_currents(incidence_of(system), x_ok, params)

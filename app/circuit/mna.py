@@ -505,12 +505,17 @@ def _plus_scaled(base: np.ndarray, terms) -> np.ndarray:
     touching only the patterns' few entries: the same sums, in the same order,
     as the dense expression, without its full-size temporaries."""
     ks = [np.asarray(k, dtype=float) for k, _M in terms]
-    shape = np.broadcast_shapes(np.shape(base)[:-2], *(k.shape for k in ks)) + np.shape(base)[-2:]
-    if math.prod(shape[:-2]) < SPARSE_STAMP_BATCH:
+    if base.ndim <= 3 and all(k.ndim <= 1 for k in ks):
+        # one batch axis at most: its size is the largest of the sizes
+        size = max(math.prod(base.shape[:-2]), *(k.size for k in ks))
+    else:
+        size = math.prod(np.broadcast_shapes(base.shape[:-2], *(k.shape for k in ks)))
+    if size < SPARSE_STAMP_BATCH:
         out = base
         for k, (_k, M) in zip(ks, terms, strict=True):
             out = out + k[..., None, None] * M
         return out
+    shape = np.broadcast_shapes(base.shape[:-2], *(k.shape for k in ks)) + base.shape[-2:]
     out = np.array(np.broadcast_to(base, shape), dtype=np.result_type(base, float))
     for k, (_k, M) in zip(ks, terms, strict=True):
         for i, j in zip(*np.nonzero(M), strict=True):
@@ -621,9 +626,16 @@ def _entries(patterns: Patterns, target: str) -> list[tuple[np.ndarray, np.ndarr
 
 def _coefficients(column: list) -> np.ndarray:
     """Stamp values as a (B, terms) matrix; plain floats make a batch of one."""
-    if not any(isinstance(k, np.ndarray) and k.ndim for k in column):
+    sizes = {k.shape for k in column if isinstance(k, np.ndarray) and k.ndim}
+    if not sizes:
         return np.array(column, dtype=float)[None, :]
-    return np.stack(np.broadcast_arrays(*(np.asarray(k, dtype=float) for k in column)), axis=1)
+    if len(sizes) > 1 or len(next(iter(sizes))) > 1:
+        return np.stack(np.broadcast_arrays(*(np.asarray(k, dtype=float) for k in column)), axis=1)
+    ((B,),) = sizes
+    out = np.empty((B, len(column)))
+    for t, k in enumerate(column):  # one column per term (floats shared by every member)
+        out[:, t] = k
+    return out
 
 
 def _stacked(patterns: Patterns, target: str) -> tuple[list, np.ndarray]:
