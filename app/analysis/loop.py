@@ -34,6 +34,7 @@ from typing import Final
 
 import numpy as np
 
+from ringwise.analysis.crossing import newton_crossings
 from ringwise.circuit.batchlu import BatchLU, matvec, pivoted, unreliable
 from ringwise.circuit.mna import SmallSignal, dot_last
 
@@ -223,56 +224,24 @@ def refine_crossing(
     as its Newton step falls below ``ACCEPT_RTOL``·f: its crossing is then the
     stepped frequency and T there the first-order extrapolation
     T + T′·j2π·Δf (the neglected term is of order (Q·ACCEPT_RTOL)², far
-    below the tolerance of any figure).  Each iteration solves only the
-    members still moving.
+    below the tolerance of any figure).  The iteration is compiled, member
+    by member (:func:`ringwise.analysis.crossing.newton_crossings`).
     """
     shape = np.shape(f0)
     f = np.array(f0, dtype=float).reshape(-1)
-    B = f.size
-    f_lo = _of_shape(f_lo, shape).reshape(B)
-    f_hi = _of_shape(f_hi, shape).reshape(B)
-    if _eliminates(ss, f):
-        solver: _LoopAt = _Eliminating(ss)
-    else:
-        solver = _Lapack(ss, B)
-    out = None  # the figures of members settled or failed before the others (None: none yet)
-    idx = None  # the members still moving (None: all of them)
-    figs = None
+    B, n = f.size, ss.u.size
+    f_lo = np.ascontiguousarray(_of_shape(f_lo, shape).reshape(B))
+    f_hi = np.ascontiguousarray(_of_shape(f_hi, shape).reshape(B))
+    G = np.ascontiguousarray(_of_shape(ss.G, (B, n, n)))
+    C = np.ascontiguousarray(_of_shape(ss.C, (B, n, n)))
+    gm = np.ascontiguousarray(_of_shape(ss.gm, (B,)))
+    f_out, T, dT_ds, x = _unsettled(B, n)
+    newton_crossings(
+        G, C, ss.u.astype(complex), ss.w.astype(complex), gm, f, f_lo, f_hi,
+        NEWTON_STEPS, ACCEPT_RTOL, f_out, T, dT_ds, x,
+    )  # fmt: skip
     with np.errstate(divide="ignore", invalid="ignore"):
-        for _ in range(NEWTON_STEPS):
-            T, dT_ds, x = solver.at(TWO_PI * f)
-            ratio = dT_ds / T
-            inv_T = 1.0 / T
-            # dφ/dω = Im(j T′/T) = Re(T′/T), T′ = dT/ds; d(Im 1/T)/dω = −Re(T′/T²)
-            step = inv_T.imag / (ratio * inv_T).real / TWO_PI
-            f_new = f + step
-            ok = (ratio.real < 0) & (T.real > 0) & (f_new >= f_lo) & (f_new <= f_hi)
-            conv = ok & (np.abs(step) <= ACCEPT_RTOL * f)
-            settled = np.count_nonzero(conv)
-            if settled == B:
-                # every member at once (the usual case): the arrays as they are
-                T_new = T + dT_ds * ((TWO_PI * 1j) * step)
-                figs = _figures_from(ss, f_new, T_new, dT_ds, x)
-                break
-            go = ok ^ conv  # (conv is a part of ok)
-            moving = np.count_nonzero(go)
-            if out is None and (settled or moving < go.size):
-                out = _unsettled(B, ss.u.size)
-            if settled:
-                k = conv if idx is None else idx[conv]
-                out[0][k] = f_new[conv]
-                out[1][k] = T[conv] + dT_ds[conv] * ((TWO_PI * 1j) * step[conv])
-                out[2][k] = dT_ds[conv]
-                out[3][k] = x[conv]
-            if not moving:
-                break
-            if moving < go.size:
-                idx = np.flatnonzero(go) if idx is None else idx[go]
-                f_new, f_lo, f_hi = f_new[go], f_lo[go], f_hi[go]
-                solver.keep(go)
-            f = f_new
-        if figs is None:
-            figs = _figures_from(ss, *(out or _unsettled(B, ss.u.size)))
+        figs = _figures_from(ss, f_out, T, dT_ds, x)
     if len(shape) == 1:
         return figs
     return LoopFigures(*(a.reshape(shape) for a in _astuple(figs)))
@@ -288,60 +257,6 @@ def _of_shape(value, shape: tuple[int, ...]) -> np.ndarray:
     """``value`` (a float or an array that broadcasts to ``shape``) as floats of ``shape``."""
     a = np.asarray(value, dtype=float)
     return a if a.shape == shape else np.broadcast_to(a, shape)
-
-
-class _LoopAt:
-    """T, dT/ds and x of the batch's broken loop at s = jω, one ω per member
-    still moving (:func:`refine_crossing`'s solve)."""
-
-    def at(self, omega: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        raise NotImplementedError
-
-    def keep(self, keep: np.ndarray) -> None:
-        """Keep only the members ``keep`` (a boolean mask over those still moving)."""
-        raise NotImplementedError
-
-
-class _Eliminating(_LoopAt):
-    """A large batch: :func:`return_ratio_slope` (elimination across the batch)."""
-
-    def __init__(self, ss: SmallSignal) -> None:
-        self.ss = ss
-
-    def at(self, omega):
-        return return_ratio_slope(self.ss, 1j * omega)
-
-    def keep(self, keep):
-        self.ss = _members(self.ss, keep)
-
-
-class _Lapack(_LoopAt):
-    """A small batch, LAPACK matrix by matrix: the numbers of :func:`loop_solve`
-    (``slope=True``) and :func:`return_ratio_slope`, with the parts that do not
-    change from step to step (G in Y = G + jωC, C and u, w as complex) set up
-    once, so a Newton step is one inversion and a few products."""
-
-    def __init__(self, ss: SmallSignal, B: int) -> None:
-        n = ss.u.size
-        self.Y = np.empty((B, n, n), dtype=complex)
-        self.Y.real = ss.G
-        self.C = np.ascontiguousarray(_of_shape(ss.C, (B, n, n)))
-        self.Cc = self.C.astype(complex)
-        self.gm = _of_shape(ss.gm, (B,))
-        self.neg_gm = -self.gm
-        self.u = ss.u.astype(complex)
-        self.w = ss.w.astype(complex)
-
-    def at(self, omega):
-        np.multiply(self.C, omega[:, None, None], out=self.Y.imag)  # Y = G + jωC
-        Yinv = np.linalg.inv(self.Y)
-        x = Yinv @ self.u
-        y = (Yinv @ (self.Cc @ x[..., None]))[..., 0]  # −dx/ds
-        return self.neg_gm * (x @ self.w), self.gm * (y @ self.w), x
-
-    def keep(self, keep):
-        self.Y, self.C, self.Cc = self.Y[keep], self.C[keep], self.Cc[keep]
-        self.gm, self.neg_gm = self.gm[keep], self.neg_gm[keep]
 
 
 def _members(ss: SmallSignal, keep: np.ndarray) -> SmallSignal:

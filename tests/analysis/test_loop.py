@@ -12,7 +12,6 @@ from ringwise.analysis.loop import (
     BATCH_ELIMINATION,
     CONDENSE_BATCH,
     TWO_PI,
-    _Lapack,
     find_oscillation,
     loop_solve,
     return_ratio,
@@ -46,8 +45,8 @@ def test_batch_of_n_equals_n_singles() -> None:
 
 
 def test_small_batch_equals_singles_exactly() -> None:
-    # Below BATCH_ELIMINATION every member takes the same LAPACK path, alone or
-    # in a batch: the figures are the same numbers, not merely close ones.
+    # Every member takes the same compiled iteration, alone or in a batch:
+    # the figures are the same numbers, not merely close ones.
     solved = [solve(design_from(BASE_CE, tank__C2=c)) for c in ("1n5", "2n2", "3n3", "4n7")]
     f_ref = np.array([s.tank.f_ideal for s in solved])
     batch = find_oscillation(_stack([s.ss for s in solved]), f_ref, 1.05 * f_ref)
@@ -57,17 +56,18 @@ def test_small_batch_equals_singles_exactly() -> None:
             assert getattr(batch, name)[i] == getattr(one, name), name
 
 
-def test_newton_solve_gives_the_numbers_of_return_ratio_slope() -> None:
-    # refine_crossing's step (G set up once, jωC added per step) against the
-    # general solve: equal, not only to round-off.
+def test_compiled_newton_gives_the_numbers_of_return_ratio_slope() -> None:
+    # The compiled iteration (its own LU with partial pivoting) against the
+    # general solve (LAPACK) at the crossing it found: T to round-off and the
+    # last step's square, dT/ds to the last step (common practice, no source).
     solved = [solve(design_from(BASE_CE, tank__C2=c)) for c in ("1n5", "3n3", "4n7")]
     ss = _stack([s.ss for s in solved])
-    f = np.array([s.f_osc for s in solved]) * np.array([0.97, 1.0, 1.02])
-    T, dT, x = _Lapack(ss, 3).at(TWO_PI * f)
-    T0, dT0, x0 = return_ratio_slope(ss, (TWO_PI * 1j) * f)
-    np.testing.assert_array_equal(T, T0)
-    np.testing.assert_array_equal(dT, dT0)
-    np.testing.assert_array_equal(x, x0)
+    f = np.array([s.f_osc for s in solved])
+    figs = find_oscillation(ss, f, f * np.array([0.97, 1.0, 1.02]))
+    T0, dT0, x0 = return_ratio_slope(ss, (TWO_PI * 1j) * figs.f_osc)
+    np.testing.assert_allclose(figs.T, T0, rtol=1e-11)
+    np.testing.assert_allclose(figs.dT_ds, dT0, rtol=1e-6)
+    np.testing.assert_allclose(figs.Z_out, np.abs(x0 @ ss.u), rtol=1e-6)
 
 
 def test_phase_is_zero_at_f_osc_and_q_matches_the_phase_slope() -> None:

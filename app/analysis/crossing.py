@@ -1,0 +1,152 @@
+r"""The zero-phase crossing of the return ratio, member by member, compiled.
+
+:func:`ringwise.analysis.loop.refine_crossing` runs its Newton iteration on
+Im 1/T(j2πf) = 0 here: for each member of a batch, Y = G + j2πf·C is
+factorised (LU with partial pivoting, the pivot the largest |Re| + |Im| in
+its column, as LAPACK's zgetrf picks it), and
+
+.. math:: x = Y^{-1} u,\qquad y = Y^{-1} C x = -\,dx/ds,\qquad
+          T = -g_m\,w\cdot x,\qquad dT/ds = g_m\,w\cdot y .
+
+The Newton step on Im 1/T is that of ``refine_crossing``'s docstring.  A
+member's iteration is its own: a batch of N gives the N answers of N single
+calls, bit for bit.  Compiled with Numba (cached on disk beside this file):
+the batches of a single analysis are a few to a few dozen circuits of order
+≲ 12, where array operations over the batch spend their time in call
+overhead, not arithmetic.
+
+References
+----------
+Golub & Van Loan, *Matrix Computations*, §3.4 (Gaussian elimination with
+partial pivoting), from memory.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba
+import numpy as np
+
+TWO_PI = 2.0 * math.pi
+
+
+@numba.njit(cache=True, nogil=True)
+def _lu(A: np.ndarray, perm: np.ndarray) -> bool:
+    """A (n, n) complex, in place, into its LU factors with row pivoting; False if singular."""
+    n = A.shape[0]
+    for k in range(n):
+        p = k
+        best = abs(A[k, k].real) + abs(A[k, k].imag)
+        for i in range(k + 1, n):
+            size = abs(A[i, k].real) + abs(A[i, k].imag)
+            if size > best:
+                best, p = size, i
+        perm[k] = p
+        if best == 0.0 or not math.isfinite(best):
+            return False
+        if p != k:
+            for j in range(n):
+                A[k, j], A[p, j] = A[p, j], A[k, j]
+        pivot = A[k, k]
+        for i in range(k + 1, n):
+            m = A[i, k] / pivot
+            A[i, k] = m
+            if m != 0:
+                for j in range(k + 1, n):
+                    A[i, j] -= m * A[k, j]
+    return True
+
+
+@numba.njit(cache=True, nogil=True)
+def _solve(LU: np.ndarray, perm: np.ndarray, b: np.ndarray) -> None:
+    """b (n,) complex, in place, into the solution of A x = b from :func:`_lu`."""
+    n = LU.shape[0]
+    for k in range(n):
+        p = perm[k]
+        if p != k:
+            b[k], b[p] = b[p], b[k]
+    for i in range(1, n):
+        acc = b[i]
+        for j in range(i):
+            acc -= LU[i, j] * b[j]
+        b[i] = acc
+    for i in range(n - 1, -1, -1):
+        acc = b[i]
+        for j in range(i + 1, n):
+            acc -= LU[i, j] * b[j]
+        b[i] = acc / LU[i, i]
+
+
+@numba.njit(cache=True, nogil=True)
+def newton_crossings(
+    G: np.ndarray,
+    C: np.ndarray,
+    u: np.ndarray,
+    w: np.ndarray,
+    gm: np.ndarray,
+    f0: np.ndarray,
+    f_lo: np.ndarray,
+    f_hi: np.ndarray,
+    steps: int,
+    accept_rtol: float,
+    f_out: np.ndarray,
+    T_out: np.ndarray,
+    dT_out: np.ndarray,
+    x_out: np.ndarray,
+) -> None:
+    """Newton on Im 1/T(j2πf) = 0 for every member b of G, C (B, n, n), from
+    f0[b], kept inside [f_lo[b], f_hi[b]]; ``u``, ``w`` (n,) shared, ``gm`` (B,).
+
+    A member stops when its step falls below ``accept_rtol``·f: ``f_out`` is
+    then the stepped frequency, ``T_out`` T extrapolated to it to first order,
+    ``dT_out`` dT/ds and ``x_out`` x at the last iterate.  A member whose
+    iterate leaves the interval, meets a rising phase (Re T′/T ≥ 0), a
+    negative Re T, a singular Y or runs out of ``steps`` keeps the NaN the
+    outputs must hold on entry.
+    """
+    B, n = G.shape[0], G.shape[1]
+    Y = np.empty((n, n), dtype=np.complex128)
+    x = np.empty(n, dtype=np.complex128)
+    y = np.empty(n, dtype=np.complex128)
+    perm = np.empty(n, dtype=np.int64)
+    for b in range(B):
+        f = f0[b]
+        for _ in range(steps):
+            omega = TWO_PI * f
+            for i in range(n):
+                for j in range(n):
+                    Y[i, j] = complex(G[b, i, j], omega * C[b, i, j])
+            if not _lu(Y, perm):
+                break
+            for i in range(n):
+                x[i] = u[i]
+            _solve(Y, perm, x)
+            for i in range(n):
+                acc = 0j
+                for j in range(n):
+                    acc += C[b, i, j] * x[j]
+                y[i] = acc
+            _solve(Y, perm, y)
+            wx = 0j
+            wy = 0j
+            for i in range(n):
+                wx += w[i] * x[i]
+                wy += w[i] * y[i]
+            T = -gm[b] * wx
+            dT = gm[b] * wy
+            ratio = dT / T
+            inv_T = 1.0 / T
+            # dφ/dω = Re(T′/T); d(Im 1/T)/dω = −Re(T′/T²)
+            step = inv_T.imag / (ratio * inv_T).real / TWO_PI
+            f_new = f + step
+            if not (ratio.real < 0.0 and T.real > 0.0 and f_lo[b] <= f_new <= f_hi[b]):
+                break
+            if abs(step) <= accept_rtol * f:
+                f_out[b] = f_new
+                T_out[b] = T + dT * complex(0.0, TWO_PI * step)
+                dT_out[b] = dT
+                for i in range(n):
+                    x_out[b, i] = x[i]
+                break
+            f = f_new
