@@ -79,6 +79,62 @@ def _solve(LU: np.ndarray, perm: np.ndarray, b: np.ndarray) -> None:
 
 
 @numba.njit(cache=True, nogil=True)
+def _loop_at(
+    G: np.ndarray,
+    C: np.ndarray,
+    u: np.ndarray,
+    w: np.ndarray,
+    gm: float,
+    s: complex,
+    Y: np.ndarray,
+    perm: np.ndarray,
+    x: np.ndarray,
+    y: np.ndarray,
+) -> tuple[bool, complex, complex]:
+    """T and dT/ds of one circuit (G, C (n, n)) at s, x = Y⁻¹u left in ``x``
+    (``Y``, ``perm``, ``y`` work space); False where Y is singular."""
+    n = G.shape[0]
+    for i in range(n):
+        for j in range(n):
+            Y[i, j] = G[i, j] + s * C[i, j]
+    if not _lu(Y, perm):
+        return False, 0j, 0j
+    for i in range(n):
+        x[i] = u[i]
+    _solve(Y, perm, x)
+    for i in range(n):
+        acc = 0j
+        for j in range(n):
+            acc += C[i, j] * x[j]
+        y[i] = acc
+    _solve(Y, perm, y)
+    wx = 0j
+    wy = 0j
+    for i in range(n):
+        wx += w[i] * x[i]
+        wy += w[i] * y[i]
+    return True, -gm * wx, gm * wy
+
+
+@numba.njit(cache=True, nogil=True)
+def loop_at(
+    G: np.ndarray, C: np.ndarray, u: np.ndarray, w: np.ndarray, gm: float, s: complex
+) -> tuple[complex, complex]:
+    """T and dT/ds of one circuit at the complex frequency s (rad/s): NaN where
+    G + sC is singular."""
+    n = G.shape[0]
+    Y = np.empty((n, n), dtype=np.complex128)
+    x = np.empty(n, dtype=np.complex128)
+    y = np.empty(n, dtype=np.complex128)
+    perm = np.empty(n, dtype=np.int64)
+    ok, T, dT = _loop_at(G, C, u, w, gm, s, Y, perm, x, y)
+    if not ok:
+        nan = complex(np.nan, np.nan)
+        return nan, nan
+    return T, dT
+
+
+@numba.njit(cache=True, nogil=True)
 def newton_crossings(
     G: np.ndarray,
     C: np.ndarray,
@@ -113,28 +169,9 @@ def newton_crossings(
     for b in range(B):
         f = f0[b]
         for _ in range(steps):
-            omega = TWO_PI * f
-            for i in range(n):
-                for j in range(n):
-                    Y[i, j] = complex(G[b, i, j], omega * C[b, i, j])
-            if not _lu(Y, perm):
+            ok, T, dT = _loop_at(G[b], C[b], u, w, gm[b], complex(0.0, TWO_PI * f), Y, perm, x, y)
+            if not ok:
                 break
-            for i in range(n):
-                x[i] = u[i]
-            _solve(Y, perm, x)
-            for i in range(n):
-                acc = 0j
-                for j in range(n):
-                    acc += C[b, i, j] * x[j]
-                y[i] = acc
-            _solve(Y, perm, y)
-            wx = 0j
-            wy = 0j
-            for i in range(n):
-                wx += w[i] * x[i]
-                wy += w[i] * y[i]
-            T = -gm[b] * wx
-            dT = gm[b] * wy
             ratio = dT / T
             inv_T = 1.0 / T
             # dφ/dω = Re(T′/T); d(Im 1/T)/dω = −Re(T′/T²)

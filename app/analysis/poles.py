@@ -27,7 +27,7 @@ from typing import Final
 import numpy as np
 import scipy.linalg
 
-from ringwise.analysis.loop import return_ratio_slope
+from ringwise.analysis.crossing import loop_at
 from ringwise.circuit.mna import SmallSignal
 
 #: Eigenvalues larger than this multiple of the reference frequency are the
@@ -77,9 +77,10 @@ def all_poles(ss: SmallSignal, f_ref: float) -> np.ndarray:
 def _polish(ss: SmallSignal, s0: complex) -> complex:
     """Newton on 1 − T(s) = 0 from s0; returns s0 unchanged if it fails."""
     s = s0
+    G, C = np.ascontiguousarray(ss.G, dtype=float), np.ascontiguousarray(ss.C, dtype=float)
+    u, w, gm = ss.u.astype(complex), ss.w.astype(complex), float(ss.gm)
     for _ in range(NEWTON_STEPS):
-        T, dT, _x = return_ratio_slope(ss, np.asarray(s))
-        T, dT = complex(T), complex(dT)
+        T, dT = loop_at(G, C, u, w, gm, complex(s))
         if dT == 0 or not np.isfinite(dT):
             return s0
         step = (1.0 - T) / dT

@@ -45,6 +45,8 @@ EXP_LIMIT: Final = 700.0
 
 def capacitance(V, C_j0, phi, m):
     """C(V), F, at the reverse voltage V (V; floats or arrays)."""
+    if isinstance(V, float) and isinstance(C_j0, float) and isinstance(phi, float):
+        return capacitance_at(V, C_j0, phi, float(m))
     V = np.asarray(V, dtype=float)
     x = 1.0 + np.maximum(V, -FC * phi) / phi
     C_fc = C_j0 * (1.0 - FC) ** (-1.0 - m)
