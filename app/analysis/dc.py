@@ -7,7 +7,8 @@ allow; a member whose plain Newton fails has its supply ramped up in steps
 (source stepping).  Every member of a batch is solved on its own terms: its
 own damping, its own convergence test, its own source stepping; a converged
 member is no longer touched, so a batch of N gives the N answers of N
-single solves.  One design is a batch of one.
+single solves.  One design is a batch of one.  The Newton iteration runs
+member by member in compiled floats (:func:`_newton_members`).
 
 References
 ----------
@@ -23,7 +24,9 @@ import math
 from dataclasses import dataclass
 from typing import Final
 
+import numba
 import numpy as np
+from numba.extending import register_jitable
 
 from ringwise.analysis.criteria import Region, region_of
 from ringwise.circuit.mna import (
@@ -33,7 +36,12 @@ from ringwise.circuit.mna import (
     reduce_to_controls,
 )
 from ringwise.circuit.netlist import NPNParams
-from ringwise.circuit.npn import JunctionState, exp_and_slope_array, junction_currents
+from ringwise.circuit.npn import (
+    JunctionState,
+    _exp_and_slope,
+    exp_and_slope_array,
+    junction_currents,
+)
 from ringwise.errors import DesignError
 
 __all__ = [
@@ -56,11 +64,6 @@ SOURCE_STEPS: Final = (0.05, 0.1, 0.2, 0.35, 0.5, 0.7, 0.85, 1.0)
 GUESS_CURRENT: Final = 1e-3
 #: Smallest fraction of a Newton step that junction limiting may leave.
 MIN_DAMPING: Final = 1e-3
-#: Batches up to this size run each member's Newton in float arithmetic
-#: (the same iterates; a few dozen array operations per step cost more than
-#: a handful of float loops up to about this size, warm or cold — measured on the
-#: samples' analyses, the threshold scan of 24 points included).
-SCALAR_BATCH: Final = 24
 SQRT2: Final = 2.0**0.5
 
 
@@ -87,29 +90,6 @@ def _take(params: NPNParams, idx: np.ndarray) -> NPNParams:
     )
 
 
-def _pnjlim(v_new: np.ndarray, v_old: np.ndarray, VT, v_crit) -> np.ndarray:
-    """SPICE's junction-voltage limiting, elementwise (Nagel, SPICE2 thesis, 1975; from memory)."""
-    limit = (v_new > v_crit) & (np.abs(v_new - v_old) > 2.0 * VT)
-    if not limit.any():
-        return v_new
-    arg = 1.0 + (v_new - v_old) / VT
-    from_old = np.where(arg > 0, v_old + VT * np.log(np.where(arg > 0, arg, 1.0)), v_crit)
-    # (v_crit < 0 only for absurdly large I_S, as the describing function may try)
-    from_zero = np.where(v_new > 0, VT * np.log(np.where(v_new > 0, v_new, VT) / VT), v_new)
-    return np.where(limit, np.where(v_old > 0, from_old, from_zero), v_new)
-
-
-def _limited_fraction(v_old, step, VT, v_crit) -> np.ndarray:
-    """Fraction of a step on one junction voltage that ``pnjlim`` allows (1 when none)."""
-    v_new = v_old + step
-    v_lim = _pnjlim(v_new, v_old, VT, v_crit)
-    moved = (v_lim != v_new) & (step != 0.0)
-    if not moved.any():
-        return np.ones(np.shape(v_new))
-    frac = np.maximum((v_lim - v_old) / np.where(moved, step, 1.0), MIN_DAMPING)
-    return np.where(moved, frac, 1.0)
-
-
 def _newton_step(vbe, vce, q: JunctionState, m00, m01, m10, m11, a0, a1):
     """The Newton step (d_BE, d_CE) of v + M·φ(v) = a at v, and the Jacobian's determinant.
 
@@ -126,48 +106,7 @@ def _newton_step(vbe, vce, q: JunctionState, m00, m01, m10, m11, a0, a1):
     return -(g0 * j11 - g1 * j01) / det, -(j00 * g1 - j10 * g0) / det, det
 
 
-def _newton(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, todo: np.ndarray):
-    """Damped Newton on v + M·φ(v) = s·a for the members in ``todo`` (a boolean mask).
-
-    ``v`` (B, 2) holds (v_BE, v_CE) and is updated in place; returns the mask
-    of members that converged.  Members outside ``todo`` are not touched, so
-    each member's iterates are those of its own single solve.
-    """
-    IS, beta, beta_R, VA, VT = params.IS, params.beta, params.beta_R, params.VA, params.VT
-    v_crit = VT * np.log(VT / (SQRT2 * IS))
-    m00, m01 = red.M[:, 0, 0], red.M[:, 0, 1]
-    m10, m11 = red.M[:, 1, 0], red.M[:, 1, 1]
-    a0, a1 = scale * red.a[:, 0], scale * red.a[:, 1]
-    vbe, vce = v[:, 0].copy(), v[:, 1].copy()
-    ok = np.zeros(len(vbe), dtype=bool)
-    live = todo.copy()
-    for _ in range(MAX_NEWTON):
-        if not live.any():
-            break
-        q = junction_currents(vbe, vce, IS, beta, beta_R, VA, VT, exp_and_slope_array)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            d_be, d_ce, _det = _newton_step(vbe, vce, q, m00, m01, m10, m11, a0, a1)
-        # Junction limiting on v_BE and v_BC = v_BE − v_CE, one fraction per member.
-        alpha = np.minimum(
-            _limited_fraction(vbe, d_be, VT, v_crit),
-            _limited_fraction(vbe - vce, d_be - d_ce, VT, v_crit),
-        )
-        new_be = vbe + alpha * d_be
-        new_ce = vce + alpha * d_ce
-        finite = np.isfinite(new_be) & np.isfinite(new_ce)
-        vbe = np.where(live, new_be, vbe)
-        vce = np.where(live, new_ce, vce)
-        small = (np.abs(d_be) <= STEP_TOL + REL_TOL * np.abs(vbe)) & (
-            np.abs(d_ce) <= STEP_TOL + REL_TOL * np.abs(vce)
-        )
-        done = live & finite & (alpha == 1.0) & small
-        ok |= done
-        live &= finite & ~done
-    v[:, 0] = np.where(todo, vbe, v[:, 0])
-    v[:, 1] = np.where(todo, vce, v[:, 1])
-    return ok
-
-
+@register_jitable
 def _pnjlim_one(v_new: float, v_old: float, VT: float, v_crit: float) -> float:
     """:func:`_pnjlim` for one junction, in float arithmetic."""
     if v_new > v_crit and abs(v_new - v_old) > 2.0 * VT:
@@ -178,6 +117,7 @@ def _pnjlim_one(v_new: float, v_old: float, VT: float, v_crit: float) -> float:
     return v_new
 
 
+@register_jitable
 def _fraction_one(v_old: float, step: float, VT: float, v_crit: float) -> float:
     v_new = v_old + step
     v_lim = _pnjlim_one(v_new, v_old, VT, v_crit)
@@ -186,68 +126,71 @@ def _fraction_one(v_old: float, step: float, VT: float, v_crit: float) -> float:
     return max((v_lim - v_old) / step, MIN_DAMPING)
 
 
-def _newton_floats(
-    device: tuple[float, ...], M: list[list[float]], a: tuple[float, float], v: list[float]
-) -> tuple[bool, tuple[float, float]] | None:
-    """:func:`_newton` for one member in float arithmetic, from ``v`` = [v_BE, v_CE]:
-    the same iterates without array overhead (the pipeline's one scalar fast path, for
-    small batches).  Returns whether it converged and the last finite iterate
-    (``None`` when the first step already fails)."""
-    IS, beta, beta_R, VA, VT = device
-    v_crit = VT * math.log(VT / (SQRT2 * IS))
-    (m00, m01), (m10, m11) = M
-    a0, a1 = a
-    vbe, vce = v
-    last = None
-    for _ in range(MAX_NEWTON):
-        try:
-            q = junction_currents(vbe, vce, IS, beta, beta_R, VA, VT)
-        except OverflowError:
-            return None if last is None else (False, last)
-        try:
-            d_be, d_ce, det = _newton_step(vbe, vce, q, m00, m01, m10, m11, a0, a1)
-        except ZeroDivisionError:
-            return None if last is None else (False, last)
-        if not math.isfinite(det):
-            return None if last is None else (False, last)
-        alpha = min(
-            _fraction_one(vbe, d_be, VT, v_crit),
-            _fraction_one(vbe - vce, d_be - d_ce, VT, v_crit),
-        )
-        vbe += alpha * d_be
-        vce += alpha * d_ce
-        if not (math.isfinite(vbe) and math.isfinite(vce)):
-            return None if last is None else (False, last)
-        last = (vbe, vce)
-        if (
-            alpha == 1.0
-            and abs(d_be) <= STEP_TOL + REL_TOL * abs(vbe)
-            and abs(d_ce) <= STEP_TOL + REL_TOL * abs(vce)
-        ):
-            return True, last
-    return False, last
+#: The device equations, the Newton step and the junction limiting compiled
+#: from their one source for :func:`_newton_members` (no second copy: the
+#: Python functions stay what every other caller uses).
+_exp_slope = numba.njit(cache=True, error_model="numpy")(_exp_and_slope)
+_junction = numba.njit(cache=True, error_model="numpy")(junction_currents)
+_step = numba.njit(cache=True, error_model="numpy")(_newton_step)
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _newton_members(IS, beta, beta_R, VA, VT, M, a, v, todo, ok) -> None:
+    """Damped Newton on v + M·φ(v) = a for every member i with ``todo[i]``, from
+    v[i] = (v_BE, v_CE), in float arithmetic member by member (compiled).
+
+    Device parameters, ``M`` (B, 2, 2), ``a`` (B, 2) and ``v`` (B, 2) are per
+    member; ``v`` is updated in place to the last finite iterate (left as it
+    was when the first step already fails) and ``ok`` set where it converged.
+    Junction limiting (SPICE's ``pnjlim``) on v_BE and v_BC = v_BE − v_CE, one
+    damping fraction per step; a singular Jacobian or a non-finite iterate
+    ends the member's iteration.  The device equations and the step are
+    :func:`ringwise.circuit.npn.junction_currents` and :func:`_newton_step`
+    themselves, compiled.
+    """
+    for i in range(v.shape[0]):
+        if not todo[i]:
+            continue
+        vt = VT[i]
+        v_crit = vt * math.log(vt / (SQRT2 * IS[i]))
+        m00, m01, m10, m11 = M[i, 0, 0], M[i, 0, 1], M[i, 1, 0], M[i, 1, 1]
+        a0, a1 = a[i, 0], a[i, 1]
+        vbe, vce = v[i, 0], v[i, 1]
+        for _ in range(MAX_NEWTON):
+            q = _junction(vbe, vce, IS[i], beta[i], beta_R[i], VA[i], vt, _exp_slope)
+            d_be, d_ce, det = _step(vbe, vce, q, m00, m01, m10, m11, a0, a1)
+            if det == 0.0 or not math.isfinite(det):
+                break
+            alpha = min(
+                _fraction_one(vbe, d_be, vt, v_crit),
+                _fraction_one(vbe - vce, d_be - d_ce, vt, v_crit),
+            )
+            vbe += alpha * d_be
+            vce += alpha * d_ce
+            if not (math.isfinite(vbe) and math.isfinite(vce)):
+                break
+            v[i, 0], v[i, 1] = vbe, vce
+            if (
+                alpha == 1.0
+                and abs(d_be) <= STEP_TOL + REL_TOL * abs(vbe)
+                and abs(d_ce) <= STEP_TOL + REL_TOL * abs(vce)
+            ):
+                ok[i] = True
+                break
 
 
 def _solve_controls(red: Reduced, params: NPNParams, v: np.ndarray, scale: float, todo):
-    """Newton for the members in ``todo``: float arithmetic, member by member, for a
-    batch of at most :data:`SCALAR_BATCH`."""
+    """Newton (:func:`_newton_members`) for the members in ``todo``; returns the
+    mask of those that converged."""
     B = len(v)
-    if B > SCALAR_BATCH:
-        return _newton(red, params, v, scale, todo)
-    # every member's numbers as Python floats at once (not element by element)
     fields = (params.IS, params.beta, params.beta_R, params.VA, params.VT)
-    columns = [[float(p)] * B if np.ndim(p) == 0 else np.asarray(p, float).tolist() for p in fields]
-    Ms = red.M.tolist()
-    As = (scale * red.a).tolist()
-    starts = v.tolist()
+    IS, beta, beta_R, VA, VT = (
+        np.ascontiguousarray(np.broadcast_to(np.asarray(p, dtype=float), (B,))) for p in fields
+    )
     ok = np.zeros(B, dtype=bool)
-    for i in range(B):
-        if not todo[i]:
-            continue
-        device = tuple(c[i] for c in columns)
-        found = _newton_floats(device, Ms[i], (As[i][0], As[i][1]), starts[i])
-        if found is not None:
-            ok[i], (v[i, 0], v[i, 1]) = found
+    a = np.ascontiguousarray(scale * red.a)
+    M = np.ascontiguousarray(red.M, dtype=float)
+    _newton_members(IS, beta, beta_R, VA, VT, M, a, v, np.asarray(todo, dtype=bool), ok)
     return ok
 
 
