@@ -20,6 +20,8 @@ from ringwise.resources import sample_files
 
 #: Targets, seconds.
 ANALYZE_TARGET: Final = 5e-3
+#: Runs of each sample's small-signal analysis behind its median.
+ANALYZE_RUNS: Final = 30
 SWEEP_TARGET: Final = 100e-3
 SWEEP_POINTS: Final = 200
 TRANSIENT_CYCLES: Final = 300
@@ -53,6 +55,22 @@ def median_time(fn: Callable[[], object], repeat: int, warmup: int = 2) -> float
     return statistics.median(times)
 
 
+def median_times(fns: list[Callable[[], object]], repeat: int, warmup: int = 2) -> list[float]:
+    """:func:`median_time` of several calls, their runs taken in turn (call 1,
+    2, …, then 1, 2, … again), so that a slow spell of this shared machine
+    falls on all of them, not on the one timed during it."""
+    for fn in fns:
+        for _ in range(warmup):
+            fn()
+    times: list[list[float]] = [[] for _ in fns]
+    for _ in range(repeat):
+        for fn, ts in zip(fns, times, strict=True):
+            t0 = time.process_time()
+            fn()
+            ts.append(time.process_time() - t0)
+    return [statistics.median(ts) for ts in times]
+
+
 def _line(label: str, seconds: float, target: float) -> str:
     ratio = seconds / target
     mark = "meets" if ratio <= 1.0 else "misses"
@@ -71,20 +89,17 @@ def bench_core() -> list[str]:
     from ringwise.analysis.threshold import find_threshold
 
     lines = [
-        "analysis core (median CPU time of 30 runs each; 'analyze' is the small-signal "
-        "first answer, the steady state is timed apart below):"
+        f"analysis core (median CPU time of {ANALYZE_RUNS} runs each, the samples in turn; "
+        "'analyze' is the small-signal first answer, the steady state is timed apart below):"
     ]
     designs = [
         Design.model_validate(json.loads(p.read_text(encoding="utf-8"))) for p in sample_files()
     ]
-    for d in designs:
-        lines.append(
-            _line(
-                f"analyze {d.name[:36]}",
-                median_time(lambda d=d: _analyze(d, large_signal=False), 30),
-                ANALYZE_TARGET,
-            )
-        )
+    medians = median_times(
+        [lambda d=d: _analyze(d, large_signal=False) for d in designs], ANALYZE_RUNS
+    )
+    for d, t in zip(designs, medians, strict=True):
+        lines.append(_line(f"analyze {d.name[:36]}", t, ANALYZE_TARGET))
         s = solve(d)
         ss = steady_state(s, warm=False)
         setter = gain_setter(d)
