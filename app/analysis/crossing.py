@@ -2,8 +2,7 @@ r"""The zero-phase crossing of the return ratio, member by member, compiled.
 
 :func:`ringwise.analysis.loop.refine_crossing` runs its Newton iteration on
 Im 1/T(j2πf) = 0 here: for each member of a batch, Y = G + j2πf·C is
-factorised (LU with partial pivoting, the pivot the largest |Re| + |Im| in
-its column, as LAPACK's zgetrf picks it), and
+factorised (:mod:`ringwise.circuit.smalllu`: LU with partial pivoting), and
 
 .. math:: x = Y^{-1} u,\qquad y = Y^{-1} C x = -\,dx/ds,\qquad
           T = -g_m\,w\cdot x,\qquad dT/ds = g_m\,w\cdot y .
@@ -18,7 +17,7 @@ overhead, not arithmetic.
 References
 ----------
 Golub & Van Loan, *Matrix Computations*, §3.4 (Gaussian elimination with
-partial pivoting), from memory.
+partial pivoting), from memory; the LU itself is :mod:`ringwise.circuit.smalllu`.
 """
 
 from __future__ import annotations
@@ -28,54 +27,9 @@ import math
 import numba
 import numpy as np
 
+from ringwise.circuit.smalllu import _lu, _solve
+
 TWO_PI = 2.0 * math.pi
-
-
-@numba.njit(cache=True, nogil=True)
-def _lu(A: np.ndarray, perm: np.ndarray) -> bool:
-    """A (n, n) complex, in place, into its LU factors with row pivoting; False if singular."""
-    n = A.shape[0]
-    for k in range(n):
-        p = k
-        best = abs(A[k, k].real) + abs(A[k, k].imag)
-        for i in range(k + 1, n):
-            size = abs(A[i, k].real) + abs(A[i, k].imag)
-            if size > best:
-                best, p = size, i
-        perm[k] = p
-        if best == 0.0 or not math.isfinite(best):
-            return False
-        if p != k:
-            for j in range(n):
-                A[k, j], A[p, j] = A[p, j], A[k, j]
-        pivot = A[k, k]
-        for i in range(k + 1, n):
-            m = A[i, k] / pivot
-            A[i, k] = m
-            if m != 0:
-                for j in range(k + 1, n):
-                    A[i, j] -= m * A[k, j]
-    return True
-
-
-@numba.njit(cache=True, nogil=True)
-def _solve(LU: np.ndarray, perm: np.ndarray, b: np.ndarray) -> None:
-    """b (n,) complex, in place, into the solution of A x = b from :func:`_lu`."""
-    n = LU.shape[0]
-    for k in range(n):
-        p = perm[k]
-        if p != k:
-            b[k], b[p] = b[p], b[k]
-    for i in range(1, n):
-        acc = b[i]
-        for j in range(i):
-            acc -= LU[i, j] * b[j]
-        b[i] = acc
-    for i in range(n - 1, -1, -1):
-        acc = b[i]
-        for j in range(i + 1, n):
-            acc -= LU[i, j] * b[j]
-        b[i] = acc / LU[i, i]
 
 
 @numba.njit(cache=True, nogil=True)

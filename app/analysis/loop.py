@@ -100,22 +100,6 @@ def _eliminates(ss: SmallSignal, s: np.ndarray) -> bool:
     return bool(np.all((np.diagonal(G0) != 0) | (np.diagonal(C0) != 0)))
 
 
-@dataclass(frozen=True)
-class _BatchLast(SmallSignal):
-    """A large batch held for elimination across it: ``Gt`` and ``Ct`` are its G
-    and C laid out (n, n, B), contiguous; ``G`` and ``C`` are views of them."""
-
-    Gt: np.ndarray | None = None
-    Ct: np.ndarray | None = None
-
-
-def _batch_last(ss: SmallSignal, Gt: np.ndarray, Ct: np.ndarray, **fields) -> _BatchLast:
-    """``ss`` with the batch-last matrices ``Gt``, ``Ct`` (n, n, B) and other ``fields``."""
-    G, C = np.moveaxis(Gt, -1, 0), np.moveaxis(Ct, -1, 0)
-    kept = {f.name: getattr(ss, f.name) for f in dataclasses.fields(SmallSignal)}
-    return _BatchLast(**{**kept, "G": G, "C": C, **fields, "Gt": Gt, "Ct": Ct})
-
-
 def _loop_solve_batched(
     ss: SmallSignal, s: np.ndarray, extra: int, slope: bool
 ) -> tuple[np.ndarray, np.ndarray | None]:
@@ -127,10 +111,7 @@ def _loop_solve_batched(
     again by LAPACK with pivoting.
     """
     n = ss.G.shape[-1]
-    if isinstance(ss, _BatchLast) and ss.Gt is not None and ss.Ct is not None:
-        G, C = ss.Gt, ss.Ct
-    else:
-        G, C = np.moveaxis(ss.G, (-2, -1), (0, 1)), np.moveaxis(ss.C, (-2, -1), (0, 1))
+    G, C = np.moveaxis(ss.G, (-2, -1), (0, 1)), np.moveaxis(ss.C, (-2, -1), (0, 1))
     tail = (slice(None), slice(None), ...) + (None,) * extra
     G, C = G[tail], C[tail]
     shape = np.broadcast_shapes(G.shape[2:], s.shape)
@@ -262,8 +243,6 @@ def _of_shape(value, shape: tuple[int, ...]) -> np.ndarray:
 def _members(ss: SmallSignal, keep: np.ndarray) -> SmallSignal:
     """The batch members ``keep`` (a boolean mask over the batch axis) of ``ss``."""
     gm = np.asarray(ss.gm)[keep]
-    if isinstance(ss, _BatchLast) and ss.Gt is not None and ss.Ct is not None:
-        return _batch_last(ss, ss.Gt[..., keep], ss.Ct[..., keep], gm=gm)
     return dataclasses.replace(ss, G=ss.G[keep], C=ss.C[keep], gm=gm)
 
 
@@ -314,7 +293,7 @@ def find_oscillation(
         return LoopFigures(*(a[0] for a in _astuple(figs)))
     batch = np.shape(ss.gm)
     if np.size(ss.gm) >= CONDENSE_BATCH:
-        ss = without_pinned(ss, batch_last=len(batch) == 1)
+        ss = without_pinned(ss)
     f_ref_a = _of_shape(f_ref, batch)
     start = f_ref_a if f_guess is None else _of_shape(f_guess, batch)
     first = refine_crossing(ss, start, start / SEARCH_SPAN, start * SEARCH_SPAN)
@@ -329,7 +308,7 @@ def find_oscillation(
     return LoopFigures(*merged)
 
 
-def without_pinned(ss: SmallSignal, batch_last: bool = False) -> SmallSignal:
+def without_pinned(ss: SmallSignal) -> SmallSignal:
     """``ss`` without the unknowns an ideal supply pins, for every member at once.
 
     A supply's row reads v_p = 0 (it is an AC ground) and its branch current
@@ -337,9 +316,7 @@ def without_pinned(ss: SmallSignal, batch_last: bool = False) -> SmallSignal:
     pair and node p's leaves the other unknowns, T(s), dT/ds and the load the
     controlled source drives (u·x, x_p = 0) exactly as they were, with
     smaller matrices to factorise.  The result's layout is that of ``ss``
-    (its indices no longer address the matrices: loop figures only).  With
-    ``batch_last`` (one batch axis) the matrices are also held laid out
-    (n, n, B) for the elimination across the batch.
+    (its indices no longer address the matrices: loop figures only).
     """
     G, C = ss.G, ss.C
     n = G.shape[-1]
@@ -363,10 +340,6 @@ def without_pinned(ss: SmallSignal, batch_last: bool = False) -> SmallSignal:
         ):
             drop += [k, p]
     keep = np.setdiff1d(np.arange(n), drop)
-    if batch_last:
-        Gt = np.moveaxis(G, 0, -1)[keep[:, None], keep]
-        Ct = np.moveaxis(C, 0, -1)[keep[:, None], keep]
-        return _batch_last(ss, Gt, Ct, u=ss.u[keep], w=ss.w[keep])
     if not drop:
         return ss
     return dataclasses.replace(

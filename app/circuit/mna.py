@@ -46,6 +46,7 @@ from ringwise.circuit.npn import (
     exp_and_slope_array,
     junction_currents,
 )
+from ringwise.circuit.smalllu import solve_many
 
 #: Conductance from every node to ground, S (SPICE's default GMIN).
 G_MIN = 1e-12
@@ -461,12 +462,16 @@ class Reduced:
 def reduce_to_controls(A: np.ndarray, r: np.ndarray, inc: Incidence) -> Reduced:
     """Factor A once for the source vector ``r`` and the device columns P (see :class:`Reduced`).
 
-    The DC solve (A = G) and the transient's step (A = 2C/h + G) both use it.
+    The DC solve (A = G) uses it; each member's A is factorised by
+    :func:`ringwise.circuit.smalllu.solve_many` (NaN where A is singular).
     """
-    rhs = np.empty((*A.shape[:-1], 3))
+    n = A.shape[-1]
+    batch = np.broadcast_shapes(A.shape[:-2], np.shape(r)[:-1])
+    rhs = np.empty((*batch, n, 3))
     rhs[..., 0] = r
     rhs[..., 1:] = inc.P
-    Y = np.linalg.solve(A, rhs)
+    A_b = np.ascontiguousarray(np.broadcast_to(A, (*batch, n, n)), dtype=float)
+    Y = solve_many(A_b.reshape(-1, n, n), rhs.reshape(-1, n, 3)).reshape(rhs.shape)
     y, K = Y[..., 0], Y[..., 1:]
     W = inc.W
     return Reduced(y=y, K=K, M=np.swapaxes(W, 0, 1) @ K, a=y @ W)

@@ -131,7 +131,7 @@ def test_a_large_batch_equals_lapack_member_by_member(monkeypatch, limit) -> Non
     solved = [solve(design_from(BASE_CE, tank__C2=c)) for c in values]
     size = max(BATCH_ELIMINATION, CONDENSE_BATCH)
     picks = [solved[i % len(solved)] for i in range(size)]
-    ss = without_pinned(_stack([s.ss for s in picks]), batch_last=True)
+    ss = without_pinned(_stack([s.ss for s in picks]))
     f = np.array([s.tank.f_ideal for s in picks])
     grid = f[:, None] * np.array([0.9, 1.0, 1.1])
     for s_arr in (TWO_PI * 1j * f, TWO_PI * 1j * grid):
