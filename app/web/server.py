@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import gc
 import ipaddress
 import os
 import sys
@@ -143,6 +144,9 @@ async def lifespan(app: FastAPI) -> AsyncIterator[None]:
     work, light = work_of(app), light_of(app)
     work.start("process")
     light.start("process")
+    # what the server imported lives as long as it: out of the collector's full
+    # passes (their pauses would hold up every request the event loop serves)
+    gc.freeze()
     try:
         yield
     finally:

@@ -84,8 +84,9 @@ RENEW_BYTES: Final = 64 * 2**20
 START_METHOD: Final = "forkserver"
 #: How often a worker process checks that its server is still there, s.
 WATCH_S: Final = 1.0
-#: Imported once in the fork server, so a worker starts warm.
-PRELOAD: Final = ("ringwise.web.server",)
+#: Imported once in the fork server, so a worker starts warm (ringwise.web.preload:
+#: the package, and the compiled kernels loaded).
+PRELOAD: Final = ("ringwise.web.preload",)
 #: Requests of each kind outstanding at most (running or waiting for a worker);
 #: the next one is refused with 429 at once.  Two of a kind keep both cores busy,
 #: and one more of some kinds may wait its turn.
