@@ -47,14 +47,7 @@ def median_time(fn: Callable[[], object], repeat: int, warmup: int = 2) -> float
     CPU time of this process (not wall time), so that other work on this
     2-core machine does not count against the figure.
     """
-    for _ in range(warmup):
-        fn()
-    times = []
-    for _ in range(repeat):
-        t0 = time.process_time()
-        fn()
-        times.append(time.process_time() - t0)
-    return statistics.median(times)
+    return median_times([fn], repeat, warmup)[0]
 
 
 def median_times(fns: list[Callable[[], object]], repeat: int, warmup: int = 2) -> list[float]:

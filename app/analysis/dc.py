@@ -108,7 +108,8 @@ def _newton_step(vbe, vce, q: JunctionState, m00, m01, m10, m11, a0, a1):
 
 @register_jitable
 def _pnjlim_one(v_new: float, v_old: float, VT: float, v_crit: float) -> float:
-    """:func:`_pnjlim` for one junction, in float arithmetic."""
+    """SPICE's junction-voltage limiting for one junction, in float arithmetic
+    (Nagel, SPICE2 thesis, 1975; from memory)."""
     if v_new > v_crit and abs(v_new - v_old) > 2.0 * VT:
         if v_old > 0:
             arg = 1.0 + (v_new - v_old) / VT

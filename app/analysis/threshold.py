@@ -11,12 +11,12 @@ as a power law, and every step is one batch of the pipeline
 
 1. a grid of :data:`SCAN_PER_DECADE` points per decade over
    value / :data:`SEARCH_RANGE` … value · :data:`SEARCH_RANGE`, all full
-   solves in one batch, brackets the crossings of ln(gain) = 0;
-   When the design's own solve also solved the part at value·e^{±PROBE_STEP}
-   (:func:`probe_changes`), the first batch is instead
+   solves in one batch, brackets the crossings of ln(gain) = 0 (when the
+   design's own solve also solved the part at value·e^{±PROBE_STEP},
+   :func:`probe_changes`, the first batch is instead
    :data:`PROBE_POINTS` points round the root of the quadratic through
    those three (:func:`_probe_guess`): a tighter batch, near the root where
-   the loop has its crossing, that usually brackets it;
+   the loop has its crossing, that usually brackets it);
 2. the chosen bracket is polished by batched interpolation: each round
    solves an estimate (Newton's step on the parabola through the last three
    points, else regula falsi) and four points beside it, and keeps the

@@ -126,9 +126,8 @@ def tuning_changes(
     changes = [{"V_tune": float(x)} for x in V]
     if start is None or start.f_osc is None:
         return changes, None
-    values = part_values(design)
-    f_ideal = f_ideal_of(changed_values(values, changes), len(V))
-    return changes, start.f_osc * (f_ideal / f_ideal_of(values, 1)[0])
+    f_ideal = f_ideal_of(changed_values(part_values(design), changes), len(V))
+    return changes, start.f_osc * (f_ideal / start.tank.f_ideal)
 
 
 def tuning_sweep(design: Design, start: Solved | None = None) -> MemberFigures | None:
